@@ -1,0 +1,225 @@
+//! Analyses of a recording made with a sweep: checks of the input, the
+//! impulse response, its arrival time and the frequency response.
+//!
+//! Conventions (also in docs/method.md):
+//! - time zero is the first sample of the recording; `delay_s` is the peak
+//!   of |h| after it, to a fraction of a sample;
+//! - 0 dB means the recording equals the sweep as written (a wire);
+//! - phase is given with the delay `delay_s` removed.
+
+pub mod delay;
+pub mod etc;
+pub mod response;
+pub mod smoothing;
+
+use crate::deconv;
+use crate::error::{Error, Result};
+use crate::signal::sweep::SweepDesign;
+use crate::signal::window;
+
+pub use response::FrequencyResponse;
+pub use smoothing::Smoothing;
+
+/// A sample at or above this level (−0.1 dBFS) counts as clipped.
+pub const CLIP_LEVEL: f64 = 0.988_553_094_656_938; // 10^(−0.1/20)
+
+/// Below this peak level (dBFS) the recording is reported as too low.
+pub const LOW_LEVEL_DBFS: f64 = -60.0;
+
+/// Below this peak-to-noise ratio (dB) of the impulse response a warning
+/// says that the recording may not hold the sweep.
+pub const MIN_PEAK_TO_NOISE_DB: f64 = 30.0;
+
+/// Settings of an analysis.
+#[derive(Debug, Clone, PartialEq)]
+pub struct AnalysisConfig {
+    /// Smoothing of the frequency response.
+    pub smoothing: Smoothing,
+}
+
+impl Default for AnalysisConfig {
+    fn default() -> Self {
+        AnalysisConfig {
+            smoothing: Smoothing::Fraction(6),
+        }
+    }
+}
+
+/// The linear impulse response cut from the circular deconvolution.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ImpulseResponse {
+    /// Samples, windowed with half-Hann tapers at both ends.
+    pub samples: Vec<f64>,
+    /// Time of `samples[0]` in seconds from the first sample of the
+    /// recording (negative when the window starts before it).
+    pub start_s: f64,
+    /// Sample rate in Hz.
+    pub sample_rate_hz: u32,
+}
+
+/// Everything one analysis derives.
+#[derive(Debug, Clone)]
+pub struct Analysis {
+    /// Sample rate in Hz.
+    pub sample_rate_hz: u32,
+    /// Arrival of the impulse response peak, seconds after the recording's start.
+    pub delay_s: f64,
+    /// The linear impulse response.
+    pub impulse: ImpulseResponse,
+    /// The frequency response on the log grid.
+    pub response: FrequencyResponse,
+    /// Peak level of the recording in dBFS.
+    pub peak_dbfs: f64,
+    /// Peak of the impulse response over its noise, in dB.
+    pub peak_to_noise_db: f64,
+    /// What the user should know (clipping, low level, noise).
+    pub warnings: Vec<String>,
+}
+
+/// Checks a signal for emptiness, non-finite samples and silence; returns
+/// its peak absolute value. `what` names it in messages.
+pub fn check_signal(x: &[f64], what: &str) -> Result<f64> {
+    if x.is_empty() {
+        return Err(Error::input(format!(
+            "{what} is empty (no samples); record again and check that the recorder captured audio"
+        )));
+    }
+    let mut peak = 0.0f64;
+    for (i, &v) in x.iter().enumerate() {
+        if !v.is_finite() {
+            return Err(Error::input(format!(
+                "{what} holds a non-finite sample (NaN or infinity) at sample {i}; the file is damaged, export it again"
+            )));
+        }
+        peak = peak.max(v.abs());
+    }
+    if peak == 0.0 {
+        return Err(Error::input(format!(
+            "{what} is silent (every sample is zero); check the input channel, the cabling and the recording level"
+        )));
+    }
+    Ok(peak)
+}
+
+/// Level in dB of an amplitude ratio (−inf for 0).
+pub fn db20(x: f64) -> f64 {
+    20.0 * x.log10()
+}
+
+/// Runs the analysis of one recorded channel against the stimulus that
+/// was played (`stimulus` = the sweep file's samples) and its design.
+pub fn analyze(
+    recording: &[f64],
+    stimulus: &[f64],
+    design: &SweepDesign,
+    config: &AnalysisConfig,
+) -> Result<Analysis> {
+    let fs = design.fs();
+    let mut warnings = Vec::new();
+    check_signal(stimulus, "the sweep")?;
+    if stimulus.len() < design.sweep_samples {
+        return Err(Error::input(format!(
+            "the sweep file holds {} samples but its parameters describe a sweep of {}; use the sweep file that was made with them",
+            stimulus.len(),
+            design.sweep_samples
+        )));
+    }
+    let peak = check_signal(recording, "the recording")?;
+    if recording.len() < design.sweep_samples {
+        return Err(Error::input(format!(
+            "the recording ({:.3} s) is shorter than the sweep ({:.3} s); record the whole sweep and its tail",
+            recording.len() as f64 / fs,
+            design.length_s
+        )));
+    }
+    let peak_dbfs = db20(peak);
+    let clipped = recording.iter().filter(|v| v.abs() >= CLIP_LEVEL).count();
+    if clipped > 0 {
+        warnings.push(format!(
+            "the recording clips: {clipped} samples at or above -0.1 dBFS (peak {peak_dbfs:.2} dBFS); lower the playback or input gain and measure again"
+        ));
+    }
+    if peak_dbfs < LOW_LEVEL_DBFS {
+        warnings.push(format!(
+            "the recording is very quiet (peak {peak_dbfs:.1} dBFS); raise the input gain or the sweep level for more signal-to-noise"
+        ));
+    }
+
+    let f1 = design.params.start_hz;
+    let f2 = design.params.end_hz;
+    let h = deconv::deconvolve(recording, stimulus, fs, f1, f2);
+    let n = h.len();
+
+    // Where the 2nd harmonic response begins (circularly, before index 0).
+    let h2_gap = (design.harmonic_offset_s(2) * fs).round() as usize;
+    let search_end = n.saturating_sub(h2_gap / 2).max(1);
+    let ipeak = delay::peak_index(&h, 0..search_end).unwrap_or(0);
+    let delay_samples = delay::refine_peak(&h, ipeak);
+
+    // The linear response window: from `pre` before the peak (at most half
+    // the gap to the 2nd harmonic, at most 100 ms) to the end of the
+    // recorded tail, never reaching round to the harmonics.
+    let pre = ((0.5 * h2_gap as f64).min(0.1 * fs)).round() as usize;
+    let start = ipeak as isize - pre as isize;
+    let tail_end = recording.len().saturating_sub(design.sweep_samples);
+    let min_end = ipeak + (0.05 * fs) as usize;
+    let mut end = tail_end.max(min_end) as isize;
+    let max_len = n.saturating_sub(h2_gap) as isize;
+    if end - start > max_len {
+        end = start + max_len;
+    }
+    let len = (end - start).max(1) as usize;
+    let mut ir: Vec<f64> = (0..len)
+        .map(|i| h[(start + i as isize).rem_euclid(n as isize) as usize])
+        .collect();
+    window::fade_in(&mut ir, pre / 2);
+    window::fade_out(&mut ir, (len / 20).max(8).min(len));
+
+    // harmonic responses up to the 10th order sit in the last L·ln 10
+    let harmonics_len = (design.harmonic_offset_s(10) * fs).round() as usize;
+    let peak_to_noise_db = peak_to_noise(&h, ipeak, end, n.saturating_sub(harmonics_len));
+    if peak_to_noise_db < MIN_PEAK_TO_NOISE_DB {
+        warnings.push(format!(
+            "the impulse response rises only {peak_to_noise_db:.0} dB above its noise; check that the recording holds this sweep, and raise the level"
+        ));
+    }
+
+    let grid = smoothing::log_grid(f1, f2);
+    let (spec, df) = response::delay_free_spectrum(&ir, start as f64, delay_samples, fs, f1);
+    let response = response::on_grid(&spec, df, &grid, config.smoothing);
+
+    Ok(Analysis {
+        sample_rate_hz: design.params.sample_rate_hz,
+        delay_s: delay_samples / fs,
+        impulse: ImpulseResponse {
+            samples: ir,
+            start_s: start as f64 / fs,
+            sample_rate_hz: design.params.sample_rate_hz,
+        },
+        response,
+        peak_dbfs,
+        peak_to_noise_db,
+        warnings,
+    })
+}
+
+/// Peak energy of h over the mean energy between the end of the linear
+/// window and the start of the harmonic responses (orders up to 10), or,
+/// when there is no such stretch, over the last tenth of the linear
+/// window; in dB.
+fn peak_to_noise(h: &[f64], ipeak: usize, linear_end: isize, harmonics_start: usize) -> f64 {
+    let peak = h[ipeak] * h[ipeak];
+    let a = linear_end.max(0) as usize;
+    let b = harmonics_start;
+    let region: &[f64] = if b > a + 64 {
+        &h[a..b]
+    } else {
+        let lo = ipeak + (a.saturating_sub(ipeak)) * 9 / 10;
+        &h[lo.min(h.len() - 1)..a.clamp(lo.min(h.len() - 1) + 1, h.len())]
+    };
+    let noise = region.iter().map(|v| v * v).sum::<f64>() / region.len().max(1) as f64;
+    if noise <= 0.0 {
+        return 300.0;
+    }
+    10.0 * (peak / noise).log10()
+}

@@ -1,0 +1,82 @@
+//! Options shared by several commands.
+
+use std::path::Path;
+
+use clap::Args as ClapArgs;
+
+use crate::analysis::{AnalysisConfig, Smoothing};
+use crate::error::Result;
+use crate::signal::sweep::{SweepDesign, SweepParams};
+
+/// The sweep options of `sweep`, `demo` (and later `measure`).
+#[derive(Debug, Clone, ClapArgs)]
+pub struct SweepArgs {
+    /// Start frequency of the sweep in Hz.
+    #[arg(long, value_name = "HZ", default_value_t = 20.0)]
+    pub start: f64,
+    /// End frequency of the sweep in Hz (at most half the sample rate).
+    #[arg(long, value_name = "HZ", default_value_t = 20_000.0)]
+    pub end: f64,
+    /// Length of the sweep in seconds; rounded slightly so that harmonic
+    /// responses stay phase-aligned. Doubling it gains about 3 dB of
+    /// signal-to-noise.
+    #[arg(long, value_name = "S", default_value_t = 5.0)]
+    pub length: f64,
+    /// Silence after the sweep in seconds, long enough for the decay of the
+    /// room or device (at least its reverberation time).
+    #[arg(long, value_name = "S", default_value_t = 2.0)]
+    pub tail: f64,
+    /// Sample rate in Hz.
+    #[arg(long, value_name = "HZ", default_value_t = 48_000)]
+    pub rate: u32,
+    /// Peak level of the sweep in dBFS (0 dBFS = full-scale sine). Start low
+    /// and raise it step by step.
+    #[arg(long, value_name = "DBFS", default_value_t = -20.0, allow_hyphen_values = true)]
+    pub level: f64,
+}
+
+impl SweepArgs {
+    /// The checked sweep.
+    pub fn design(&self) -> Result<SweepDesign> {
+        SweepParams {
+            start_hz: self.start,
+            end_hz: self.end,
+            requested_length_s: self.length,
+            sample_rate_hz: self.rate,
+            level_dbfs: self.level,
+            tail_s: self.tail,
+            ..SweepParams::default()
+        }
+        .design()
+    }
+}
+
+/// Analysis and output options of `analyze` and `demo`.
+#[derive(Debug, Clone, ClapArgs)]
+pub struct OutputArgs {
+    /// Fractional-octave smoothing of the frequency response: 1/1, 1/2,
+    /// 1/3, 1/6, 1/12, 1/24, 1/48, or none.
+    #[arg(long, value_name = "1/N|none", default_value = "1/6")]
+    pub smooth: String,
+    /// Skip the PNG plots (faster for batch runs).
+    #[arg(long)]
+    pub no_plots: bool,
+    /// Replace the derived files of an existing measurement folder made
+    /// from the same raw files; raw recordings are always kept.
+    #[arg(long)]
+    pub overwrite: bool,
+}
+
+impl OutputArgs {
+    /// The checked analysis settings.
+    pub fn config(&self) -> Result<AnalysisConfig> {
+        Ok(AnalysisConfig {
+            smoothing: Smoothing::parse(&self.smooth)?,
+        })
+    }
+}
+
+/// The folder name for messages.
+pub fn show(p: &Path) -> String {
+    p.display().to_string()
+}

@@ -1,0 +1,108 @@
+//! `gliss demo`: the whole job on the virtual system.
+
+use std::path::PathBuf;
+
+use clap::Args as ClapArgs;
+
+use crate::audio::PlayRecord;
+use crate::audio::virtual_system::VirtualSystem;
+use crate::cli::common::{self, OutputArgs, SweepArgs};
+use crate::error::Result;
+use crate::session::{self, Job, Outcome, records::Source};
+use crate::signal::wav::{SampleEncoding, WavData, encode_wav};
+
+/// Options of `gliss demo`.
+#[derive(Debug, ClapArgs)]
+#[command(
+    after_help = "Everything in the demo is simulated: the Kestrel 5 monitor and \
+the rehearsal room are the project's own inventions, rendered in software, and no \
+sound is played."
+)]
+pub struct Args {
+    /// The measurement folder to write.
+    #[arg(long, value_name = "DIR", default_value = "gliss-demo")]
+    pub out: PathBuf,
+    #[command(flatten)]
+    pub sweep: SweepArgs,
+    #[command(flatten)]
+    pub output: OutputArgs,
+    /// Seed of the simulated background noise.
+    #[arg(long, default_value_t = 2026)]
+    pub seed: u64,
+}
+
+/// Prints what a job wrote and found.
+pub fn print_summary(out: &str, o: &Outcome) {
+    let a = &o.analysis;
+    println!("wrote the measurement folder {out}:");
+    for f in &o.files {
+        println!("  {f}");
+    }
+    println!(
+        "delay {:.3} ms ({:.2} samples), recording peak {:.1} dBFS, impulse response {:.0} dB above its noise",
+        a.delay_s * 1e3,
+        a.delay_s * f64::from(a.sample_rate_hz),
+        a.peak_dbfs,
+        a.peak_to_noise_db
+    );
+    if a.warnings.is_empty() {
+        println!("no warnings");
+    }
+    for w in &a.warnings {
+        println!("warning: {w}");
+    }
+}
+
+/// Runs `gliss demo`.
+pub fn run(a: Args) -> Result<()> {
+    let config = a.output.config()?;
+    let design = a.sweep.design()?;
+    let mut system = VirtualSystem {
+        seed: a.seed,
+        ..VirtualSystem::default()
+    };
+    println!("SIMULATED: {}", system.describe());
+    println!("(no sound is played; the recording is computed)");
+    let stimulus = design.generate();
+    let take = system.play_record(&stimulus, design.params.sample_rate_hz)?;
+    let stimulus_bytes = encode_wav(
+        &[&stimulus],
+        design.params.sample_rate_hz,
+        SampleEncoding::Float,
+    );
+    let refs: Vec<&[f64]> = take.channels.iter().map(Vec::as_slice).collect();
+    let recording_bytes = encode_wav(&refs, take.sample_rate_hz, SampleEncoding::Float);
+    // analyse what was written, exactly as `analyze` would read it
+    let f32_round = |x: &[f64]| x.iter().map(|&v| f64::from(v as f32)).collect::<Vec<_>>();
+    let job = Job {
+        out: a.out.clone(),
+        overwrite: a.output.overwrite,
+        plots: !a.output.no_plots,
+        recording_bytes,
+        recording: WavData {
+            sample_rate_hz: take.sample_rate_hz,
+            encoding: SampleEncoding::Float,
+            channels: take.channels.iter().map(|c| f32_round(c)).collect(),
+        },
+        channel: 0,
+        stimulus_bytes,
+        stimulus: WavData {
+            sample_rate_hz: design.params.sample_rate_hz,
+            encoding: SampleEncoding::Float,
+            channels: vec![f32_round(&stimulus)],
+        },
+        design,
+        config,
+        source: Source {
+            kind: "virtual".into(),
+            description: system.describe(),
+            recording_path: None,
+            sweep_path: None,
+        },
+        title: "Kestrel 5 in the rehearsal room (simulated)".into(),
+        command_line: std::env::args().collect(),
+    };
+    let outcome = session::run(&job)?;
+    print_summary(&common::show(&a.out), &outcome);
+    Ok(())
+}

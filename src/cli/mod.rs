@@ -1,0 +1,68 @@
+//! The command line: one file per command; argument structs become checked
+//! settings here, and the library does the work.
+
+mod analyze;
+mod common;
+mod demo;
+mod sweep;
+
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+
+/// Exit status for a usage error (bad option or value).
+pub const EXIT_USAGE: u8 = 2;
+/// Exit status for any other failure.
+pub const EXIT_FAILURE: u8 = 1;
+
+const AFTER_HELP: &str = "\
+Safety: sweeps are loud, broadband signals. Protect your hearing and start at a low \
+level; high-level sweeps with much high-frequency energy can damage tweeters; follow \
+local rules on noise exposure. The default sweep level is a modest -20 dBFS.";
+
+/// gliss — swept-sine acoustic measurement: impulse response, frequency
+/// response, distortion and room acoustics from the command line.
+#[derive(Debug, Parser)]
+#[command(name = "gliss", version, about, after_help = AFTER_HELP)]
+pub struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+enum Command {
+    /// Write a synchronised exponential sine sweep (WAV plus its parameters as .json).
+    Sweep(sweep::Args),
+    /// Analyse a recording of a gliss sweep made with any recorder into a measurement folder.
+    Analyze(analyze::Args),
+    /// Run the whole job on the built-in virtual loudspeaker and room (simulated).
+    Demo(demo::Args),
+}
+
+/// Parses the command line, runs the command, prints any error once.
+pub fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            let code = if e.use_stderr() { EXIT_USAGE } else { 0 };
+            let _ = e.print();
+            return ExitCode::from(code);
+        }
+    };
+    let result = match cli.command {
+        Command::Sweep(a) => sweep::run(a),
+        Command::Analyze(a) => analyze::run(a),
+        Command::Demo(a) => demo::run(a),
+    };
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("error: {e}");
+            let code = match e.kind() {
+                crate::ErrorKind::InvalidParameter => EXIT_USAGE,
+                _ => EXIT_FAILURE,
+            };
+            ExitCode::from(code)
+        }
+    }
+}

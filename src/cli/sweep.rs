@@ -1,0 +1,105 @@
+//! `gliss sweep`: write a sweep and its parameters.
+
+use std::fs::OpenOptions;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+use clap::Args as ClapArgs;
+
+use crate::cli::common::SweepArgs;
+use crate::error::{Error, ErrorKind, Result};
+use crate::session::folder::sha256_hex;
+use crate::session::sweep_file::{self, SweepFile, WavInfo};
+use crate::signal::wav::{self, SampleEncoding};
+
+/// Options of `gliss sweep`.
+#[derive(Debug, ClapArgs)]
+#[command(
+    after_help = "Writes FILE.wav and FILE.json beside it; analysis needs both. \
+Existing files are never overwritten.\n\nSafety: sweeps are loud. Protect your hearing, \
+start low, mind tweeters at high levels, and follow local rules on noise exposure."
+)]
+pub struct Args {
+    /// The WAV file to write (must end in .wav and not exist yet).
+    #[arg(long, value_name = "FILE.wav")]
+    pub out: PathBuf,
+    #[command(flatten)]
+    pub sweep: SweepArgs,
+    /// Sample format: 16 or 24 (integer) or 32 (float).
+    #[arg(long, value_name = "16|24|32", default_value_t = 32)]
+    pub bits: u16,
+}
+
+fn create_new(path: &Path, bytes: &[u8]) -> Result<()> {
+    let mut f = OpenOptions::new()
+        .write(true)
+        .create_new(true)
+        .open(path)
+        .map_err(|e| Error::io("create", path, &e))?;
+    f.write_all(bytes).map_err(|e| Error::io("write", path, &e))
+}
+
+/// Runs `gliss sweep`.
+pub fn run(a: Args) -> Result<()> {
+    let design = a.sweep.design()?;
+    let encoding = SampleEncoding::from_bits(a.bits)?;
+    let is_wav = a
+        .out
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("wav"));
+    if !is_wav {
+        return Err(Error::parameter(format!(
+            "--out {} must end in .wav",
+            a.out.display()
+        )));
+    }
+    let side = sweep_file::sidecar_path(&a.out);
+    for p in [&a.out, &side] {
+        if p.exists() {
+            return Err(Error::new(
+                ErrorKind::AlreadyExists,
+                format!(
+                    "{} already exists; gliss never overwrites files, choose another --out",
+                    p.display()
+                ),
+            ));
+        }
+    }
+    let x = design.generate();
+    let bytes = wav::encode_wav(&[&x], design.params.sample_rate_hz, encoding);
+    let record = SweepFile {
+        format: sweep_file::FORMAT.into(),
+        schema_version: 1,
+        sweep: design.clone(),
+        wav: WavInfo {
+            file: a
+                .out
+                .file_name()
+                .map(|n| n.to_string_lossy().into_owned())
+                .unwrap_or_default(),
+            encoding: encoding.describe(),
+            sha256: sha256_hex(&bytes),
+        },
+    };
+    let json = crate::session::to_json(&record)?;
+    create_new(&a.out, &bytes)?;
+    create_new(&side, &json)?;
+    println!(
+        "wrote {} ({:.4} s sweep {}–{} Hz + {} s silence, {} Hz, peak {} dBFS, {}) and {}",
+        a.out.display(),
+        design.length_s,
+        design.params.start_hz,
+        design.params.end_hz,
+        design.params.tail_s,
+        design.params.sample_rate_hz,
+        design.params.level_dbfs,
+        encoding.describe(),
+        side.display()
+    );
+    println!(
+        "rate constant L = {:.6} s; harmonic n arrives L·ln(n) before the linear response (2nd: {:.1} ms)",
+        design.rate_constant_s,
+        design.harmonic_offset_s(2) * 1e3
+    );
+    Ok(())
+}

@@ -1,0 +1,20 @@
+//! gliss: swept-sine acoustic measurement.
+//!
+//! The pipeline as plain functions over slices: a synchronised exponential
+//! sweep ([`signal::sweep`]), deconvolution by regularised spectral
+//! division ([`deconv`]), the impulse and frequency response
+//! ([`analysis`]), PNG plots ([`plot`]) and the measurement folder
+//! ([`session`]). The virtual system ([`audio::virtual_system`]) stands in
+//! for a sound card, a loudspeaker and a room.
+#![warn(missing_docs)]
+
+pub mod analysis;
+pub mod audio;
+pub mod cli;
+pub mod deconv;
+pub mod error;
+pub mod plot;
+pub mod session;
+pub mod signal;
+
+pub use error::{Error, ErrorKind, Result};

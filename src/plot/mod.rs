@@ -1,0 +1,379 @@
+//! PNG plots (plotters, bitmap backend, the project's own embedded font).
+//!
+//! The look is gliss's own: white ground, light grey grid, a deep blue for
+//! the main curve and a burnt orange for the second quantity.
+
+use std::path::Path;
+use std::sync::Once;
+
+use plotters::coord::Shift;
+use plotters::prelude::*;
+
+use crate::analysis::etc;
+use crate::error::{Error, ErrorKind, Result};
+
+/// Font family name under which the embedded font is registered.
+const FONT: &str = "sans-serif";
+/// DejaVu Sans (Bitstream Vera licence, assets/fonts/DejaVuSans-LICENSE.txt),
+/// embedded so that plots need no system fonts.
+static FONT_BYTES: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
+
+/// Main curve colour.
+pub const BLUE: RGBColor = RGBColor(22, 86, 140);
+/// Second curve colour.
+pub const ORANGE: RGBColor = RGBColor(196, 98, 24);
+/// Grid colour.
+pub const GRID: RGBColor = RGBColor(225, 225, 225);
+/// Minor grid colour.
+pub const GRID_MINOR: RGBColor = RGBColor(242, 242, 242);
+
+/// Plot size in pixels.
+pub const SIZE: (u32, u32) = (1200, 800);
+
+fn register_font() {
+    static ONCE: Once = Once::new();
+    ONCE.call_once(|| {
+        // The bytes are a valid TrueType font compiled into the binary.
+        let _ = plotters::style::register_font(FONT, FontStyle::Normal, FONT_BYTES);
+    });
+}
+
+fn plot_error<E: std::fmt::Display>(path: &Path) -> impl FnOnce(E) -> Error + '_ {
+    move |e| {
+        Error::new(
+            ErrorKind::Io,
+            format!("could not draw {}: {e}", path.display()),
+        )
+    }
+}
+
+/// "20", "500", "1k", "12.5k" for an axis in Hz.
+pub fn format_hz(f: f64) -> String {
+    if f >= 1000.0 {
+        let k = f / 1000.0;
+        if (k - k.round()).abs() < 1e-6 {
+            format!("{}k", k.round())
+        } else {
+            format!("{k:.1}k")
+        }
+    } else if (f - f.round()).abs() < 1e-6 {
+        format!("{}", f.round())
+    } else {
+        format!("{f:.1}")
+    }
+}
+
+/// Label only 1, 2 and 5 times a power of ten; the rest are grid lines.
+fn log_label(f: &f64) -> String {
+    if is_one_two_five(*f) {
+        format_hz(*f)
+    } else {
+        String::new()
+    }
+}
+
+fn is_one_two_five(f: f64) -> bool {
+    let mantissa = f / 10f64.powf(f.log10().floor());
+    [1.0, 2.0, 5.0, 10.0]
+        .iter()
+        .any(|m| (mantissa - m).abs() < 1e-6)
+}
+
+/// Grid frequencies of a log axis over [f1, f2]: (1, 2, 5 × 10^k, which
+/// are labelled; every other integer multiple of 10^k, which are not).
+pub fn log_ticks(f1: f64, f2: f64) -> (Vec<f64>, Vec<f64>) {
+    let (mut bold, mut light) = (Vec::new(), Vec::new());
+    let mut decade = 10f64.powf(f1.log10().floor());
+    while decade <= f2 {
+        for m in 1..10 {
+            let f = decade * f64::from(m);
+            if f >= f1 * (1.0 - 1e-9) && f <= f2 * (1.0 + 1e-9) {
+                if is_one_two_five(f) {
+                    bold.push(f);
+                } else {
+                    light.push(f);
+                }
+            }
+        }
+        decade *= 10.0;
+    }
+    (bold, light)
+}
+
+/// Rounds a dB range outward to multiples of `step`.
+fn db_range(values: &[f64], step: f64, min_span: f64) -> (f64, f64) {
+    let finite = values.iter().filter(|v| v.is_finite());
+    let max = finite.clone().cloned().fold(f64::NEG_INFINITY, f64::max);
+    let min = finite.cloned().fold(f64::INFINITY, f64::min);
+    if !max.is_finite() {
+        return (-60.0, 0.0);
+    }
+    let top = (max / step).ceil() * step + step * 0.5;
+    let mut bottom = (min / step).floor() * step;
+    if top - bottom < min_span {
+        bottom = top - min_span;
+    }
+    (bottom, top)
+}
+
+/// Draws the frequency response (magnitude above, phase below) to a PNG.
+pub fn response_png(
+    path: &Path,
+    title: &str,
+    frequency_hz: &[f64],
+    magnitude_db: &[f64],
+    phase_deg: &[f64],
+    smoothing: &str,
+) -> Result<()> {
+    register_font();
+    let err = plot_error(path);
+    let root = BitMapBackend::new(path, SIZE).into_drawing_area();
+    root.fill(&WHITE).map_err(plot_error(path))?;
+    let (head, body) = root.split_vertically(50);
+    head.draw(&Text::new(
+        format!("Frequency response — {title}"),
+        (20, 14),
+        (FONT, 24).into_font(),
+    ))
+    .map_err(plot_error(path))?;
+    let (top, bottom) = body.split_vertically((body.dim_in_pixel().1 as f64 * 0.64) as u32);
+    let f1 = frequency_hz.first().copied().unwrap_or(20.0);
+    let f2 = frequency_hz.last().copied().unwrap_or(20_000.0);
+    let (lo, hi) = db_range(magnitude_db, 10.0, 40.0);
+    let smoothing_label = if smoothing == "none" {
+        "no smoothing".to_string()
+    } else {
+        format!("{smoothing}-octave smoothing")
+    };
+    draw_log_panel(
+        &top,
+        (f1, f2),
+        (lo, hi),
+        "Magnitude (dB re sweep)",
+        false,
+        &[(
+            frequency_hz,
+            magnitude_db,
+            BLUE,
+            format!("magnitude, {smoothing_label}"),
+        )],
+    )
+    .map_err(plot_error(path))?;
+    draw_log_panel(
+        &bottom,
+        (f1, f2),
+        (-180.0, 180.0),
+        "Phase (degrees, delay removed)",
+        true,
+        &[(frequency_hz, phase_deg, ORANGE, "phase".to_string())],
+    )
+    .map_err(plot_error(path))?;
+    root.present().map_err(err)?;
+    Ok(())
+}
+
+type Series<'a> = (&'a [f64], &'a [f64], RGBColor, String);
+
+/// One panel with a log-frequency x axis.
+fn draw_log_panel(
+    area: &DrawingArea<BitMapBackend<'_>, Shift>,
+    (f1, f2): (f64, f64),
+    (lo, hi): (f64, f64),
+    y_desc: &str,
+    x_desc: bool,
+    series: &[Series<'_>],
+) -> std::result::Result<(), Box<dyn std::error::Error>> {
+    let mut chart = ChartBuilder::on(area)
+        .margin_left(10)
+        .margin_right(30)
+        .margin_top(10)
+        .x_label_area_size(if x_desc { 55 } else { 30 })
+        .y_label_area_size(75)
+        .build_cartesian_2d(
+            (f1..f2)
+                .log_scale()
+                .with_key_points(log_ticks(f1, f2).0)
+                .with_light_points(log_ticks(f1, f2).1),
+            lo..hi,
+        )?;
+    let mut mesh = chart.configure_mesh();
+    mesh.x_labels(40)
+        .x_label_formatter(&log_label)
+        .y_label_formatter(&|v: &f64| format!("{v:.0}"))
+        .y_desc(y_desc)
+        .label_style((FONT, 16))
+        .axis_desc_style((FONT, 18))
+        .bold_line_style(GRID)
+        .light_line_style(GRID_MINOR);
+    if x_desc {
+        mesh.x_desc("Frequency (Hz)");
+    }
+    if (hi - lo - 360.0).abs() < 1e-9 {
+        mesh.y_labels(9);
+    }
+    mesh.draw()?;
+    for (x, y, colour, name) in series {
+        let pts = x
+            .iter()
+            .zip(y.iter())
+            .filter(|(_, v)| v.is_finite())
+            .map(|(a, b)| (*a, *b));
+        chart
+            .draw_series(LineSeries::new(pts, colour.stroke_width(2)))?
+            .label(name.clone())
+            .legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 24, y)], colour.stroke_width(3))
+            });
+    }
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::LowerRight)
+        .background_style(WHITE.mix(0.85))
+        .border_style(GRID)
+        .label_font((FONT, 16))
+        .draw()?;
+    Ok(())
+}
+
+/// Largest value per block, so a long curve keeps its peaks when drawn
+/// with about `points` points. Returns (index of block start, value).
+fn block_max(values: &[f64], points: usize) -> Vec<(usize, f64)> {
+    let block = (values.len() / points.max(1)).max(1);
+    values
+        .chunks(block)
+        .enumerate()
+        .map(|(i, c)| {
+            (
+                i * block,
+                c.iter().cloned().fold(f64::NEG_INFINITY, f64::max),
+            )
+        })
+        .collect()
+}
+
+/// Draws the impulse response near its peak (linear, normalised) above its
+/// energy-time curve in dB to a PNG. `start_s` is the time of `ir[0]`.
+pub fn impulse_png(
+    path: &Path,
+    title: &str,
+    ir: &[f64],
+    start_s: f64,
+    delay_s: f64,
+    sample_rate_hz: u32,
+) -> Result<()> {
+    register_font();
+    let fs = f64::from(sample_rate_hz);
+    let root = BitMapBackend::new(path, SIZE).into_drawing_area();
+    root.fill(&WHITE).map_err(plot_error(path))?;
+    let (head, body) = root.split_vertically(50);
+    head.draw(&Text::new(
+        format!("Impulse response — {title}"),
+        (20, 14),
+        (FONT, 24).into_font(),
+    ))
+    .map_err(plot_error(path))?;
+    let (top, bottom) = body.split_vertically(body.dim_in_pixel().1 / 2);
+    let t_ms = |i: usize| (start_s + i as f64 / fs) * 1e3;
+    let peak = ir.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(1e-300);
+    // top: from 5 ms before the peak to 60 ms after it
+    let d_ms = delay_s * 1e3;
+    let (a, b) = (d_ms - 5.0, d_ms + 60.0);
+    let draw_top = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+        let mut chart = ChartBuilder::on(&top)
+            .margin_left(10)
+            .margin_right(30)
+            .margin_top(10)
+            .x_label_area_size(50)
+            .y_label_area_size(75)
+            .build_cartesian_2d(a..b, -1.05..1.05)?;
+        chart
+            .configure_mesh()
+            .x_desc("Time after the start of the recording (ms)")
+            .y_desc("Amplitude (re peak)")
+            .x_label_formatter(&|v: &f64| format!("{v:.0}"))
+            .y_label_formatter(&|v: &f64| format!("{:.1}", (v * 10.0).round() / 10.0 + 0.0))
+            .label_style((FONT, 16))
+            .axis_desc_style((FONT, 18))
+            .bold_line_style(GRID)
+            .light_line_style(GRID_MINOR)
+            .draw()?;
+        let pts = ir
+            .iter()
+            .enumerate()
+            .map(|(i, v)| (t_ms(i), v / peak))
+            .filter(|(t, _)| *t >= a && *t <= b);
+        chart
+            .draw_series(LineSeries::new(pts, BLUE.stroke_width(1)))?
+            .label(format!("impulse response, peak at {d_ms:.3} ms"))
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], BLUE.stroke_width(3)));
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .background_style(WHITE.mix(0.85))
+            .border_style(GRID)
+            .label_font((FONT, 16))
+            .draw()?;
+        Ok(())
+    };
+    draw_top().map_err(plot_error(path))?;
+    let etc_db = etc::energy_time_curve_db(ir, -120.0);
+    let reduced = block_max(&etc_db, 2000);
+    let floor = {
+        let mut sorted: Vec<f64> = etc_db.clone();
+        sorted.sort_by(|x, y| x.total_cmp(y));
+        let median = sorted.get(sorted.len() / 2).copied().unwrap_or(-100.0);
+        ((median - 20.0) / 10.0).floor() * 10.0
+    };
+    let (ta, tb) = (t_ms(0), t_ms(ir.len().saturating_sub(1)));
+    let draw_bottom = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+        let mut chart = ChartBuilder::on(&bottom)
+            .margin_left(10)
+            .margin_right(30)
+            .margin_top(10)
+            .x_label_area_size(50)
+            .y_label_area_size(75)
+            .build_cartesian_2d(ta..tb, floor.max(-120.0)..3.0)?;
+        chart
+            .configure_mesh()
+            .x_desc("Time after the start of the recording (ms)")
+            .y_desc("Energy (dB re peak)")
+            .x_label_formatter(&|v: &f64| format!("{v:.0}"))
+            .y_label_formatter(&|v: &f64| format!("{v:.0}"))
+            .label_style((FONT, 16))
+            .axis_desc_style((FONT, 18))
+            .bold_line_style(GRID)
+            .light_line_style(GRID_MINOR)
+            .draw()?;
+        let pts = reduced.iter().map(|(i, v)| (t_ms(*i), *v));
+        chart
+            .draw_series(LineSeries::new(pts, ORANGE.stroke_width(1)))?
+            .label("energy-time curve (squared envelope)")
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], ORANGE.stroke_width(3)));
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .background_style(WHITE.mix(0.85))
+            .border_style(GRID)
+            .label_font((FONT, 16))
+            .draw()?;
+        Ok(())
+    };
+    draw_bottom().map_err(plot_error(path))?;
+    root.present().map_err(plot_error(path))?;
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn hz_labels() {
+        assert_eq!(format_hz(20.0), "20");
+        assert_eq!(format_hz(1000.0), "1k");
+        assert_eq!(format_hz(12_500.0), "12.5k");
+        assert_eq!(log_label(&200.0), "200");
+        assert_eq!(log_label(&300.0), "");
+        assert_eq!(log_label(&5000.0), "5k");
+    }
+}

@@ -1,0 +1,302 @@
+//! The session layer: turns inputs into a measurement folder on disk.
+//! All file I/O of an analysis happens here; the stages it calls are pure.
+
+pub mod folder;
+pub mod records;
+pub mod sweep_file;
+
+use std::path::{Path, PathBuf};
+
+use crate::analysis::{self, Analysis, AnalysisConfig};
+use crate::error::{Error, Result};
+use crate::plot;
+use crate::signal::sweep::SweepDesign;
+use crate::signal::wav::{self, SampleEncoding, WavData};
+
+use folder::MeasurementFolder;
+use records::{
+    FileEntry, ImpulseRecord, Manifest, ResponseRecord, Results, SCHEMA_VERSION, Settings, Source,
+};
+
+/// Everything needed to analyse one recording into a folder.
+#[derive(Debug, Clone)]
+pub struct Job {
+    /// The output folder.
+    pub out: PathBuf,
+    /// Replace derived files of an existing measurement of the same raw files.
+    pub overwrite: bool,
+    /// Draw PNG plots.
+    pub plots: bool,
+    /// The recording file's bytes, kept unchanged as recording.wav.
+    pub recording_bytes: Vec<u8>,
+    /// The decoded recording.
+    pub recording: WavData,
+    /// The analysed channel, 0-based.
+    pub channel: usize,
+    /// The sweep file's bytes, kept unchanged as stimulus.wav.
+    pub stimulus_bytes: Vec<u8>,
+    /// The decoded sweep.
+    pub stimulus: WavData,
+    /// The sweep's design.
+    pub design: SweepDesign,
+    /// Analysis settings.
+    pub config: AnalysisConfig,
+    /// Where the recording came from.
+    pub source: Source,
+    /// A short title for plots.
+    pub title: String,
+    /// The command line, for the manifest.
+    pub command_line: Vec<String>,
+}
+
+/// What a finished job wrote.
+#[derive(Debug, Clone)]
+pub struct Outcome {
+    /// The analysis.
+    pub analysis: Analysis,
+    /// Files written, relative to the folder.
+    pub files: Vec<String>,
+}
+
+/// Checks the inputs of a job before any file is written: sample rates,
+/// the channel, the sweep file against its description.
+pub fn check_inputs(job: &Job) -> Result<Vec<String>> {
+    let mut warnings = Vec::new();
+    let rec = &job.recording;
+    let stim = &job.stimulus;
+    let rate = job.design.params.sample_rate_hz;
+    if stim.sample_rate_hz != rate {
+        return Err(Error::input(format!(
+            "the sweep file is at {} Hz but its parameters say {rate} Hz; use the sweep file that gliss made with them",
+            stim.sample_rate_hz
+        )));
+    }
+    if rec.sample_rate_hz != stim.sample_rate_hz {
+        return Err(Error::input(format!(
+            "the recording is at {} Hz but the sweep at {} Hz; record at the sweep's rate, or make a sweep with --rate {}",
+            rec.sample_rate_hz, stim.sample_rate_hz, rec.sample_rate_hz
+        )));
+    }
+    if job.channel >= rec.channels.len() {
+        return Err(Error::input(format!(
+            "--channel {} does not exist: the recording has {} channel{}",
+            job.channel + 1,
+            rec.channels.len(),
+            if rec.channels.len() == 1 { "" } else { "s" }
+        )));
+    }
+    if stim.channels.len() != 1 {
+        return Err(Error::input(format!(
+            "the sweep file has {} channels; a gliss sweep is mono, give the file gliss sweep wrote",
+            stim.channels.len()
+        )));
+    }
+    // the file must hold the sweep its parameters describe (within its
+    // quantisation step)
+    let want = job.design.generate();
+    let step = match stim.encoding {
+        SampleEncoding::Int(b) => 1.0 / f64::from(1u32 << (b - 1)),
+        SampleEncoding::Float => 1e-6,
+    };
+    let got = &stim.channels[0];
+    let n = want.len().min(got.len());
+    let worst = want[..n]
+        .iter()
+        .zip(&got[..n])
+        .map(|(a, b)| (a - b).abs())
+        .fold(0.0, f64::max);
+    if worst > 1.5 * step || got.len() < job.design.sweep_samples {
+        warnings.push(
+            "the sweep file differs from the sweep its .json describes; the analysis divides by the file as it is, but check that it is the file that was played".to_string(),
+        );
+    }
+    Ok(warnings)
+}
+
+/// Runs a job: checks, analyses, then writes the folder. Nothing is
+/// written when the inputs or the folder are refused.
+pub fn run(job: &Job) -> Result<Outcome> {
+    let mut extra = check_inputs(job)?;
+    let folder = MeasurementFolder::check(
+        &job.out,
+        job.overwrite,
+        &[
+            ("stimulus.wav", &job.stimulus_bytes),
+            ("recording.wav", &job.recording_bytes),
+        ],
+    )?;
+    let mut analysis = analysis::analyze(
+        &job.recording.channels[job.channel],
+        &job.stimulus.channels[0],
+        &job.design,
+        &job.config,
+    )?;
+    extra.append(&mut analysis.warnings);
+    analysis.warnings = extra;
+    write_folder(job, &folder, &analysis)?;
+    let mut files: Vec<String> = vec![
+        "manifest.json",
+        "stimulus.wav",
+        "recording.wav",
+        "impulse.wav",
+        "results.json",
+        "response.csv",
+    ]
+    .into_iter()
+    .map(String::from)
+    .collect();
+    if job.plots {
+        files.push("plots/response.png".into());
+        files.push("plots/impulse.png".into());
+    }
+    Ok(Outcome { analysis, files })
+}
+
+fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<()> {
+    folder.create()?;
+    let mut files = Vec::new();
+    // raw files first: they are the measurement
+    for (name, bytes) in [
+        ("stimulus.wav", &job.stimulus_bytes),
+        ("recording.wav", &job.recording_bytes),
+    ] {
+        let sha256 = folder.write_raw(name, bytes)?;
+        files.push(FileEntry {
+            name: name.into(),
+            role: "raw".into(),
+            sha256,
+        });
+    }
+    let mut derived = |name: &str, bytes: Vec<u8>| -> Result<()> {
+        folder.write_derived(name, &bytes)?;
+        files.push(FileEntry {
+            name: name.into(),
+            role: "derived".into(),
+            sha256: folder::sha256_hex(&bytes),
+        });
+        Ok(())
+    };
+    derived(
+        "impulse.wav",
+        wav::encode_wav(
+            &[&a.impulse.samples],
+            a.sample_rate_hz,
+            SampleEncoding::Float,
+        ),
+    )?;
+    let results = results_record(a);
+    derived("results.json", to_json(&results)?)?;
+    derived("response.csv", response_csv(&results.response)?)?;
+    if job.plots {
+        for rel in ["plots/response.png", "plots/impulse.png"] {
+            let tmp = folder.temp_path(rel);
+            if rel.ends_with("response.png") {
+                plot::response_png(
+                    &tmp,
+                    &job.title,
+                    &a.response.frequency_hz,
+                    &a.response.magnitude_db,
+                    &a.response.phase_deg,
+                    &a.response.smoothing,
+                )?;
+            } else {
+                plot::impulse_png(
+                    &tmp,
+                    &job.title,
+                    &a.impulse.samples,
+                    a.impulse.start_s,
+                    a.delay_s,
+                    a.sample_rate_hz,
+                )?;
+            }
+            let bytes = std::fs::read(&tmp).map_err(|e| Error::io("read", &tmp, &e))?;
+            folder.commit(&tmp, rel)?;
+            files.push(FileEntry {
+                name: rel.into(),
+                role: "derived".into(),
+                sha256: folder::sha256_hex(&bytes),
+            });
+        }
+    }
+    let manifest = Manifest {
+        schema_version: SCHEMA_VERSION,
+        tool: "gliss".into(),
+        tool_version: env!("CARGO_PKG_VERSION").into(),
+        created_utc: humantime::format_rfc3339_seconds(std::time::SystemTime::now()).to_string(),
+        complete: true,
+        command_line: job.command_line.clone(),
+        source: job.source.clone(),
+        sample_rate_hz: a.sample_rate_hz,
+        channel: job.channel + 1,
+        recording_channels: job.recording.channels.len(),
+        recording_encoding: job.recording.encoding.describe(),
+        sweep: job.design.clone(),
+        settings: Settings {
+            smoothing: job.config.smoothing.label(),
+            plots: job.plots,
+        },
+        files,
+    };
+    folder.write_derived("manifest.json", &to_json(&manifest)?)
+}
+
+/// results.json of an analysis.
+pub fn results_record(a: &Analysis) -> Results {
+    Results {
+        schema_version: SCHEMA_VERSION,
+        sample_rate_hz: a.sample_rate_hz,
+        delay_s: a.delay_s,
+        delay_reference:
+            "first sample of the recording; includes any latency between playback and recording"
+                .into(),
+        peak_dbfs: a.peak_dbfs,
+        peak_to_noise_db: a.peak_to_noise_db,
+        impulse: ImpulseRecord {
+            file: "impulse.wav".into(),
+            start_s: a.impulse.start_s,
+            samples: a.impulse.samples.len(),
+        },
+        response: ResponseRecord {
+            smoothing: a.response.smoothing.clone(),
+            magnitude_reference: "0 dB = the recording equals the sweep as written (a wire)".into(),
+            frequency_hz: a.response.frequency_hz.clone(),
+            magnitude_db: a.response.magnitude_db.clone(),
+            phase_deg: a.response.phase_deg.clone(),
+        },
+        warnings: a.warnings.clone(),
+    }
+}
+
+/// Pretty JSON with a final newline.
+pub fn to_json<T: serde::Serialize>(v: &T) -> Result<Vec<u8>> {
+    let mut s = serde_json::to_vec_pretty(v)
+        .map_err(|e| Error::input(format!("could not encode JSON: {e}")))?;
+    s.push(b'\n');
+    Ok(s)
+}
+
+/// response.csv: header, then frequency_hz,magnitude_db,phase_deg.
+pub fn response_csv(r: &ResponseRecord) -> Result<Vec<u8>> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let err = |e: csv::Error| Error::input(format!("could not encode CSV: {e}"));
+    w.write_record(["frequency_hz", "magnitude_db", "phase_deg"])
+        .map_err(err)?;
+    for i in 0..r.frequency_hz.len() {
+        w.write_record([
+            format!("{:.4}", r.frequency_hz[i]),
+            format!("{:.4}", r.magnitude_db[i]),
+            format!("{:.3}", r.phase_deg[i]),
+        ])
+        .map_err(err)?;
+    }
+    w.into_inner()
+        .map_err(|e| Error::input(format!("could not encode CSV: {e}")))
+}
+
+/// Reads a measurement's results.json.
+pub fn read_results(dir: &Path) -> Result<Results> {
+    let p = dir.join("results.json");
+    let t = std::fs::read_to_string(&p).map_err(|e| Error::io("read", &p, &e))?;
+    serde_json::from_str(&t)
+        .map_err(|e| Error::input(format!("{} is not a gliss results file: {e}", p.display())))
+}

@@ -1,0 +1,126 @@
+//! The files of a measurement folder as data: results.json and
+//! manifest.json (schema version 1; fields are added, never renamed).
+
+use serde::{Deserialize, Serialize};
+
+use crate::signal::sweep::SweepDesign;
+
+/// Version of results.json and manifest.json.
+pub const SCHEMA_VERSION: u32 = 1;
+
+/// results.json.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Results {
+    /// Layout version.
+    pub schema_version: u32,
+    /// Sample rate in Hz.
+    pub sample_rate_hz: u32,
+    /// Arrival of the impulse response peak after the recording's start, s.
+    pub delay_s: f64,
+    /// What `delay_s` is measured from, in words.
+    pub delay_reference: String,
+    /// Peak level of the analysed recording channel, dBFS.
+    pub peak_dbfs: f64,
+    /// Peak of the impulse response above its noise, dB.
+    pub peak_to_noise_db: f64,
+    /// Where the impulse response is and how it is placed in time.
+    pub impulse: ImpulseRecord,
+    /// The frequency response.
+    pub response: ResponseRecord,
+    /// Warnings, in plain words.
+    pub warnings: Vec<String>,
+}
+
+/// The impulse response file.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ImpulseRecord {
+    /// File name in the folder ("impulse.wav").
+    pub file: String,
+    /// Time of its first sample after the recording's start, s.
+    pub start_s: f64,
+    /// Number of samples.
+    pub samples: usize,
+}
+
+/// The frequency response on the log grid.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ResponseRecord {
+    /// "1/6", …, or "none".
+    pub smoothing: String,
+    /// What 0 dB means.
+    pub magnitude_reference: String,
+    /// Grid frequencies, Hz (48 per octave).
+    pub frequency_hz: Vec<f64>,
+    /// Magnitude, dB.
+    pub magnitude_db: Vec<f64>,
+    /// Phase with the delay `delay_s` removed, degrees in (−180, 180].
+    pub phase_deg: Vec<f64>,
+}
+
+/// manifest.json: what was done.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Manifest {
+    /// Layout version.
+    pub schema_version: u32,
+    /// "gliss".
+    pub tool: String,
+    /// Version of gliss that wrote the folder.
+    pub tool_version: String,
+    /// When the folder was written (UTC, RFC 3339).
+    pub created_utc: String,
+    /// False when the measurement was interrupted.
+    pub complete: bool,
+    /// The command line that made it.
+    pub command_line: Vec<String>,
+    /// Where the recording came from.
+    pub source: Source,
+    /// Sample rate in Hz.
+    pub sample_rate_hz: u32,
+    /// The analysed channel of recording.wav, 1-based.
+    pub channel: usize,
+    /// Channels in recording.wav.
+    pub recording_channels: usize,
+    /// Sample encoding of recording.wav.
+    pub recording_encoding: String,
+    /// The sweep.
+    pub sweep: SweepDesign,
+    /// Analysis settings.
+    pub settings: Settings,
+    /// Every file of the folder with its role and SHA-256.
+    pub files: Vec<FileEntry>,
+}
+
+/// Where the recording came from.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Source {
+    /// "file" (gliss analyze) or "virtual" (gliss demo).
+    pub kind: String,
+    /// A description of the device or the input files.
+    pub description: String,
+    /// The recording file given to analyze, as given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub recording_path: Option<String>,
+    /// The sweep file given to analyze, as given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sweep_path: Option<String>,
+}
+
+/// Analysis settings recorded in the manifest.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Settings {
+    /// Smoothing of the response.
+    pub smoothing: String,
+    /// Whether plots were drawn.
+    pub plots: bool,
+}
+
+/// One file of the folder.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FileEntry {
+    /// Path inside the folder.
+    pub name: String,
+    /// "raw" (never modified) or "derived" (remade by analysis).
+    pub role: String,
+    /// SHA-256 of its bytes.
+    pub sha256: String,
+}

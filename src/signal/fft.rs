@@ -1,0 +1,161 @@
+//! FFT helpers over realfft: cached plans, sizes that transform fast, and
+//! linear convolution.
+
+use std::cell::RefCell;
+use std::sync::Arc;
+
+use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
+use rustfft::num_complex::Complex;
+
+thread_local! {
+    static PLANNER: RefCell<RealFftPlanner<f64>> = RefCell::new(RealFftPlanner::new());
+}
+
+/// A forward real FFT plan of length n (cached per thread by realfft).
+pub fn forward_plan(n: usize) -> Arc<dyn RealToComplex<f64>> {
+    PLANNER.with(|p| p.borrow_mut().plan_fft_forward(n))
+}
+
+/// An inverse real FFT plan of length n.
+pub fn inverse_plan(n: usize) -> Arc<dyn ComplexToReal<f64>> {
+    PLANNER.with(|p| p.borrow_mut().plan_fft_inverse(n))
+}
+
+/// The smallest even n ≥ `min` whose only prime factors are 2, 3 and 5:
+/// such lengths transform nearly as fast as powers of two and waste less
+/// zero padding.
+pub fn fast_len(min: usize) -> usize {
+    let mut n = min.max(2);
+    loop {
+        if n % 2 == 0 {
+            let mut m = n;
+            for p in [2, 3, 5] {
+                while m % p == 0 {
+                    m /= p;
+                }
+            }
+            if m == 1 {
+                return n;
+            }
+        }
+        n += 1;
+    }
+}
+
+/// Spectrum (n/2 + 1 bins) of `x` zero-padded (or cut) to length n.
+/// Unnormalised: a unit impulse gives 1 in every bin.
+pub fn rfft(x: &[f64], n: usize) -> Vec<Complex<f64>> {
+    let plan = forward_plan(n);
+    let mut input = plan.make_input_vec();
+    let m = x.len().min(n);
+    input[..m].copy_from_slice(&x[..m]);
+    let mut out = plan.make_output_vec();
+    let mut scratch = plan.make_scratch_vec();
+    plan.process_with_scratch(&mut input, &mut out, &mut scratch)
+        .expect("buffer lengths come from the plan");
+    out
+}
+
+/// Inverse of [`rfft`], normalised by 1/n so that irfft(rfft(x)) = x.
+/// Clears the imaginary parts of the DC and Nyquist bins first, as realfft
+/// requires.
+pub fn irfft(spectrum: &mut [Complex<f64>], n: usize) -> Vec<f64> {
+    let plan = inverse_plan(n);
+    assert_eq!(spectrum.len(), n / 2 + 1, "spectrum length must be n/2 + 1");
+    spectrum[0].im = 0.0;
+    if n % 2 == 0 {
+        spectrum[n / 2].im = 0.0;
+    }
+    let mut out = plan.make_output_vec();
+    let mut scratch = plan.make_scratch_vec();
+    plan.process_with_scratch(spectrum, &mut out, &mut scratch)
+        .expect("buffer lengths come from the plan");
+    let scale = 1.0 / n as f64;
+    for v in &mut out {
+        *v *= scale;
+    }
+    out
+}
+
+/// Linear convolution of `a` and `b` (length a + b − 1) by FFT.
+pub fn convolve(a: &[f64], b: &[f64]) -> Vec<f64> {
+    if a.is_empty() || b.is_empty() {
+        return Vec::new();
+    }
+    let len = a.len() + b.len() - 1;
+    let n = fast_len(len);
+    let mut sa = rfft(a, n);
+    let sb = rfft(b, n);
+    for (x, y) in sa.iter_mut().zip(&sb) {
+        *x *= *y;
+    }
+    let mut out = irfft(&mut sa, n);
+    out.truncate(len);
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn lcg(seed: &mut u64) -> f64 {
+        // deterministic test input, common practice
+        *seed = seed
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        ((*seed >> 11) as f64 / (1u64 << 53) as f64) - 0.5
+    }
+
+    #[test]
+    fn fast_len_has_small_factors() {
+        assert_eq!(fast_len(1), 2);
+        assert_eq!(fast_len(7), 8);
+        assert_eq!(fast_len(11), 12);
+        assert_eq!(fast_len(384_000), 384_000);
+        for n in [97, 1001, 65_537, 480_001] {
+            let f = fast_len(n);
+            assert!(f >= n && f < n + n / 8 + 8);
+        }
+    }
+
+    #[test]
+    fn rfft_matches_naive_dft() {
+        // naive O(n²) DFT as the reference (common practice)
+        let mut s = 1;
+        for n in [2usize, 6, 30, 64, 90] {
+            let x: Vec<f64> = (0..n).map(|_| lcg(&mut s)).collect();
+            let fast = rfft(&x, n);
+            for (k, got) in fast.iter().enumerate() {
+                let mut want = Complex::new(0.0, 0.0);
+                for (t, &v) in x.iter().enumerate() {
+                    let a = -2.0 * std::f64::consts::PI * (k * t) as f64 / n as f64;
+                    want += Complex::new(a.cos(), a.sin()) * v;
+                }
+                assert!((got - want).norm() < 1e-9, "n={n} k={k}");
+            }
+            let mut spec = fast.clone();
+            let back = irfft(&mut spec, n);
+            for (a, b) in x.iter().zip(&back) {
+                assert!((a - b).abs() < 1e-12);
+            }
+        }
+    }
+
+    #[test]
+    fn convolve_matches_direct_sum() {
+        let mut s = 7;
+        let a: Vec<f64> = (0..257).map(|_| lcg(&mut s)).collect();
+        let b: Vec<f64> = (0..33).map(|_| lcg(&mut s)).collect();
+        let fast = convolve(&a, &b);
+        assert_eq!(fast.len(), 289);
+        for (n, got) in fast.iter().enumerate() {
+            let mut want = 0.0;
+            for (k, &bk) in b.iter().enumerate() {
+                if n >= k && n - k < a.len() {
+                    want += a[n - k] * bk;
+                }
+            }
+            assert!((got - want).abs() < 1e-12);
+        }
+    }
+}
