@@ -185,8 +185,9 @@ pub fn analyze(
     }
 
     let grid = smoothing::log_grid(f1, f2);
-    let (spec, df) = response::delay_free_spectrum(&ir, start as f64, delay_samples, fs, f1);
-    let response = response::on_grid(&spec, df, &grid, config.smoothing);
+    let (mut spec, df) = response::delay_free_spectrum(&ir, start as f64, delay_samples, fs, f1);
+    deconv::remove_low_edge(&mut spec, df, f1);
+    let response = response::on_grid(&spec, df, &grid, config.smoothing, (f1, f2));
 
     Ok(Analysis {
         sample_rate_hz: design.params.sample_rate_hz,

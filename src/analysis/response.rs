@@ -50,12 +50,14 @@ pub fn delay_free_spectrum(
 
 /// Magnitude and phase at each grid frequency from a delay-free spectrum
 /// (bins `df` apart): power averaged over the smoothing band, phase of the
-/// complex average over the same band.
+/// complex average over the same band. The smoothing band is cut to
+/// `band` (the measured band), so values from outside it never leak in.
 pub fn on_grid(
     spec: &[Complex<f64>],
     df: f64,
     grid: &[f64],
     smoothing: Smoothing,
+    band: (f64, f64),
 ) -> FrequencyResponse {
     let power = PiecewiseIntegral::new(spec.iter().map(|c| c.norm_sqr()).collect(), df);
     let re = PiecewiseIntegral::new(spec.iter().map(|c| c.re).collect(), df);
@@ -64,6 +66,7 @@ pub fn on_grid(
     let mut phase_deg = Vec::with_capacity(grid.len());
     for &f in grid {
         let (lo, hi) = smoothing.band(f);
+        let (lo, hi) = (lo.max(band.0), hi.min(band.1));
         let p = power.mean(lo, hi);
         magnitude_db.push(10.0 * p.max(1e-30).log10());
         let z = Complex::new(re.mean(lo, hi), im.mean(lo, hi));
@@ -96,7 +99,7 @@ mod tests {
         ir[100] = 1.0;
         let grid = log_grid(20.0, 20_000.0);
         let (spec, df) = delay_free_spectrum(&ir, -50.0, 50.0, fs, 20.0);
-        let r = on_grid(&spec, df, &grid, Smoothing::None);
+        let r = on_grid(&spec, df, &grid, Smoothing::None, (1.0, 24_000.0));
         for (m, p) in r.magnitude_db.iter().zip(&r.phase_deg) {
             assert!(m.abs() < 1e-9);
             assert!(p.abs() < 1e-6);
@@ -111,7 +114,7 @@ mod tests {
         ir[10] = 1.0;
         let grid = log_grid(100.0, 1000.0);
         let (spec, df) = delay_free_spectrum(&ir, 0.0, 0.0, fs, 100.0);
-        let r = on_grid(&spec, df, &grid, Smoothing::None);
+        let r = on_grid(&spec, df, &grid, Smoothing::None, (1.0, 24_000.0));
         for (f, p) in grid.iter().zip(&r.phase_deg) {
             let want = wrap_deg(-360.0 * f * 10.0 / fs);
             let d = wrap_deg(p - want);

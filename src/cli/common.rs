@@ -12,19 +12,39 @@ use crate::signal::sweep::{SweepDesign, SweepParams};
 #[derive(Debug, Clone, ClapArgs)]
 pub struct SweepArgs {
     /// Start frequency of the sweep in Hz.
-    #[arg(long, value_name = "HZ", default_value_t = 20.0)]
+    #[arg(
+        long,
+        value_name = "HZ",
+        default_value_t = 20.0,
+        allow_hyphen_values = true
+    )]
     pub start: f64,
     /// End frequency of the sweep in Hz (at most half the sample rate).
-    #[arg(long, value_name = "HZ", default_value_t = 20_000.0)]
+    #[arg(
+        long,
+        value_name = "HZ",
+        default_value_t = 20_000.0,
+        allow_hyphen_values = true
+    )]
     pub end: f64,
     /// Length of the sweep in seconds; rounded slightly so that harmonic
     /// responses stay phase-aligned. Doubling it gains about 3 dB of
     /// signal-to-noise.
-    #[arg(long, value_name = "S", default_value_t = 5.0)]
+    #[arg(
+        long,
+        value_name = "S",
+        default_value_t = 5.0,
+        allow_hyphen_values = true
+    )]
     pub length: f64,
     /// Silence after the sweep in seconds, long enough for the decay of the
     /// room or device (at least its reverberation time).
-    #[arg(long, value_name = "S", default_value_t = 2.0)]
+    #[arg(
+        long,
+        value_name = "S",
+        default_value_t = 2.0,
+        allow_hyphen_values = true
+    )]
     pub tail: f64,
     /// Sample rate in Hz.
     #[arg(long, value_name = "HZ", default_value_t = 48_000)]

@@ -57,7 +57,8 @@ pub fn fft_len(rec_len: usize, stim_len: usize) -> usize {
 }
 
 /// The spectrum of the inverse filter C(f) = X*/(|X|² + ε(f)) for a
-/// stimulus, on `n`-point FFT bins, for the sweep band [f1, f2].
+/// stimulus, on `n`-point FFT bins, for the sweep band [f1, f2], times the
+/// band limits [`low_edge`] and [`top_edge`].
 pub fn inverse_filter(stimulus: &[f64], n: usize, fs: f64, f1: f64, f2: f64) -> Vec<Complex<f64>> {
     let mut x = fft::rfft(stimulus, n);
     let df = fs / n as f64;
@@ -71,11 +72,73 @@ pub fn inverse_filter(stimulus: &[f64], n: usize, fs: f64, f1: f64, f2: f64) -> 
         .map(|(_, c)| c.norm_sqr())
         .fold(0.0, f64::max);
     let peak = if peak > 0.0 { peak } else { 1.0 };
+    let nyquist = fs / 2.0;
     for (k, c) in x.iter_mut().enumerate() {
-        let eps = peak * regularisation(k as f64 * df, f1, f2);
-        *c = c.conj() / (c.norm_sqr() + eps);
+        let f = k as f64 * df;
+        let eps = peak * regularisation(f, f1, f2);
+        *c = c.conj() / (c.norm_sqr() + eps) * low_edge(f, f1) * top_edge(f, f2, nyquist);
     }
     x
+}
+
+/// Order of the causal band limit below the sweep band.
+pub const LOW_EDGE_ORDER: usize = 8;
+
+/// The causal band limit applied at the bottom of the band: an analog
+/// Butterworth high-pass of order [`LOW_EDGE_ORDER`] with its −3 dB point
+/// at f1, evaluated on the FFT bins. Being minimum-phase, its impulse
+/// response lies after the peak, inside the analysis window; the frequency
+/// response divides it out again (see `analysis::response`), so in band it
+/// changes nothing.
+///
+/// Why it is there: without it the response would end where the
+/// stimulus' power sinks under ε — abruptly, just below f1 — and a
+/// zero-phase edge rings on both sides of the peak; the analysis window
+/// would cut the ringing before the peak and bend the response near f1
+/// by tenths of a dB. This filter is already 24 dB down half an octave
+/// below f1, where that edge lies.
+pub fn low_edge(f: f64, f1: f64) -> Complex<f64> {
+    // H(s) = Π s/(ωc − p_k·s) with the left-half-plane Butterworth poles
+    // p_k of the unit low-pass (the low-pass-to-high-pass substitution
+    // s/ωc → ωc/s); |H(jω)|² = 1/(1 + (ωc/ω)^(2N)).
+    if f <= 0.0 {
+        return Complex::new(0.0, 0.0);
+    }
+    let n = LOW_EDGE_ORDER as f64;
+    let s = Complex::new(0.0, f / f1); // normalised to ωc = 1
+    let mut h = Complex::new(1.0, 0.0);
+    for k in 0..LOW_EDGE_ORDER {
+        let angle = std::f64::consts::PI * (2.0 * k as f64 + n + 1.0) / (2.0 * n);
+        let p = Complex::from_polar(1.0, angle);
+        h *= s / (1.0 - p * s);
+    }
+    h
+}
+
+/// Divides [`low_edge`] out of a spectrum on bins `df` apart, from a
+/// quarter octave below f1 up (below that the band limit is left in: it
+/// is outside the band and dividing would only raise noise).
+pub fn remove_low_edge(spectrum: &mut [Complex<f64>], df: f64, f1: f64) {
+    let from = f1 * 2f64.powf(-0.25);
+    for (k, c) in spectrum.iter_mut().enumerate() {
+        let f = k as f64 * df;
+        if f >= from {
+            *c /= low_edge(f, f1);
+        }
+    }
+}
+
+/// The zero-phase band limit at the top of the band: 1 up to f2, then a
+/// raised cosine on a linear frequency axis to 0 at the Nyquist frequency
+/// (1 everywhere when f2 is the Nyquist frequency). Kilohertz wide, it
+/// rings for well under a millisecond.
+pub fn top_edge(f: f64, f2: f64, nyquist: f64) -> f64 {
+    if f <= f2 || f2 >= nyquist {
+        1.0
+    } else {
+        let u = ((nyquist - f) / (nyquist - f2)).clamp(0.0, 1.0);
+        0.5 - 0.5 * (std::f64::consts::PI * u).cos()
+    }
 }
 
 /// Circular impulse response of length `n` from a recording and the
@@ -113,6 +176,19 @@ mod tests {
     }
 
     #[test]
+    fn low_edge_is_a_butterworth_highpass() {
+        // closed form: |H|² = 1/(1 + (f1/f)^(2N)); −3.01 dB at f1
+        for f in [2.0, 10.0, 14.0, 20.0, 25.0, 40.0, 1000.0] {
+            let want = 1.0 / (1.0 + (20.0f64 / f).powi(2 * LOW_EDGE_ORDER as i32));
+            let got = low_edge(f, 20.0).norm_sqr();
+            assert!((got / want - 1.0).abs() < 1e-9, "{f}: {got} vs {want}");
+        }
+        // and it is causal: its poles are in the left half plane, so its
+        // phase at high frequency tends to 0
+        assert!(low_edge(20_000.0, 20.0).arg().abs() < 0.01);
+    }
+
+    #[test]
     fn delayed_scaled_copy_gives_a_scaled_delayed_impulse() {
         // closed form: y[n] = g·x[n − k] ⇒ h = g·δ[n − k] inside the band
         let d = SweepParams {
@@ -146,7 +222,8 @@ mod tests {
         for (i, c) in spec.iter().enumerate() {
             let f = i as f64 * df;
             if (200.0..8_000.0).contains(&f) {
-                let want = Complex::from_polar(g, -std::f64::consts::TAU * f * k as f64 / d.fs());
+                let want = Complex::from_polar(g, -std::f64::consts::TAU * f * k as f64 / d.fs())
+                    * low_edge(f, 100.0);
                 assert!((c - want).norm() < 1e-4 * g, "f={f}");
             }
         }

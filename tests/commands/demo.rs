@@ -1,0 +1,147 @@
+//! `gliss demo`: the whole pipeline on the virtual system.
+
+use sha2::{Digest, Sha256};
+
+use crate::util::*;
+
+#[test]
+fn the_demo_writes_a_complete_measurement_folder() {
+    let t = tempfile::tempdir().unwrap();
+    let out = ok(
+        t.path(),
+        &["demo", "--out", "room", "--length", "2", "--tail", "1"],
+    );
+    assert!(
+        out.contains("SIMULATED"),
+        "the demo says it is simulated: {out}"
+    );
+    let dir = t.path().join("room");
+    for f in [
+        "manifest.json",
+        "stimulus.wav",
+        "recording.wav",
+        "impulse.wav",
+        "results.json",
+        "response.csv",
+        "plots/response.png",
+        "plots/impulse.png",
+    ] {
+        assert!(dir.join(f).is_file(), "{f} missing");
+    }
+    // the PNGs are PNGs
+    for p in ["plots/response.png", "plots/impulse.png"] {
+        let b = std::fs::read(dir.join(p)).unwrap();
+        assert_eq!(&b[..8], b"\x89PNG\r\n\x1a\n");
+    }
+    // every file in the manifest has the SHA-256 it claims (FIPS 180-4)
+    let m = json(&dir.join("manifest.json"));
+    assert_eq!(m["complete"], true);
+    assert_eq!(m["source"]["kind"], "virtual");
+    let files = m["files"].as_array().unwrap();
+    // every file but the manifest itself
+    assert_eq!(files.len(), 7);
+    for f in files {
+        let bytes = std::fs::read(dir.join(f["name"].as_str().unwrap())).unwrap();
+        let hex: String = Sha256::digest(&bytes)
+            .iter()
+            .map(|b| format!("{b:02x}"))
+            .collect();
+        assert_eq!(f["sha256"].as_str().unwrap(), hex, "{}", f["name"]);
+    }
+    assert!(
+        files
+            .iter()
+            .any(|f| f["name"] == "recording.wav" && f["role"] == "raw")
+    );
+    // results on the schema of DESIGN.md
+    let r = json(&dir.join("results.json"));
+    assert_eq!(r["schema_version"], 1);
+    assert_eq!(r["sample_rate_hz"], 48_000);
+    assert_eq!(r["response"]["smoothing"], "1/6");
+    let f = numbers(&r["response"]["frequency_hz"]);
+    assert_eq!(f.len(), numbers(&r["response"]["magnitude_db"]).len());
+    assert_eq!(f.len(), numbers(&r["response"]["phase_deg"]).len());
+    // 48 points per octave over the band
+    assert!((f[48] / f[0] - 2.0).abs() < 1e-9);
+    // the virtual delay: 293 samples of latency plus 1.2104 m of flight
+    // (1 m ≈ 2.915 ms at 343 m/s, common practice) and the loudspeaker's
+    // own group delay, a fraction of a millisecond
+    let flight = (1.2f64.powi(2) + 0.15f64.powi(2) + 0.05f64.powi(2)).sqrt() / 343.0;
+    let delay = r["delay_s"].as_f64().unwrap();
+    let expected = 293.0 / 48_000.0 + flight;
+    assert!(
+        delay > expected && delay < expected + 0.001,
+        "delay {delay}, expected about {expected}"
+    );
+    // response.csv: header then one row per grid point
+    let csv = std::fs::read_to_string(dir.join("response.csv")).unwrap();
+    let mut lines = csv.lines();
+    assert_eq!(lines.next(), Some("frequency_hz,magnitude_db,phase_deg"));
+    assert_eq!(lines.count(), f.len());
+    // impulse.wav is 32-bit float
+    let spec = hound::WavReader::open(dir.join("impulse.wav"))
+        .unwrap()
+        .spec();
+    assert_eq!(spec.sample_format, hound::SampleFormat::Float);
+}
+
+#[test]
+fn the_demo_recording_reanalyses_to_the_same_result() {
+    // re-analysis of a folder's raw files with analyze gives the same
+    // response as the demo computed
+    let t = tempfile::tempdir().unwrap();
+    ok(
+        t.path(),
+        &[
+            "demo",
+            "--out",
+            "d",
+            "--length",
+            "1",
+            "--tail",
+            "1",
+            "--no-plots",
+        ],
+    );
+    let out = ok(
+        t.path(),
+        &[
+            "analyze",
+            "d/recording.wav",
+            "--sweep",
+            "d/stimulus.wav",
+            "--out",
+            "again",
+            "--no-plots",
+        ],
+    );
+    assert!(out.contains("again"));
+    let a = json(&t.path().join("d/results.json"));
+    let b = json(&t.path().join("again/results.json"));
+    assert_eq!(a["response"]["magnitude_db"], b["response"]["magnitude_db"]);
+    assert_eq!(a["delay_s"], b["delay_s"]);
+}
+
+#[test]
+fn the_demo_refuses_to_overwrite_a_measurement() {
+    let t = tempfile::tempdir().unwrap();
+    ok(
+        t.path(),
+        &[
+            "demo",
+            "--out",
+            "d",
+            "--length",
+            "1",
+            "--tail",
+            "0.5",
+            "--no-plots",
+        ],
+    );
+    let before = snapshot(t.path());
+    refused(
+        t.path(),
+        &["demo", "--out", "d", "--length", "1", "--tail", "0.5"],
+    );
+    assert_eq!(snapshot(t.path()), before);
+}

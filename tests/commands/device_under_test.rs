@@ -1,0 +1,138 @@
+//! A known filter as the device under test: an Audio EQ Cookbook peaking
+//! biquad (R. Bristow-Johnson) after a 2nd-order Butterworth high-pass,
+//! run over the sweep here in the test, by its own difference equation.
+//! The measured response must match the closed form H(e^{jω}) = B(z)/A(z).
+
+use rustfft::num_complex::Complex;
+
+use crate::util::*;
+
+const FS: f64 = 48_000.0;
+
+/// Coefficients (b0, b1, b2, a1, a2), normalised by a0, as in the Cookbook.
+type Coeffs = [f64; 5];
+
+fn peaking(f0: f64, q: f64, gain_db: f64) -> Coeffs {
+    let a = 10f64.powf(gain_db / 40.0);
+    let w0 = std::f64::consts::TAU * f0 / FS;
+    let alpha = w0.sin() / (2.0 * q);
+    let a0 = 1.0 + alpha / a;
+    [
+        (1.0 + alpha * a) / a0,
+        -2.0 * w0.cos() / a0,
+        (1.0 - alpha * a) / a0,
+        -2.0 * w0.cos() / a0,
+        (1.0 - alpha / a) / a0,
+    ]
+}
+
+fn butterworth_highpass(f0: f64) -> Coeffs {
+    let w0 = std::f64::consts::TAU * f0 / FS;
+    let alpha = w0.sin() / (2.0 * std::f64::consts::FRAC_1_SQRT_2);
+    let c = w0.cos();
+    let a0 = 1.0 + alpha;
+    [
+        (1.0 + c) / 2.0 / a0,
+        -(1.0 + c) / a0,
+        (1.0 + c) / 2.0 / a0,
+        -2.0 * c / a0,
+        (1.0 - alpha) / a0,
+    ]
+}
+
+/// Direct form I: y[n] = b0x[n] + b1x[n−1] + b2x[n−2] − a1y[n−1] − a2y[n−2].
+fn filter(c: &Coeffs, x: &[f64]) -> Vec<f64> {
+    let mut y = vec![0.0; x.len()];
+    for n in 0..x.len() {
+        let x1 = if n >= 1 { x[n - 1] } else { 0.0 };
+        let x2 = if n >= 2 { x[n - 2] } else { 0.0 };
+        let y1 = if n >= 1 { y[n - 1] } else { 0.0 };
+        let y2 = if n >= 2 { y[n - 2] } else { 0.0 };
+        y[n] = c[0] * x[n] + c[1] * x1 + c[2] * x2 - c[3] * y1 - c[4] * y2;
+    }
+    y
+}
+
+fn response(c: &Coeffs, f: f64) -> Complex<f64> {
+    let z1 = Complex::from_polar(1.0, -std::f64::consts::TAU * f / FS);
+    (c[0] + z1 * c[1] + z1 * z1 * c[2]) / (1.0 + z1 * c[3] + z1 * z1 * c[4])
+}
+
+#[test]
+fn a_peaking_filter_after_a_highpass_matches_its_closed_form() {
+    let t = tempfile::tempdir().unwrap();
+    let sweep = make_sweep(t.path(), "sweep.wav", &["--length", "3", "--tail", "1"]);
+    let x = read_wav(&sweep).1.remove(0);
+    let hp = butterworth_highpass(100.0);
+    let pk = peaking(1000.0, 1.0, 6.0);
+    let y = filter(&pk, &filter(&hp, &x));
+    write_wav_f32(&t.path().join("dut.wav"), 48_000, &[y]);
+    for smooth in ["none", "1/48"] {
+        let out = format!("m-{}", smooth.replace('/', "_"));
+        ok(
+            t.path(),
+            &[
+                "analyze",
+                "dut.wav",
+                "--sweep",
+                "sweep.wav",
+                "--out",
+                &out,
+                "--smooth",
+                smooth,
+                "--no-plots",
+            ],
+        );
+        let r = json(&t.path().join(&out).join("results.json"));
+        let delay = r["delay_s"].as_f64().unwrap();
+        let f = numbers(&r["response"]["frequency_hz"]);
+        let mag = numbers(&r["response"]["magnitude_db"]);
+        let phase = numbers(&r["response"]["phase_deg"]);
+        let want: Vec<Complex<f64>> = f
+            .iter()
+            .map(|&f| response(&hp, f) * response(&pk, f))
+            .collect();
+        let max_db = want
+            .iter()
+            .map(|h| 20.0 * h.norm().log10())
+            .fold(f64::MIN, f64::max);
+        for i in 0..f.len() {
+            let want_db = if smooth == "none" {
+                20.0 * want[i].norm().log10()
+            } else {
+                // the closed form smoothed the same way: |H|² averaged over
+                // f·2^(±1/96), cut to the sweep band (trapezoid rule)
+                let lo = (f[i] * 2f64.powf(-1.0 / 96.0)).max(20.0);
+                let hi = (f[i] * 2f64.powf(1.0 / 96.0)).min(20_000.0);
+                let steps = 400;
+                let mut acc = 0.0;
+                for k in 0..=steps {
+                    let fk = lo + (hi - lo) * k as f64 / steps as f64;
+                    let w = if k == 0 || k == steps { 0.5 } else { 1.0 };
+                    acc += w * (response(&hp, fk) * response(&pk, fk)).norm_sqr();
+                }
+                10.0 * (acc / steps as f64).log10()
+            };
+            assert!(
+                (mag[i] - want_db).abs() < 0.1,
+                "{smooth}: {:.1} Hz measured {:.3} dB, closed form {:.3} dB",
+                f[i],
+                mag[i],
+                want_db
+            );
+            if want_db > max_db - 20.0 {
+                // put back the delay that gliss removed
+                let measured = phase[i] - 360.0 * f[i] * delay;
+                let d = wrap_deg(measured - want[i].arg().to_degrees());
+                assert!(
+                    d.abs() < 2.0,
+                    "{smooth}: {:.1} Hz phase off by {d:.2}°",
+                    f[i]
+                );
+            }
+        }
+        // the peak: +6 dB at 1 kHz on top of the high-pass (closed form)
+        let i = f.iter().position(|&v| v >= 1000.0).unwrap();
+        assert!((mag[i] - 20.0 * want[i].norm().log10()).abs() < 0.02);
+    }
+}

@@ -1,0 +1,10 @@
+//! Integration tests: the real `gliss` binary on files the tests make, in
+//! temporary folders. One test binary, one module per subject.
+
+mod util;
+
+mod bad_input;
+mod demo;
+mod device_under_test;
+mod sweep;
+mod wire;

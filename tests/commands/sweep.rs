@@ -1,0 +1,115 @@
+//! `gliss sweep`: the file it writes, and the parameters it refuses.
+
+use crate::util::*;
+
+#[test]
+fn the_sweep_file_has_the_requested_level_length_and_band() {
+    let t = tempfile::tempdir().unwrap();
+    for (bits, level) in [("32", "-20"), ("24", "-6"), ("16", "-3")] {
+        let name = format!("s{bits}.wav");
+        make_sweep(
+            t.path(),
+            &name,
+            &[
+                "--bits", bits, "--level", level, "--length", "1", "--tail", "0.25",
+            ],
+        );
+        let (rate, ch) = read_wav(&t.path().join(&name));
+        assert_eq!(rate, 48_000);
+        assert_eq!(ch.len(), 1);
+        let side = json(&t.path().join(format!("s{bits}.json")));
+        assert_eq!(side["format"], "gliss sweep");
+        let design = &side["sweep"];
+        // Novak et al. 2010: L = round(f1·T̃/ln(f2/f1))/f1 → 20·L is whole
+        let l = design["rate_constant_s"].as_f64().unwrap();
+        assert!((20.0 * l - (20.0 * l).round()).abs() < 1e-9);
+        let samples = design["total_samples"].as_u64().unwrap() as usize;
+        assert_eq!(ch[0].len(), samples);
+        let peak = ch[0].iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        let want: f64 = level.parse().unwrap();
+        // the criterion: peak within 0.1 dB of --level
+        assert!((20.0 * peak.log10() - want).abs() < 0.1, "{bits}: {peak}");
+        // the tail is silent
+        let sweep_samples = design["sweep_samples"].as_u64().unwrap() as usize;
+        assert!(ch[0][sweep_samples..].iter().all(|v| *v == 0.0));
+    }
+}
+
+#[test]
+fn impossible_sweeps_are_refused_with_a_usage_error() {
+    let t = tempfile::tempdir().unwrap();
+    let cases: &[(&[&str], &str)] = &[
+        (&["--end", "30000"], "Nyquist"),
+        (&["--start", "0"], "above 0 Hz"),
+        (&["--start", "-10"], "above 0 Hz"),
+        (&["--start", "2000", "--end", "1000"], "below --end"),
+        (&["--length", "0.0001"], "too short"),
+        (&["--level", "3"], "full scale"),
+        (&["--bits", "12"], "--bits"),
+        (&["--rate", "1000"], "--rate"),
+    ];
+    for (extra, needle) in cases {
+        let mut args = vec!["sweep", "--out", "x.wav"];
+        args.extend_from_slice(extra);
+        let line = refused(t.path(), &args);
+        assert!(line.contains(needle), "{extra:?}: {line}");
+        assert_eq!(run(t.path(), &args).status.code(), Some(2));
+        assert!(!t.path().join("x.wav").exists());
+    }
+}
+
+#[test]
+fn an_existing_file_is_never_overwritten() {
+    let t = tempfile::tempdir().unwrap();
+    std::fs::write(t.path().join("mine.wav"), b"precious").unwrap();
+    let line = refused(t.path(), &["sweep", "--out", "mine.wav"]);
+    assert!(line.contains("already exists"));
+    assert_eq!(
+        std::fs::read(t.path().join("mine.wav")).unwrap(),
+        b"precious"
+    );
+    assert!(!t.path().join("mine.json").exists());
+    // nor its parameters file
+    std::fs::write(t.path().join("other.json"), b"mine too").unwrap();
+    refused(t.path(), &["sweep", "--out", "other.wav"]);
+    assert!(!t.path().join("other.wav").exists());
+    assert_eq!(
+        std::fs::read(t.path().join("other.json")).unwrap(),
+        b"mine too"
+    );
+}
+
+#[test]
+fn every_help_page_explains_its_options() {
+    let t = tempfile::tempdir().unwrap();
+    let top = ok(t.path(), &["--help"]);
+    for cmd in ["sweep", "analyze", "demo"] {
+        assert!(top.contains(cmd));
+    }
+    assert!(top.contains("hearing"), "the safety note is in --help");
+    for (cmd, opts) in [
+        (
+            "sweep",
+            &[
+                "--out", "--start", "--end", "--length", "--tail", "--rate", "--level", "--bits",
+            ][..],
+        ),
+        (
+            "analyze",
+            &[
+                "--sweep",
+                "--out",
+                "--channel",
+                "--smooth",
+                "--no-plots",
+                "--overwrite",
+            ][..],
+        ),
+        ("demo", &["--out", "--smooth", "--no-plots", "--seed"][..]),
+    ] {
+        let h = ok(t.path(), &[cmd, "--help"]);
+        for o in opts {
+            assert!(h.contains(o), "{cmd} --help lacks {o}");
+        }
+    }
+}
