@@ -172,7 +172,12 @@ fn integer_recordings_read_the_same_as_float() {
     for bits in [16u16, 24] {
         let t = tempfile::tempdir().unwrap();
         make_sweep(t.path(), "sweep.wav", &["--length", "2", "--tail", "0.5"]);
-        write_wav_int(&t.path().join("rec.wav"), 48_000, bits, &[x.clone()]);
+        write_wav_int(
+            &t.path().join("rec.wav"),
+            48_000,
+            bits,
+            std::slice::from_ref(&x),
+        );
         ok(
             t.path(),
             &[
