@@ -1,1 +1,65 @@
-fn main() {}
+//! Speed of the analysis of one recording: a 5 s, 48 kHz sweep with a 3 s
+//! tail through the virtual system, analysed to the impulse response and
+//! the 1/6-octave response (no plots, no file I/O). Results and how to
+//! rerun them: docs/performance.md.
+
+use criterion::{Criterion, criterion_group, criterion_main};
+use std::hint::black_box;
+
+use gliss::analysis::{AnalysisConfig, analyze, smoothing};
+use gliss::audio::virtual_system::VirtualSystem;
+use gliss::deconv;
+use gliss::signal::sweep::SweepParams;
+
+fn bench(c: &mut Criterion) {
+    let design = SweepParams {
+        requested_length_s: 5.0,
+        tail_s: 3.0,
+        ..SweepParams::default()
+    }
+    .design()
+    .expect("a valid sweep");
+    let stimulus = design.generate();
+    let recording = VirtualSystem::default().render(&stimulus, design.fs());
+    let config = AnalysisConfig::default();
+
+    let mut g = c.benchmark_group("analysis_5s_48k_3s_tail");
+    g.sample_size(30);
+    g.bench_function("whole analysis (impulse + 1/6-octave response)", |b| {
+        b.iter(|| analyze(black_box(&recording), &stimulus, &design, &config).unwrap())
+    });
+    g.bench_function("deconvolution only", |b| {
+        b.iter(|| {
+            deconv::deconvolve(
+                black_box(&recording),
+                &stimulus,
+                design.fs(),
+                20.0,
+                20_000.0,
+            )
+        })
+    });
+    let power: Vec<f64> = (0..200_001)
+        .map(|k| 1.0 + (k as f64 * 1e-3).sin().powi(2))
+        .collect();
+    let grid = smoothing::log_grid(20.0, 20_000.0);
+    g.bench_function("1/6-octave smoothing of 200k bins", |b| {
+        b.iter(|| {
+            smoothing::smooth_power(
+                black_box(&power),
+                0.12,
+                &grid,
+                smoothing::Smoothing::Fraction(6),
+            )
+        })
+    });
+    g.finish();
+}
+
+criterion_group! {
+    name = benches;
+    // Criterion's own charts would need a system font; the numbers suffice.
+    config = Criterion::default().without_plots();
+    targets = bench
+}
+criterion_main!(benches);

@@ -28,8 +28,8 @@ pub struct SweepParams {
     pub start_hz: f64,
     /// End frequency f2 in Hz.
     pub end_hz: f64,
-    /// Requested length T̃ in seconds; the synchronised sweep is within
-    /// half a cycle of f1 of it.
+    /// Requested length T̃ in seconds; the synchronised sweep's length is
+    /// within ln(f2/f1)/(2·f1) of it (0.17 s for 20 Hz–20 kHz).
     pub requested_length_s: f64,
     /// Sample rate in Hz.
     pub sample_rate_hz: u32,
