@@ -31,6 +31,12 @@ pub struct Args {
     pub seed: u64,
 }
 
+/// `x` rounded to `decimals`, with −0 shown as 0.
+fn no_negative_zero(x: f64, decimals: i32) -> f64 {
+    let scale = 10f64.powi(decimals);
+    (x * scale).round() / scale + 0.0
+}
+
 /// Prints what a job wrote and found.
 pub fn print_summary(out: &str, o: &Outcome) {
     let a = &o.analysis;
@@ -40,8 +46,8 @@ pub fn print_summary(out: &str, o: &Outcome) {
     }
     println!(
         "delay {:.3} ms ({:.2} samples), recording peak {:.1} dBFS, impulse response {:.0} dB above its noise",
-        a.delay_s * 1e3,
-        a.delay_s * f64::from(a.sample_rate_hz),
+        no_negative_zero(a.delay_s * 1e3, 3),
+        no_negative_zero(a.delay_s * f64::from(a.sample_rate_hz), 2),
         a.peak_dbfs,
         a.peak_to_noise_db
     );

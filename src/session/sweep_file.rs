@@ -45,6 +45,12 @@ pub const FORMAT: &str = "gliss sweep";
 /// The parameters are checked again, so a hand-edited file cannot describe
 /// an impossible sweep.
 pub fn load_design(wav: &Path) -> Result<SweepDesign> {
+    if !wav.is_file() {
+        return Err(Error::input(format!(
+            "the sweep file {} does not exist; give the WAV that gliss sweep wrote",
+            wav.display()
+        )));
+    }
     let side = sidecar_path(wav);
     let params: SweepParams = if side.exists() {
         let text = std::fs::read_to_string(&side).map_err(|e| Error::io("read", &side, &e))?;
