@@ -22,6 +22,7 @@ fn main() -> gliss::Result<()> {
 
     let config = AnalysisConfig {
         smoothing: Smoothing::None,
+        harmonics: 1, // a linear filter: no distortion to separate
     };
     let a = analyze(&recording, &stimulus, &design, &config)?;
     println!("delay {:.4} samples", a.delay_s * design.fs());

@@ -8,6 +8,7 @@
 //! - phase is given with the delay `delay_s` removed.
 
 pub mod delay;
+pub mod distortion;
 pub mod etc;
 pub mod response;
 pub mod smoothing;
@@ -15,8 +16,8 @@ pub mod smoothing;
 use crate::deconv;
 use crate::error::{Error, Result};
 use crate::signal::sweep::SweepDesign;
-use crate::signal::window;
 
+pub use distortion::Distortion;
 pub use response::FrequencyResponse;
 pub use smoothing::Smoothing;
 
@@ -33,14 +34,18 @@ pub const MIN_PEAK_TO_NOISE_DB: f64 = 30.0;
 /// Settings of an analysis.
 #[derive(Debug, Clone, PartialEq)]
 pub struct AnalysisConfig {
-    /// Smoothing of the frequency response.
+    /// Smoothing of the frequency response (and the distortion orders).
     pub smoothing: Smoothing,
+    /// Highest harmonic order to separate (2..=9); 1 analyses the linear
+    /// response only.
+    pub harmonics: u32,
 }
 
 impl Default for AnalysisConfig {
     fn default() -> Self {
         AnalysisConfig {
             smoothing: Smoothing::Fraction(6),
+            harmonics: 5,
         }
     }
 }
@@ -68,6 +73,8 @@ pub struct Analysis {
     pub impulse: ImpulseResponse,
     /// The frequency response on the log grid.
     pub response: FrequencyResponse,
+    /// The harmonic distortion orders (`None` with `harmonics` = 1).
+    pub distortion: Option<Distortion>,
     /// Peak level of the recording in dBFS.
     pub peak_dbfs: f64,
     /// Peak of the impulse response over its noise, in dB.
@@ -169,25 +176,50 @@ pub fn analyze(
         end = start + max_len;
     }
     let len = (end - start).max(1) as usize;
-    let mut ir: Vec<f64> = (0..len)
-        .map(|i| h[(start + i as isize).rem_euclid(n as isize) as usize])
-        .collect();
-    window::fade_in(&mut ir, pre / 2);
-    window::fade_out(&mut ir, (len / 20).max(8).min(len));
+    let ir = deconv::cut(&h, start, len, pre / 2, (len / 20).max(8).min(len));
 
     // harmonic responses up to the 10th order sit in the last L·ln 10
     let harmonics_len = (design.harmonic_offset_s(10) * fs).round() as usize;
-    let peak_to_noise_db = peak_to_noise(&h, ipeak, end, n.saturating_sub(harmonics_len));
+    let harmonics_start = n.saturating_sub(harmonics_len);
+    let peak_to_noise_db = peak_to_noise(&h, ipeak, end, harmonics_start);
     if peak_to_noise_db < MIN_PEAK_TO_NOISE_DB {
         warnings.push(format!(
             "the impulse response rises only {peak_to_noise_db:.0} dB above its noise; check that the recording holds this sweep, and raise the level"
         ));
     }
 
+    let max_order = config.harmonics.min(distortion::MAX_ORDER);
+    let windows = distortion::harmonic_windows(design, ipeak, pre, max_order);
+    let longest = windows.iter().map(|w| w.len).fold(len, usize::max);
+    let fft_len = response::spectrum_len(longest, fs, f1);
     let grid = smoothing::log_grid(f1, f2);
-    let (mut spec, df) = response::delay_free_spectrum(&ir, start as f64, delay_samples, fs, f1);
+    let (mut spec, df) =
+        response::delay_free_spectrum(&ir, start as f64, delay_samples, fs, fft_len);
     deconv::remove_low_edge(&mut spec, df, f1);
     let response = response::on_grid(&spec, df, &grid, config.smoothing, (f1, f2));
+
+    let distortion = (max_order >= 2).then(|| {
+        let a = end.max(0) as usize;
+        let noise_region = (harmonics_start > a).then_some((a, harmonics_start));
+        let d = distortion::analyze(
+            distortion::Inputs {
+                h: &h,
+                ipeak,
+                linear_pre: pre,
+                linear_ir: &ir,
+                linear_start: start,
+                linear_spectrum: &spec,
+                fft_len,
+                noise_region,
+            },
+            design,
+            max_order,
+            config.smoothing,
+            &grid,
+        );
+        warnings.extend(d.warnings.iter().cloned());
+        d
+    });
 
     Ok(Analysis {
         sample_rate_hz: design.params.sample_rate_hz,
@@ -198,6 +230,7 @@ pub fn analyze(
             sample_rate_hz: design.params.sample_rate_hz,
         },
         response,
+        distortion,
         peak_dbfs,
         peak_to_noise_db,
         warnings,

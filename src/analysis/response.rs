@@ -23,20 +23,27 @@ pub struct FrequencyResponse {
     pub phase_deg: Vec<f64>,
 }
 
-/// The complex spectrum of `ir` on linear bins, with the phase referred to
-/// time `delay` (samples): `ir[0]` lies at time `start` (samples, may be
-/// negative). Zero-padded so that the bins are at least as dense as the
-/// grid at `f_min`. Returns the bins and their spacing in Hz.
+/// FFT length for the spectrum of a response of `len` samples: at least
+/// as long as the response, and long enough that the bins are as dense as
+/// the log grid at `f_min`.
+pub fn spectrum_len(len: usize, fs: f64, f_min: f64) -> usize {
+    let grid_step = f_min * (2f64.powf(1.0 / f64::from(POINTS_PER_OCTAVE)) - 1.0);
+    let dense = (fs / grid_step).ceil() as usize;
+    fft::fast_len(len.max(dense).min(MAX_FFT.max(len)))
+}
+
+/// The complex spectrum of `ir` on the bins of an `n`-point FFT (n from
+/// [`spectrum_len`], at least `ir.len()`), with the phase referred to time
+/// `delay` (samples): `ir[0]` lies at time `start` (samples, may be
+/// negative). Returns the bins and their spacing in Hz.
 pub fn delay_free_spectrum(
     ir: &[f64],
     start: f64,
     delay: f64,
     fs: f64,
-    f_min: f64,
+    n: usize,
 ) -> (Vec<Complex<f64>>, f64) {
-    let grid_step = f_min * (2f64.powf(1.0 / f64::from(POINTS_PER_OCTAVE)) - 1.0);
-    let dense = (fs / grid_step).ceil() as usize;
-    let n = fft::fast_len(ir.len().max(dense).min(MAX_FFT.max(ir.len())));
+    assert!(n >= ir.len(), "the FFT must hold the whole response");
     let mut spec = fft::rfft(ir, n);
     // ir[m] = h(start + m) ⇒ DFT = e^{jω·start}·H; remove the delay d:
     // H·e^{jωd} = DFT·e^{jω(d − start)}, ω = 2πk/n per sample.
@@ -98,7 +105,8 @@ mod tests {
         let mut ir = vec![0.0; 4800];
         ir[100] = 1.0;
         let grid = log_grid(20.0, 20_000.0);
-        let (spec, df) = delay_free_spectrum(&ir, -50.0, 50.0, fs, 20.0);
+        let (spec, df) =
+            delay_free_spectrum(&ir, -50.0, 50.0, fs, spectrum_len(ir.len(), fs, 20.0));
         let r = on_grid(&spec, df, &grid, Smoothing::None, (1.0, 24_000.0));
         for (m, p) in r.magnitude_db.iter().zip(&r.phase_deg) {
             assert!(m.abs() < 1e-9);
@@ -113,7 +121,7 @@ mod tests {
         let mut ir = vec![0.0; 2048];
         ir[10] = 1.0;
         let grid = log_grid(100.0, 1000.0);
-        let (spec, df) = delay_free_spectrum(&ir, 0.0, 0.0, fs, 100.0);
+        let (spec, df) = delay_free_spectrum(&ir, 0.0, 0.0, fs, spectrum_len(ir.len(), fs, 100.0));
         let r = on_grid(&spec, df, &grid, Smoothing::None, (1.0, 24_000.0));
         for (f, p) in grid.iter().zip(&r.phase_deg) {
             let want = wrap_deg(-360.0 * f * 10.0 / fs);

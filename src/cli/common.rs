@@ -4,8 +4,8 @@ use std::path::Path;
 
 use clap::Args as ClapArgs;
 
-use crate::analysis::{AnalysisConfig, Smoothing};
-use crate::error::Result;
+use crate::analysis::{AnalysisConfig, Smoothing, distortion};
+use crate::error::{Error, Result};
 use crate::signal::sweep::{SweepDesign, SweepParams};
 
 /// The sweep options of `sweep`, `demo` (and later `measure`).
@@ -78,6 +78,10 @@ pub struct OutputArgs {
     /// 1/3, 1/6, 1/12, 1/24, 1/48, or none.
     #[arg(long, value_name = "1/N|none", default_value = "1/6")]
     pub smooth: String,
+    /// Separate the harmonic distortion orders 2..N from the same sweep
+    /// (N up to 9); 1 analyses the linear response only.
+    #[arg(long, value_name = "N", default_value_t = 5)]
+    pub harmonics: u32,
     /// Skip the PNG plots (faster for batch runs).
     #[arg(long)]
     pub no_plots: bool,
@@ -90,8 +94,16 @@ pub struct OutputArgs {
 impl OutputArgs {
     /// The checked analysis settings.
     pub fn config(&self) -> Result<AnalysisConfig> {
+        if self.harmonics == 0 || self.harmonics > distortion::MAX_ORDER {
+            return Err(Error::parameter(format!(
+                "--harmonics {} is out of range; use 2 to {} (the orders to separate), or 1 for none",
+                self.harmonics,
+                distortion::MAX_ORDER
+            )));
+        }
         Ok(AnalysisConfig {
             smoothing: Smoothing::parse(&self.smooth)?,
+            harmonics: self.harmonics,
         })
     }
 }

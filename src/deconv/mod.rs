@@ -21,33 +21,42 @@ use crate::signal::fft;
 /// (−100 dB: its bias, ε/|X|², stays below 10⁻⁶ even 40 dB down the sweep).
 pub const IN_BAND_REGULARISATION_DB: f64 = -100.0;
 
-/// Octaves over which ε rises from its in-band value to full outside the
-/// band (raised cosine on a log-frequency axis; common practice).
+/// Octaves below f1 over which ε rises from its in-band value to the
+/// stimulus' peak power (raised cosine in dB on a log-frequency axis).
+/// Gentle, so that the edge it makes lies where the causal band limit
+/// [`low_edge`] has already attenuated it.
 pub const TRANSITION_OCTAVES: f64 = 0.5;
 
+/// Octaves above f2 over which ε rises to the stimulus' peak power, as a
+/// raised cosine in power (not in dB: within 16 dB of full a tenth of the
+/// way in). Above f2 the recording still holds the harmonics of the top of
+/// the sweep while the stimulus has no power left; an ε that stayed small
+/// there (as a rise in dB does for most of its way) would amplify them by
+/// up to 1/(2√ε) — some 90 dB — and spread them over the harmonic windows.
+pub const TOP_TRANSITION_OCTAVES: f64 = 0.5;
+
 /// Relative regularisation r(f) ∈ (0, 1] at f Hz for the band [f1, f2]:
-/// 10^(IN_BAND/10) inside, 1 from `TRANSITION_OCTAVES` outside on, a
-/// raised cosine in log frequency between.
+/// 10^(IN_BAND/10) inside; below f1 rising in dB over
+/// [`TRANSITION_OCTAVES`]; above f2 rising in power over
+/// [`TOP_TRANSITION_OCTAVES`]; 1 beyond (clipped at the Nyquist frequency
+/// by the FFT itself).
 pub fn regularisation(f: f64, f1: f64, f2: f64) -> f64 {
     let inside = 10f64.powf(IN_BAND_REGULARISATION_DB / 10.0);
-    let octaves_out = if f <= 0.0 {
-        f64::INFINITY
+    let rise = |u: f64| 0.5 - 0.5 * (std::f64::consts::PI * u.clamp(0.0, 1.0)).cos();
+    if f <= 0.0 {
+        1.0
     } else if f < f1 {
-        (f1 / f).log2()
+        let w = rise((f1 / f).log2() / TRANSITION_OCTAVES);
+        // interpolate in dB so the rise is smooth on a log scale
+        10f64
+            .powf((IN_BAND_REGULARISATION_DB * (1.0 - w)) / 10.0)
+            .max(inside)
     } else if f > f2 {
-        (f / f2).log2()
+        let w = rise((f / f2).log2() / TOP_TRANSITION_OCTAVES);
+        inside + (1.0 - inside) * w
     } else {
-        0.0
-    };
-    if octaves_out >= TRANSITION_OCTAVES {
-        return 1.0;
+        inside
     }
-    let u = octaves_out / TRANSITION_OCTAVES; // 0..1
-    let w = 0.5 - 0.5 * (std::f64::consts::PI * u).cos();
-    // interpolate in dB so the rise is smooth on a log scale
-    10f64
-        .powf((IN_BAND_REGULARISATION_DB * (1.0 - w)) / 10.0)
-        .max(inside)
 }
 
 /// FFT length used for deconvolving a recording of `rec_len` samples with
@@ -159,10 +168,33 @@ pub fn deconvolve(recording: &[f64], stimulus: &[f64], fs: f64, f1: f64, f2: f64
     apply_inverse(recording, &inv, n)
 }
 
+/// Cuts `len` samples from the circular response `h`, starting at
+/// `start` (negative: before index 0, i.e. from the end of the buffer),
+/// with a half-Hann fade-in over the first `fade_in` samples and a
+/// fade-out over the last `fade_out`.
+pub fn cut(h: &[f64], start: isize, len: usize, fade_in: usize, fade_out: usize) -> Vec<f64> {
+    let n = h.len() as isize;
+    let mut out: Vec<f64> = (0..len)
+        .map(|i| h[(start + i as isize).rem_euclid(n) as usize])
+        .collect();
+    crate::signal::window::fade_in(&mut out, fade_in);
+    crate::signal::window::fade_out(&mut out, fade_out);
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
     use crate::signal::sweep::SweepParams;
+
+    #[test]
+    fn cut_wraps_round_the_buffer() {
+        let h: Vec<f64> = (0..10).map(f64::from).collect();
+        assert_eq!(cut(&h, -2, 5, 0, 0), vec![8.0, 9.0, 0.0, 1.0, 2.0]);
+        let c = cut(&h, 3, 4, 2, 1);
+        assert_eq!(c[0], 0.0); // the fade starts at zero
+        assert_eq!(c[2], 5.0);
+    }
 
     #[test]
     fn regularisation_profile_is_flat_in_band_and_full_outside() {

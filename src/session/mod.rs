@@ -7,7 +7,7 @@ pub mod sweep_file;
 
 use std::path::{Path, PathBuf};
 
-use crate::analysis::{self, Analysis, AnalysisConfig};
+use crate::analysis::{self, Analysis, AnalysisConfig, Distortion};
 use crate::error::{Error, Result};
 use crate::plot;
 use crate::signal::sweep::SweepDesign;
@@ -145,9 +145,11 @@ pub fn run(job: &Job) -> Result<Outcome> {
     .into_iter()
     .map(String::from)
     .collect();
+    if analysis.distortion.is_some() {
+        files.push("distortion.csv".into());
+    }
     if job.plots {
-        files.push("plots/response.png".into());
-        files.push("plots/impulse.png".into());
+        files.extend(plot_files(&analysis).iter().map(|s| s.to_string()));
     }
     Ok(Outcome { analysis, files })
 }
@@ -187,10 +189,17 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<(
     let results = results_record(a);
     derived("results.json", to_json(&results)?)?;
     derived("response.csv", response_csv(&results.response)?)?;
+    if let Some(d) = &a.distortion {
+        derived("distortion.csv", distortion_csv(d, &a.response)?)?;
+    }
     if job.plots {
-        for rel in ["plots/response.png", "plots/impulse.png"] {
+        for rel in plot_files(a) {
             let tmp = folder.temp_path(rel);
-            if rel.ends_with("response.png") {
+            if rel.ends_with("distortion.png") {
+                if let Some(d) = &a.distortion {
+                    plot::distortion_png(&tmp, &job.title, &a.response, d)?;
+                }
+            } else if rel.ends_with("response.png") {
                 plot::response_png(
                     &tmp,
                     &job.title,
@@ -234,10 +243,72 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<(
         settings: Settings {
             smoothing: job.config.smoothing.label(),
             plots: job.plots,
+            harmonics: job.config.harmonics,
         },
         files,
     };
     folder.write_derived("manifest.json", &to_json(&manifest)?)
+}
+
+/// The plots an analysis draws.
+fn plot_files(a: &Analysis) -> Vec<&'static str> {
+    let mut v = vec!["plots/response.png", "plots/impulse.png"];
+    if a.distortion.is_some() {
+        v.push("plots/distortion.png");
+    }
+    v
+}
+
+/// distortion.csv: one row per excitation frequency up to half the sweep's
+/// end: the fundamental (dB re sweep), each order and its noise floor (dB
+/// re the fundamental; empty where not reported), THD and its floor (%).
+pub fn distortion_csv(
+    d: &Distortion,
+    response: &crate::analysis::FrequencyResponse,
+) -> Result<Vec<u8>> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let err = |e: csv::Error| Error::input(format!("could not encode CSV: {e}"));
+    let mut header = vec!["frequency_hz".to_string(), "fundamental_db".to_string()];
+    for o in &d.orders {
+        header.push(format!("h{}_db", o.order));
+        header.push(format!("h{}_noise_floor_db", o.order));
+    }
+    header.push("thd_percent".into());
+    header.push("thd_noise_floor_percent".into());
+    w.write_record(&header).map_err(err)?;
+    let cell = |v: Option<f64>, digits: usize| v.map_or(String::new(), |x| format!("{x:.digits$}"));
+    // every excitation frequency that has the 2nd order; the orders'
+    // grids are stretches of the response grid starting at the same point
+    let Some(second) = d.orders.first() else {
+        return w
+            .into_inner()
+            .map_err(|e| Error::input(format!("could not encode CSV: {e}")));
+    };
+    let offset = response
+        .frequency_hz
+        .iter()
+        .position(|&f| {
+            second
+                .frequency_hz
+                .first()
+                .is_some_and(|&g| (f - g).abs() < 1e-9)
+        })
+        .unwrap_or(0);
+    for i in 0..second.frequency_hz.len() {
+        let mut row = vec![
+            format!("{:.4}", second.frequency_hz[i]),
+            format!("{:.4}", response.magnitude_db[offset + i]),
+        ];
+        for o in &d.orders {
+            row.push(cell(o.level_db.get(i).copied().flatten(), 3));
+            row.push(cell(o.noise_floor_db.get(i).copied().flatten(), 3));
+        }
+        row.push(cell(d.thd.percent.get(i).copied().flatten(), 5));
+        row.push(cell(d.thd.noise_floor_percent.get(i).copied().flatten(), 5));
+        w.write_record(&row).map_err(err)?;
+    }
+    w.into_inner()
+        .map_err(|e| Error::input(format!("could not encode CSV: {e}")))
 }
 
 /// results.json of an analysis.
@@ -263,6 +334,7 @@ pub fn results_record(a: &Analysis) -> Results {
             magnitude_db: a.response.magnitude_db.clone(),
             phase_deg: a.response.phase_deg.clone(),
         },
+        distortion: a.distortion.clone(),
         warnings: a.warnings.clone(),
     }
 }

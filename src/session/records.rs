@@ -3,6 +3,7 @@
 
 use serde::{Deserialize, Serialize};
 
+use crate::analysis::Distortion;
 use crate::signal::sweep::SweepDesign;
 
 /// Version of results.json and manifest.json.
@@ -27,6 +28,9 @@ pub struct Results {
     pub impulse: ImpulseRecord,
     /// The frequency response.
     pub response: ResponseRecord,
+    /// The harmonic distortion orders and THD (`null` with --harmonics 1).
+    #[serde(default)]
+    pub distortion: Option<Distortion>,
     /// Warnings, in plain words.
     pub warnings: Vec<String>,
 }
@@ -112,6 +116,9 @@ pub struct Settings {
     pub smoothing: String,
     /// Whether plots were drawn.
     pub plots: bool,
+    /// Highest harmonic order separated (1 = none).
+    #[serde(default)]
+    pub harmonics: u32,
 }
 
 /// One file of the folder.

@@ -29,7 +29,11 @@ fn the_demo_writes_a_complete_measurement_folder() {
         assert!(dir.join(f).is_file(), "{f} missing");
     }
     // the PNGs are PNGs
-    for p in ["plots/response.png", "plots/impulse.png"] {
+    for p in [
+        "plots/response.png",
+        "plots/impulse.png",
+        "plots/distortion.png",
+    ] {
         let b = std::fs::read(dir.join(p)).unwrap();
         assert_eq!(&b[..8], b"\x89PNG\r\n\x1a\n");
     }
@@ -39,7 +43,7 @@ fn the_demo_writes_a_complete_measurement_folder() {
     assert_eq!(m["source"]["kind"], "virtual");
     let files = m["files"].as_array().unwrap();
     // every file but the manifest itself
-    assert_eq!(files.len(), 7);
+    assert_eq!(files.len(), 9);
     for f in files {
         let bytes = std::fs::read(dir.join(f["name"].as_str().unwrap())).unwrap();
         let hex: String = Sha256::digest(&bytes)
@@ -144,4 +148,32 @@ fn the_demo_refuses_to_overwrite_a_measurement() {
         &["demo", "--out", "d", "--length", "1", "--tail", "0.5"],
     );
     assert_eq!(snapshot(t.path()), before);
+}
+
+#[test]
+fn the_virtual_woofer_distorts_more_at_low_frequencies() {
+    // the virtual driver distorts on its excursion, which falls 12 dB per
+    // octave above 120 Hz: its 2nd harmonic must be far higher below
+    // 150 Hz than at 1 kHz (where it may be below the noise altogether).
+    // The room's modes make the low end uneven, so take its maximum.
+    let t = tempfile::tempdir().unwrap();
+    ok(t.path(), &["demo", "--out", "d", "--no-plots"]);
+    let r = json(&t.path().join("d/results.json"));
+    let o = &r["distortion"]["orders"][0];
+    assert_eq!(o["order"], 2);
+    let f = numbers(&o["frequency_hz"]);
+    let level = |i: usize| o["level_db"][i].as_f64();
+    let low = (0..f.len())
+        .filter(|&i| f[i] < 150.0)
+        .filter_map(level)
+        .fold(f64::MIN, f64::max);
+    assert!(low > -40.0, "HD2 below 150 Hz peaks at {low} dB");
+    if let Some(high) = level(f.iter().position(|&x| x >= 1000.0).unwrap()) {
+        assert!(
+            high < low - 20.0,
+            "HD2 at 1 kHz {high} dB vs {low} dB below 150 Hz"
+        );
+    }
+    let csv = std::fs::read_to_string(t.path().join("d/distortion.csv")).unwrap();
+    assert!(csv.starts_with("frequency_hz,fundamental_db,h2_db,h2_noise_floor_db,"));
 }

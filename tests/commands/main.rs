@@ -6,5 +6,6 @@ mod util;
 mod bad_input;
 mod demo;
 mod device_under_test;
+mod distortion;
 mod sweep;
 mod wire;
