@@ -1,6 +1,7 @@
 //! Speed of the analysis of one recording: a 5 s, 48 kHz sweep with a 3 s
-//! tail through the virtual system, analysed to the impulse response and
-//! the 1/6-octave response (no plots, no file I/O). Results and how to
+//! tail through the virtual system, analysed to the impulse response, the
+//! 1/6-octave response and the distortion orders 2–5 (no plots, no file
+//! I/O). Results and how to
 //! rerun them: docs/performance.md.
 
 use criterion::{Criterion, criterion_group, criterion_main};
@@ -25,8 +26,16 @@ fn bench(c: &mut Criterion) {
 
     let mut g = c.benchmark_group("analysis_5s_48k_3s_tail");
     g.sample_size(30);
-    g.bench_function("whole analysis (impulse + 1/6-octave response)", |b| {
-        b.iter(|| analyze(black_box(&recording), &stimulus, &design, &config).unwrap())
+    g.bench_function(
+        "whole analysis (impulse, 1/6-octave response, orders 2-5)",
+        |b| b.iter(|| analyze(black_box(&recording), &stimulus, &design, &config).unwrap()),
+    );
+    let linear_only = AnalysisConfig {
+        harmonics: 1,
+        ..AnalysisConfig::default()
+    };
+    g.bench_function("linear only (impulse + 1/6-octave response)", |b| {
+        b.iter(|| analyze(black_box(&recording), &stimulus, &design, &linear_only).unwrap())
     });
     g.bench_function("deconvolution only", |b| {
         b.iter(|| {

@@ -18,11 +18,12 @@ use rustfft::num_complex::Complex;
 use serde::{Deserialize, Serialize};
 
 use crate::analysis::etc;
+use crate::analysis::response;
 use crate::analysis::smoothing::{PiecewiseIntegral, Smoothing};
 use crate::deconv;
 use crate::signal::fft;
 use crate::signal::sweep::SweepDesign;
-use crate::signal::window::Window;
+use crate::signal::window::{self, Window};
 
 /// Highest order that can be asked for.
 pub const MAX_ORDER: u32 = 9;
@@ -159,6 +160,24 @@ fn power_of(spec: &[Complex<f64>]) -> Vec<f64> {
     spec.iter().map(|c| c.norm_sqr()).collect()
 }
 
+/// |FFT|² of `x` on `n` bins with the band limit [`deconv::low_edge`]
+/// divided out, and the bin spacing. Only bins below 4·f1 need it: above,
+/// |low_edge|² differs from 1 by less than (1/4)^16 ≈ 2·10⁻¹⁰.
+fn power_spectrum(x: &[f64], n: usize, fs: f64, f1: f64) -> (Vec<f64>, f64) {
+    let df = fs / n as f64;
+    let mut p = power_of(&fft::rfft(x, n));
+    for (k, v) in p.iter_mut().enumerate() {
+        let f = k as f64 * df;
+        if f >= 4.0 * f1 {
+            break;
+        }
+        if f >= f1 * 2f64.powf(-0.25) {
+            *v /= deconv::low_edge(f, f1).norm_sqr();
+        }
+    }
+    (p, df)
+}
+
 /// Sub-sample position of the largest value of `e` (parabola through the
 /// peak and its neighbours).
 fn peak_position(e: &[f64]) -> f64 {
@@ -225,24 +244,29 @@ pub fn analyze(
         })
         .collect();
 
-    // noise power spectral density (per unit of window energy)
+    // noise power spectral density (per unit of window energy), from at
+    // most a second of the noise-only stretch
     let noise_psd = inputs.noise_region.and_then(|(a, b)| {
-        let len = b.saturating_sub(a).min(m);
+        let len = b.saturating_sub(a).min(fs as usize);
         if (len as f64) < 0.05 * fs {
             return None;
         }
         let w = Window::Hann.make(len);
         let energy: f64 = w.iter().map(|v| v * v).sum();
         let seg: Vec<f64> = (0..len).map(|i| inputs.h[a + i] * w[i]).collect();
-        let mut spec = fft::rfft(&seg, m);
-        deconv::remove_low_edge(&mut spec, df, f1);
-        Some(PiecewiseIntegral::new(
-            spec.iter().map(|c| c.norm_sqr() / energy).collect(),
-            df,
-        ))
+        let fft_len = response::spectrum_len(len, fs, 2.0 * f_low);
+        let (mut power, df) = power_spectrum(&seg, fft_len, fs, f1);
+        for v in &mut power {
+            *v /= energy;
+        }
+        Some(PiecewiseIntegral::new(power, df))
     });
 
-    let lin_env = etc::envelope_squared(inputs.linear_ir);
+    // the linear response's arrival: its envelope peak near the impulse
+    // peak (`linear_pre` into the window)
+    let near_len = |pre: usize, len: usize| (3 * pre + 1).min(len);
+    let lin_near = &inputs.linear_ir[..near_len(inputs.linear_pre, inputs.linear_ir.len())];
+    let lin_env = etc::envelope_squared(lin_near);
     let lin_peak_abs = inputs.linear_start as f64 + peak_position(&lin_env);
 
     let windows = harmonic_windows(design, inputs.ipeak, inputs.linear_pre, max_order);
@@ -261,13 +285,11 @@ pub fn analyze(
         let n = f64::from(w.order);
         let fade_out = (w.len / 10).max(1);
         let cut = deconv::cut(inputs.h, w.start, w.len, w.pre / 2, fade_out);
-        let taper_energy: f64 = deconv::cut(&vec![1.0; w.len], 0, w.len, w.pre / 2, fade_out)
-            .iter()
-            .map(|v| v * v)
-            .sum();
-        let mut spec = fft::rfft(&cut, m);
-        deconv::remove_low_edge(&mut spec, df, f1);
-        let power = PiecewiseIntegral::new(power_of(&spec), df);
+        let taper_energy = window::taper_energy(w.len, w.pre / 2, fade_out);
+        // bins dense enough for the grid at this order's lowest frequency
+        let fft_len = response::spectrum_len(w.len, fs, n * f_low);
+        let (power, df_n) = power_spectrum(&cut, fft_len, fs, f1);
+        let power = PiecewiseIntegral::new(power, df_n);
         let end = grid.iter().filter(|&&f| n * f <= f_top).count().max(first);
         let mut level_db = Vec::with_capacity(end - first);
         let mut noise_floor_db = Vec::with_capacity(end - first);
@@ -297,7 +319,7 @@ pub fn analyze(
         // the order's own arrival: its envelope peak within ±pre of where
         // it is expected (later parts of the window hold its decay, and in
         // a room other orders' decays too)
-        let env = etc::envelope_squared(&cut);
+        let env = etc::envelope_squared(&cut[..near_len(w.pre, cut.len())]);
         let near = &env[..(2 * w.pre + 1).min(env.len())];
         let peak_abs = w.start as f64 + peak_position(near);
         orders.push(Order {

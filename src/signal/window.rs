@@ -63,6 +63,22 @@ pub fn half_hann_rise(n: usize, len: usize) -> f64 {
     0.5 - 0.5 * (PI * n as f64 / len as f64).cos()
 }
 
+/// Σw² of a window of `len` ones with the half-Hann [`fade_in`] and
+/// [`fade_out`] of the given lengths applied (without building it).
+pub fn taper_energy(len: usize, fade_in_len: usize, fade_out_len: usize) -> f64 {
+    let fi = fade_in_len.min(len);
+    let fo = fade_out_len.min(len);
+    if fi + fo > len {
+        // overlapping fades: build it
+        let mut w = vec![1.0; len];
+        fade_in(&mut w, fi);
+        fade_out(&mut w, fo);
+        return w.iter().map(|v| v * v).sum();
+    }
+    let ramp = |l: usize| (0..l).map(|n| half_hann_rise(n, l).powi(2)).sum::<f64>();
+    (len - fi - fo) as f64 + ramp(fi) + ramp(fo)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -110,6 +126,17 @@ mod tests {
             let s2: f64 = v.iter().map(|x| x * x).sum();
             let enbw = 4096.0 * s2 / (s * s);
             assert!((enbw - want).abs() < 0.002, "{w:?} {enbw}");
+        }
+    }
+
+    #[test]
+    fn taper_energy_matches_the_built_window() {
+        for (len, fi, fo) in [(100, 10, 20), (50, 0, 0), (30, 20, 20), (1000, 333, 1)] {
+            let mut w = vec![1.0; len];
+            fade_in(&mut w, fi);
+            fade_out(&mut w, fo);
+            let want: f64 = w.iter().map(|v| v * v).sum();
+            assert!((taper_energy(len, fi, fo) - want).abs() < 1e-9);
         }
     }
 
