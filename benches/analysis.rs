@@ -32,6 +32,7 @@ fn bench(c: &mut Criterion) {
     );
     let linear_only = AnalysisConfig {
         harmonics: 1,
+        bands: false,
         ..AnalysisConfig::default()
     };
     g.bench_function("linear only (impulse + 1/6-octave response)", |b| {
@@ -62,6 +63,13 @@ fn bench(c: &mut Criterion) {
             )
         })
     });
+    // the room analysis alone on a 2 s impulse response (the case)
+    let analysis = analyze(&recording, &stimulus, &design, &linear_only).unwrap();
+    let ir2: Vec<f64> = analysis.impulse.samples[..(2.0 * design.fs()) as usize].to_vec();
+    g.bench_function(
+        "octave + third-octave bands, all parameters, 2 s response",
+        |b| b.iter(|| room::analyze(black_box(&ir2), design.fs(), 20.0, 20_000.0)),
+    );
     g.finish();
 }
 

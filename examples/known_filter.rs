@@ -23,6 +23,7 @@ fn main() -> gliss::Result<()> {
     let config = AnalysisConfig {
         smoothing: Smoothing::None,
         harmonics: 1, // a linear filter: no distortion to separate
+        bands: false, // and no room to decay
     };
     let a = analyze(&recording, &stimulus, &design, &config)?;
     println!("delay {:.4} samples", a.delay_s * design.fs());

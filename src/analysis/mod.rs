@@ -7,10 +7,13 @@
 //! - 0 dB means the recording equals the sweep as written (a wire);
 //! - phase is given with the delay `delay_s` removed.
 
+pub mod bands;
+pub mod decay;
 pub mod delay;
 pub mod distortion;
 pub mod etc;
 pub mod response;
+pub mod room;
 pub mod smoothing;
 
 use crate::deconv;
@@ -39,6 +42,8 @@ pub struct AnalysisConfig {
     /// Highest harmonic order to separate (2..=9); 1 analyses the linear
     /// response only.
     pub harmonics: u32,
+    /// Analyse the decay per octave and one-third-octave band (ISO 3382).
+    pub bands: bool,
 }
 
 impl Default for AnalysisConfig {
@@ -46,6 +51,7 @@ impl Default for AnalysisConfig {
         AnalysisConfig {
             smoothing: Smoothing::Fraction(6),
             harmonics: 5,
+            bands: true,
         }
     }
 }
@@ -75,6 +81,8 @@ pub struct Analysis {
     pub response: FrequencyResponse,
     /// The harmonic distortion orders (`None` with `harmonics` = 1).
     pub distortion: Option<Distortion>,
+    /// Reverberation and energy parameters per band (`None` without bands).
+    pub room: Option<room::Room>,
     /// Peak level of the recording in dBFS.
     pub peak_dbfs: f64,
     /// Peak of the impulse response over its noise, in dB.
@@ -221,6 +229,29 @@ pub fn analyze(
         d
     });
 
+    // the room analysis sees the response without its final fade-out
+    let room = config.bands.then(|| {
+        let fade = (len / 20).max(8).min(len);
+        let r = room::analyze(&ir[..len - fade], fs, f1, f2);
+        let missing = r
+            .bands
+            .iter()
+            .filter(|b| b.t30_s.is_none() || b.t20_s.is_none() || b.edt_s.is_none())
+            .count();
+        if missing > 0 {
+            warnings.push(format!(
+                "{missing} of {} bands lack some decay parameters (too little decay range, too short a decay for the band, or no decay); bands[].warnings says which and why",
+                r.bands.len()
+            ));
+        }
+        if r.bands.iter().any(|b| b.curvature_percent.is_some_and(|c| c.abs() > room::MAX_CURVATURE_PERCENT)) {
+            warnings.push(
+                "some bands decay along more than one slope (curvature above 10 %); see bands[].warnings".to_string(),
+            );
+        }
+        r
+    });
+
     Ok(Analysis {
         sample_rate_hz: design.params.sample_rate_hz,
         delay_s: delay_samples / fs,
@@ -231,6 +262,7 @@ pub fn analyze(
         },
         response,
         distortion,
+        room,
         peak_dbfs,
         peak_to_noise_db,
         warnings,

@@ -8,6 +8,7 @@
 use rand::{SeedableRng, rngs::StdRng};
 use rand_distr::{Distribution, Normal};
 
+use crate::analysis::bands;
 use crate::audio::{PlayRecord, Take};
 use crate::error::{Error, Result};
 use crate::signal::biquad::Biquad;
@@ -25,8 +26,9 @@ pub struct VirtualSystem {
     pub distance_m: f64,
     /// Room dimensions (length, width, height) in metres.
     pub room_m: (f64, f64, f64),
-    /// Reverberation time of the diffuse tail in seconds.
-    pub reverberation_s: f64,
+    /// Reverberation time of the diffuse tail per octave band: (nominal
+    /// centre Hz, seconds), for the octaves 31.5 Hz–16 kHz.
+    pub reverberation_s: [(f64, f64); 10],
     /// Level of the diffuse tail relative to the direct sound, in dB.
     pub tail_level_db: f64,
     /// Quadratic and cubic coefficients of the driver's nonlinearity,
@@ -45,8 +47,21 @@ impl Default for VirtualSystem {
             latency_samples: 293,
             distance_m: 1.2,
             room_m: (4.6, 3.8, 2.6),
-            reverberation_s: 0.55,
-            tail_level_db: -14.0,
+            // a bare room: long at low frequencies (little absorbs them),
+            // shorter towards high ones (air, soft furnishings)
+            reverberation_s: [
+                (31.5, 1.15),
+                (63.0, 1.0),
+                (125.0, 0.85),
+                (250.0, 0.7),
+                (500.0, 0.6),
+                (1000.0, 0.55),
+                (2000.0, 0.5),
+                (4000.0, 0.45),
+                (8000.0, 0.38),
+                (16000.0, 0.3),
+            ],
+            tail_level_db: -4.0,
             nonlinearity: (0.04, 0.03),
             noise_dbfs: -96.0,
             seed: 2026,
@@ -96,7 +111,8 @@ impl VirtualSystem {
         // source and microphone positions in the room, metres
         let src = (1.1, 1.4, 1.2);
         let mic = (src.0 + self.distance_m, src.1 + 0.15, 1.25);
-        let len = ((self.reverberation_s * 1.5 + 0.05) * fs) as usize;
+        let longest = self.reverberation_s.iter().map(|b| b.1).fold(0.0, f64::max);
+        let len = ((longest * 1.5 + 0.05) * fs) as usize;
         let mut h = vec![0.0; len];
         let dist = |p: (f64, f64, f64)| {
             ((p.0 - mic.0).powi(2) + (p.1 - mic.1).powi(2) + (p.2 - mic.2).powi(2)).sqrt()
@@ -116,19 +132,36 @@ impl VirtualSystem {
             let d = dist(p);
             add_fractional_impulse(&mut h, d / SPEED_OF_SOUND * fs, r * direct / d);
         }
-        // diffuse tail: noise under an exponential envelope, starting after
-        // the first reflections
+        // diffuse tail: noise split into octave bands (the band filters of
+        // the analysis, which together pass a flat spectrum), each under
+        // its own exponential envelope, starting after the first reflections
         let mut rng = StdRng::seed_from_u64(self.seed ^ 0x5eed_7a11);
         let normal = Normal::new(0.0, 1.0).expect("unit normal");
         let t0 = (direct / SPEED_OF_SOUND + 0.006) * fs;
         let amp = 10f64.powf(self.tail_level_db / 20.0) * (48_000.0 / fs).sqrt() * 0.05;
-        // energy decays 60 dB in T: amplitude e^(−6.9078·t/T)
-        let k = 3.0 * std::f64::consts::LN_10 / self.reverberation_s;
-        for (i, v) in h.iter_mut().enumerate() {
-            let t = (i as f64 - t0) / fs;
-            if t >= 0.0 {
-                let onset = (t / 0.004).min(1.0);
-                *v += amp * onset * (-k * t).exp() * normal.sample(&mut rng);
+        let noise: Vec<f64> = (0..len).map(|_| normal.sample(&mut rng)).collect();
+        let n = fft::fast_len(len);
+        let spectrum = fft::rfft(&noise, n);
+        let df = fs / n as f64;
+        for (x, (_, t60)) in (-5..=4).zip(self.reverberation_s) {
+            let band = bands::Band::new(1, x);
+            if band.edges().0 >= fs / 2.0 {
+                continue;
+            }
+            let mut spec: Vec<_> = spectrum
+                .iter()
+                .enumerate()
+                .map(|(k, c)| c * band.power_gain(k as f64 * df).sqrt())
+                .collect();
+            let part = fft::irfft(&mut spec, n);
+            // energy decays 60 dB in T: amplitude e^(−6.9078·t/T)
+            let k = 3.0 * std::f64::consts::LN_10 / t60;
+            for (i, v) in h.iter_mut().enumerate() {
+                let t = (i as f64 - t0) / fs;
+                if t >= 0.0 {
+                    let onset = (t / 0.004).min(1.0);
+                    *v += amp * onset * (-k * t).exp() * part[i];
+                }
             }
         }
         h
@@ -196,12 +229,13 @@ impl VirtualSystem {
 impl PlayRecord for VirtualSystem {
     fn describe(&self) -> String {
         format!(
-            "virtual system (simulated): Kestrel 5 monitor at {:.1} m in a {:.1} × {:.1} × {:.1} m room, T ≈ {:.2} s, latency {} samples",
+            "virtual system (simulated): Kestrel 5 monitor at {:.1} m in a {:.1} × {:.1} × {:.1} m room, T {:.2} s at 125 Hz to {:.2} s at 4 kHz, latency {} samples",
             self.distance_m,
             self.room_m.0,
             self.room_m.1,
             self.room_m.2,
-            self.reverberation_s,
+            self.reverberation_s[2].1,
+            self.reverberation_s[7].1,
             self.latency_samples
         )
     }

@@ -82,6 +82,10 @@ pub struct OutputArgs {
     /// (N up to 9); 1 analyses the linear response only.
     #[arg(long, value_name = "N", default_value_t = 5)]
     pub harmonics: u32,
+    /// Skip the reverberation and energy parameters per octave and
+    /// one-third-octave band.
+    #[arg(long)]
+    pub no_bands: bool,
     /// Skip the PNG plots (faster for batch runs).
     #[arg(long)]
     pub no_plots: bool,
@@ -104,6 +108,7 @@ impl OutputArgs {
         Ok(AnalysisConfig {
             smoothing: Smoothing::parse(&self.smooth)?,
             harmonics: self.harmonics,
+            bands: !self.no_bands,
         })
     }
 }

@@ -650,6 +650,255 @@ pub fn distortion_png(
     Ok(())
 }
 
+/// Colour of the k-th of `n` bands: from deep blue at low frequencies
+/// through green to a warm red at high ones (the project's own ramp).
+pub fn band_colour(k: usize, n: usize) -> RGBColor {
+    let stops = [
+        (22.0, 86.0, 140.0),
+        (46.0, 139.0, 87.0),
+        (196.0, 150.0, 24.0),
+        (178.0, 34.0, 52.0),
+    ];
+    let u = if n <= 1 {
+        0.0
+    } else {
+        k as f64 / (n - 1) as f64
+    } * (stops.len() - 1) as f64;
+    let i = (u.floor() as usize).min(stops.len() - 2);
+    let t = u - i as f64;
+    let mix = |a: f64, b: f64| (a + (b - a) * t).round() as u8;
+    RGBColor(
+        mix(stops[i].0, stops[i + 1].0),
+        mix(stops[i].1, stops[i + 1].1),
+        mix(stops[i].2, stops[i + 1].2),
+    )
+}
+
+fn seconds(v: f64) -> String {
+    if v < 1.0 {
+        format!("{:.0} ms", v * 1e3)
+    } else {
+        format!("{v:.2} s")
+    }
+}
+
+/// Draws the Schroeder decay curves of the octave bands, each with the
+/// line fitted for T30 (or T20, or EDT) over its evaluation range.
+pub fn decay_png(path: &Path, title: &str, room: &crate::analysis::room::Room) -> Result<()> {
+    register_font();
+    let root = BitMapBackend::new(path, SIZE).into_drawing_area();
+    root.fill(&WHITE).map_err(plot_error(path))?;
+    let (head, body) = root.split_vertically(50);
+    head.draw(&Text::new(
+        format!("Energy decay per octave band — {title}"),
+        (20, 14),
+        (FONT, 24).into_font(),
+    ))
+    .map_err(plot_error(path))?;
+    let t_max = room
+        .curves
+        .iter()
+        .filter_map(|c| c.time_s.last().copied())
+        .fold(0.1f64, f64::max)
+        .min(
+            // enough for the slowest fitted line to reach −65 dB
+            room.curves
+                .iter()
+                .flat_map(|c| c.fits.iter().flatten())
+                .map(|f| 65.0 / -f.slope_db_per_s)
+                .fold(0.2f64, f64::max),
+        );
+    let n = room.curves.len();
+    let draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+        let mut chart = ChartBuilder::on(&body)
+            .margin_left(10)
+            .margin_right(30)
+            .margin_top(10)
+            .x_label_area_size(55)
+            .y_label_area_size(75)
+            .build_cartesian_2d(0.0..t_max, -70.0..2.0)?;
+        chart
+            .configure_mesh()
+            .x_desc("Time after the direct sound (s)")
+            .y_desc("Decay curve (dB re start, Schroeder integral)")
+            .x_label_formatter(&|v: &f64| format!("{v:.2}"))
+            .y_label_formatter(&|v: &f64| format!("{v:.0}"))
+            .label_style((FONT, 16))
+            .axis_desc_style((FONT, 18))
+            .bold_line_style(GRID)
+            .light_line_style(GRID_MINOR)
+            .draw()?;
+        for (k, c) in room.curves.iter().enumerate() {
+            let colour = band_colour(k, n);
+            let pts: Vec<(f64, f64)> = c
+                .time_s
+                .iter()
+                .zip(&c.level_db)
+                .map(|(t, l)| (*t, *l))
+                .filter(|(t, l)| *t <= t_max && *l >= -70.0)
+                .collect();
+            let (name, fit) = match (c.fits[2], c.fits[1], c.fits[0]) {
+                (Some(f), _, _) => ("T30", Some(f)),
+                (None, Some(f), _) => ("T20", Some(f)),
+                (None, None, Some(f)) => ("EDT", Some(f)),
+                _ => ("", None),
+            };
+            let label = match fit {
+                Some(f) => format!(
+                    "{} Hz: {name} {}",
+                    format_hz(c.band.nominal_hz),
+                    seconds(f.decay_time_s)
+                ),
+                None => format!("{} Hz: no decay time", format_hz(c.band.nominal_hz)),
+            };
+            chart
+                .draw_series(LineSeries::new(pts, colour.stroke_width(2)))?
+                .label(label)
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 24, y)], colour.stroke_width(3))
+                });
+            if let Some(f) = fit {
+                let (a, b) = f.range_s;
+                let line = [a, b].map(|t| (t, f.intercept_db + f.slope_db_per_s * t));
+                chart.draw_series(DashedLineSeries::new(
+                    line,
+                    5,
+                    4,
+                    BLACK.mix(0.7).stroke_width(1),
+                ))?;
+            }
+        }
+        chart
+            .draw_series(std::iter::once(PathElement::new(vec![(0.0, -80.0)], GRID)))?
+            .label("dashed: fitted line over the evaluation range")
+            .legend(|(x, y)| {
+                PathElement::new(
+                    vec![(x, y), (x + 6, y), (x + 10, y), (x + 16, y)],
+                    BLACK.mix(0.7).stroke_width(1),
+                )
+            });
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .background_style(WHITE.mix(0.85))
+            .border_style(GRID)
+            .label_font((FONT, 15))
+            .draw()?;
+        Ok(())
+    };
+    draw().map_err(plot_error(path))?;
+    root.present().map_err(plot_error(path))?;
+    Ok(())
+}
+
+/// Draws T20, T30 and EDT per octave band (markers) with T30 per
+/// one-third-octave band (thin), on a log frequency axis.
+pub fn reverberation_png(
+    path: &Path,
+    title: &str,
+    room: &crate::analysis::room::Room,
+) -> Result<()> {
+    register_font();
+    let root = BitMapBackend::new(path, SIZE).into_drawing_area();
+    root.fill(&WHITE).map_err(plot_error(path))?;
+    let (head, body) = root.split_vertically(50);
+    head.draw(&Text::new(
+        format!("Reverberation time per band — {title}"),
+        (20, 14),
+        (FONT, 24).into_font(),
+    ))
+    .map_err(plot_error(path))?;
+    let get = |fraction: &str,
+               f: fn(&crate::analysis::room::BandResult) -> Option<f64>|
+     -> Vec<(f64, f64)> {
+        room.bands
+            .iter()
+            .filter(|b| b.fraction == fraction)
+            .filter_map(|b| f(b).map(|v| (b.center_hz, v)))
+            .collect()
+    };
+    let t30 = get("1/1", |b| b.t30_s);
+    let t20 = get("1/1", |b| b.t20_s);
+    let edt = get("1/1", |b| b.edt_s);
+    let third = get("1/3", |b| b.t30_s);
+    let all: Vec<f64> = [&t30, &t20, &edt, &third]
+        .iter()
+        .flat_map(|v| v.iter().map(|p| p.1))
+        .collect();
+    let y_max = (all.iter().cloned().fold(0.1f64, f64::max) * 1.25 * 10.0).ceil() / 10.0;
+    let freqs: Vec<f64> = room.bands.iter().map(|b| b.center_hz).collect();
+    let f_lo = freqs
+        .iter()
+        .cloned()
+        .fold(f64::INFINITY, f64::min)
+        .min(31.5)
+        / 1.3;
+    let f_hi = freqs.iter().cloned().fold(0.0f64, f64::max).max(1000.0) * 1.3;
+    let (bold, light) = log_ticks(f_lo, f_hi);
+    let draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+        let mut chart = ChartBuilder::on(&body)
+            .margin_left(10)
+            .margin_right(30)
+            .margin_top(10)
+            .x_label_area_size(55)
+            .y_label_area_size(75)
+            .build_cartesian_2d(
+                (f_lo..f_hi)
+                    .log_scale()
+                    .with_key_points(bold)
+                    .with_light_points(light),
+                0.0..y_max,
+            )?;
+        chart
+            .configure_mesh()
+            .x_labels(40)
+            .x_label_formatter(&log_label)
+            .y_label_formatter(&|v: &f64| format!("{v:.1}"))
+            .x_desc("Band centre frequency (Hz)")
+            .y_desc("Decay time (s)")
+            .label_style((FONT, 16))
+            .axis_desc_style((FONT, 18))
+            .bold_line_style(GRID)
+            .light_line_style(GRID_MINOR)
+            .draw()?;
+        let grey = RGBColor(150, 150, 150);
+        chart
+            .draw_series(LineSeries::new(third.iter().copied(), grey.stroke_width(1)))?
+            .label("T30, one-third octaves")
+            .legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 24, y)], grey.stroke_width(1))
+            });
+        chart.draw_series(third.iter().map(|&p| Circle::new(p, 2, grey.filled())))?;
+        for (series, name, colour) in [
+            (&t30, "T30, octaves", BLUE),
+            (&t20, "T20, octaves", ORANGE),
+            (&edt, "EDT, octaves", order_colour(3)),
+        ] {
+            chart
+                .draw_series(LineSeries::new(
+                    series.iter().copied(),
+                    colour.stroke_width(2),
+                ))?
+                .label(name)
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 24, y)], colour.stroke_width(3))
+                });
+            chart.draw_series(series.iter().map(|&p| Circle::new(p, 5, colour.filled())))?;
+        }
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .background_style(WHITE.mix(0.85))
+            .border_style(GRID)
+            .label_font((FONT, 15))
+            .draw()?;
+        Ok(())
+    };
+    draw().map_err(plot_error(path))?;
+    root.present().map_err(plot_error(path))?;
+    Ok(())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -148,6 +148,9 @@ pub fn run(job: &Job) -> Result<Outcome> {
     if analysis.distortion.is_some() {
         files.push("distortion.csv".into());
     }
+    if analysis.room.is_some() {
+        files.push("bands.csv".into());
+    }
     if job.plots {
         files.extend(plot_files(&analysis).iter().map(|s| s.to_string()));
     }
@@ -192,10 +195,21 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<(
     if let Some(d) = &a.distortion {
         derived("distortion.csv", distortion_csv(d, &a.response)?)?;
     }
+    if let Some(r) = &a.room {
+        derived("bands.csv", bands_csv(r)?)?;
+    }
     if job.plots {
         for rel in plot_files(a) {
             let tmp = folder.temp_path(rel);
-            if rel.ends_with("distortion.png") {
+            if rel.ends_with("decay.png") || rel.ends_with("reverberation.png") {
+                if let Some(r) = &a.room {
+                    if rel.ends_with("decay.png") {
+                        plot::decay_png(&tmp, &job.title, r)?;
+                    } else {
+                        plot::reverberation_png(&tmp, &job.title, r)?;
+                    }
+                }
+            } else if rel.ends_with("distortion.png") {
                 if let Some(d) = &a.distortion {
                     plot::distortion_png(&tmp, &job.title, &a.response, d)?;
                 }
@@ -244,6 +258,7 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<(
             smoothing: job.config.smoothing.label(),
             plots: job.plots,
             harmonics: job.config.harmonics,
+            bands: job.config.bands,
         },
         files,
     };
@@ -255,6 +270,10 @@ fn plot_files(a: &Analysis) -> Vec<&'static str> {
     let mut v = vec!["plots/response.png", "plots/impulse.png"];
     if a.distortion.is_some() {
         v.push("plots/distortion.png");
+    }
+    if a.room.is_some() {
+        v.push("plots/decay.png");
+        v.push("plots/reverberation.png");
     }
     v
 }
@@ -311,6 +330,48 @@ pub fn distortion_csv(
         .map_err(|e| Error::input(format!("could not encode CSV: {e}")))
 }
 
+/// bands.csv: one row per band (octave, then one-third octave, then
+/// broadband) with every parameter; empty cells where not measured.
+pub fn bands_csv(r: &crate::analysis::room::Room) -> Result<Vec<u8>> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let err = |e: csv::Error| Error::input(format!("could not encode CSV: {e}"));
+    w.write_record([
+        "center_hz",
+        "fraction",
+        "edt_s",
+        "t20_s",
+        "t30_s",
+        "c50_db",
+        "c80_db",
+        "d50",
+        "ts_s",
+        "inr_db",
+        "curvature_percent",
+        "warnings",
+    ])
+    .map_err(err)?;
+    let cell = |v: Option<f64>, digits: usize| v.map_or(String::new(), |x| format!("{x:.digits$}"));
+    for b in r.bands.iter().chain(std::iter::once(&r.broadband)) {
+        w.write_record([
+            format!("{}", b.center_hz),
+            b.fraction.clone(),
+            cell(b.edt_s, 3),
+            cell(b.t20_s, 3),
+            cell(b.t30_s, 3),
+            cell(b.c50_db, 2),
+            cell(b.c80_db, 2),
+            cell(b.d50, 3),
+            cell(b.ts_s, 4),
+            cell(b.inr_db, 1),
+            cell(b.curvature_percent, 1),
+            b.warnings.join("; "),
+        ])
+        .map_err(err)?;
+    }
+    w.into_inner()
+        .map_err(|e| Error::input(format!("could not encode CSV: {e}")))
+}
+
 /// results.json of an analysis.
 pub fn results_record(a: &Analysis) -> Results {
     Results {
@@ -335,6 +396,8 @@ pub fn results_record(a: &Analysis) -> Results {
             phase_deg: a.response.phase_deg.clone(),
         },
         distortion: a.distortion.clone(),
+        bands: a.room.as_ref().map(|r| r.bands.clone()).unwrap_or_default(),
+        broadband: a.room.as_ref().map(|r| r.broadband.clone()),
         warnings: a.warnings.clone(),
     }
 }

@@ -4,6 +4,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::analysis::Distortion;
+use crate::analysis::room::BandResult;
 use crate::signal::sweep::SweepDesign;
 
 /// Version of results.json and manifest.json.
@@ -31,6 +32,13 @@ pub struct Results {
     /// The harmonic distortion orders and THD (`null` with --harmonics 1).
     #[serde(default)]
     pub distortion: Option<Distortion>,
+    /// Octave then one-third-octave bands (ISO 3382-1 parameters); empty
+    /// with --no-bands.
+    #[serde(default)]
+    pub bands: Vec<BandResult>,
+    /// The same parameters over the whole sweep band.
+    #[serde(default)]
+    pub broadband: Option<BandResult>,
     /// Warnings, in plain words.
     pub warnings: Vec<String>,
 }
@@ -119,6 +127,9 @@ pub struct Settings {
     /// Highest harmonic order separated (1 = none).
     #[serde(default)]
     pub harmonics: u32,
+    /// Whether the band parameters were analysed.
+    #[serde(default)]
+    pub bands: bool,
 }
 
 /// One file of the folder.

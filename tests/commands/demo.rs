@@ -43,7 +43,7 @@ fn the_demo_writes_a_complete_measurement_folder() {
     assert_eq!(m["source"]["kind"], "virtual");
     let files = m["files"].as_array().unwrap();
     // every file but the manifest itself
-    assert_eq!(files.len(), 9);
+    assert_eq!(files.len(), 12);
     for f in files {
         let bytes = std::fs::read(dir.join(f["name"].as_str().unwrap())).unwrap();
         let hex: String = Sha256::digest(&bytes)
@@ -176,4 +176,81 @@ fn the_virtual_woofer_distorts_more_at_low_frequencies() {
     }
     let csv = std::fs::read_to_string(t.path().join("d/distortion.csv")).unwrap();
     assert!(csv.starts_with("frequency_hz,fundamental_db,h2_db,h2_noise_floor_db,"));
+}
+
+#[test]
+fn the_demo_room_decays_longer_at_low_frequencies() {
+    // the virtual room's diffuse tail has T 0.85 s at 125 Hz and 0.45 s at
+    // 4 kHz (its own parameters); one realisation scatters by σ(T30) ≈
+    // 0.55·T·√(2.52/(B·T)) (ISO 3382-2, REFERENCES.md [sec]) — 8 % at
+    // 125 Hz, 2 % at 4 kHz — so allow 3σ
+    let t = tempfile::tempdir().unwrap();
+    ok(
+        t.path(),
+        &["demo", "--out", "d", "--no-plots", "--harmonics", "1"],
+    );
+    let r = json(&t.path().join("d/results.json"));
+    let bands = r["bands"].as_array().unwrap();
+    let t30 = |hz: f64| {
+        bands
+            .iter()
+            .find(|b| b["fraction"] == "1/1" && b["center_hz"].as_f64() == Some(hz))
+            .and_then(|b| b["t30_s"].as_f64())
+            .unwrap()
+    };
+    assert!(
+        (t30(125.0) / 0.85 - 1.0).abs() < 0.25,
+        "125 Hz T30 {}",
+        t30(125.0)
+    );
+    assert!(
+        (t30(4000.0) / 0.45 - 1.0).abs() < 0.06,
+        "4 kHz T30 {}",
+        t30(4000.0)
+    );
+    assert!(t30(125.0) > t30(4000.0));
+    // the schema of DESIGN.md, and bands.csv beside it
+    for b in bands {
+        for key in [
+            "center_hz",
+            "fraction",
+            "edt_s",
+            "t20_s",
+            "t30_s",
+            "c50_db",
+            "c80_db",
+            "d50",
+            "ts_s",
+            "inr_db",
+            "warnings",
+        ] {
+            assert!(b.get(key).is_some(), "{key} missing");
+        }
+    }
+    assert!(bands.iter().any(|b| b["fraction"] == "1/3"));
+    let csv = std::fs::read_to_string(t.path().join("d/bands.csv")).unwrap();
+    assert!(csv.starts_with("center_hz,fraction,edt_s,t20_s,t30_s,c50_db,c80_db,d50,ts_s,inr_db,"));
+    assert_eq!(
+        csv.lines().count(),
+        bands.len() + 2,
+        "a row per band, the broadband row and the header"
+    );
+    // and --no-bands leaves them out
+    ok(
+        t.path(),
+        &[
+            "demo",
+            "--out",
+            "e",
+            "--no-plots",
+            "--no-bands",
+            "--length",
+            "1",
+            "--tail",
+            "0.5",
+        ],
+    );
+    let r = json(&t.path().join("e/results.json"));
+    assert!(r["bands"].as_array().unwrap().is_empty());
+    assert!(!t.path().join("e/bands.csv").exists());
 }
