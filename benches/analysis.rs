@@ -7,7 +7,7 @@
 use criterion::{Criterion, criterion_group, criterion_main};
 use std::hint::black_box;
 
-use gliss::analysis::{AnalysisConfig, analyze, smoothing};
+use gliss::analysis::{AnalysisConfig, analyze, room, smoothing};
 use gliss::audio::virtual_system::VirtualSystem;
 use gliss::deconv;
 use gliss::signal::sweep::SweepParams;
