@@ -27,7 +27,7 @@ fn bench(c: &mut Criterion) {
     let mut g = c.benchmark_group("analysis_5s_48k_3s_tail");
     g.sample_size(30);
     g.bench_function(
-        "whole analysis (impulse, 1/6-octave response, orders 2-5)",
+        "whole analysis (impulse, 1/6-octave response, orders 2-5, bands)",
         |b| b.iter(|| analyze(black_box(&recording), &stimulus, &design, &config).unwrap()),
     );
     let linear_only = AnalysisConfig {

@@ -218,7 +218,10 @@ pub fn analyze(ir: &[f64], fs: f64, f1: f64, f2: f64) -> Room {
         let k = ((band.stop_hz() / df).ceil() as usize + 1).min(m / 2 + 1);
         let m2 = fft::fast_len(2 * k).min(m);
         let mut spec = vec![rustfft::num_complex::Complex::new(0.0, 0.0); m2 / 2 + 1];
-        for (i, v) in spec.iter_mut().enumerate().take(k) {
+        // below fm²/stop the filter is as far down as above stop (the
+        // shape is symmetric in 1/Ω): leave those bins at zero
+        let from = ((band.exact_hz * band.exact_hz / band.stop_hz()) / df).floor() as usize;
+        for (i, v) in spec.iter_mut().enumerate().take(k).skip(from) {
             *v = spectrum[i] * band.power_gain(i as f64 * df).sqrt();
         }
         let x = fft::irfft(&mut spec, m2);
