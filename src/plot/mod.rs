@@ -6,7 +6,10 @@
 use std::path::Path;
 use std::sync::Once;
 
-use plotters::coord::Shift;
+use plotters::chart::MeshStyle;
+use plotters::coord::ranged1d::ValueFormatter;
+use plotters::coord::{CoordTranslate, Shift};
+use plotters::drawing::DrawingAreaErrorKind;
 use plotters::prelude::*;
 
 use crate::analysis::etc;
@@ -36,6 +39,70 @@ fn register_font() {
         // The bytes are a valid TrueType font compiled into the binary.
         let _ = plotters::style::register_font(FONT, FontStyle::Normal, FONT_BYTES);
     });
+}
+
+type Area<'a> = DrawingArea<BitMapBackend<'a>, Shift>;
+
+/// A white canvas of [`SIZE`] with `heading` across its top: the root (to
+/// present when done) and the area below the heading.
+fn canvas<'a>(path: &'a Path, heading: &str) -> Result<(Area<'a>, Area<'a>)> {
+    register_font();
+    let root = BitMapBackend::new(path, SIZE).into_drawing_area();
+    root.fill(&WHITE).map_err(plot_error(path))?;
+    let (head, body) = root.split_vertically(50);
+    head.draw(&Text::new(
+        heading.to_string(),
+        (20, 14),
+        (FONT, 24).into_font(),
+    ))
+    .map_err(plot_error(path))?;
+    Ok((root, body))
+}
+
+/// A chart on `area` with the house margins; `x_label_area` px for the
+/// x labels (more where the axis has a title).
+fn chart_builder<'a, 'b>(
+    area: &'a Area<'b>,
+    x_label_area: u32,
+) -> ChartBuilder<'a, 'b, BitMapBackend<'b>> {
+    let mut b = ChartBuilder::on(area);
+    b.margin_left(10)
+        .margin_right(30)
+        .margin_top(10)
+        .x_label_area_size(x_label_area)
+        .y_label_area_size(75);
+    b
+}
+
+/// The mesh of `chart` in the house style: fonts and grey grid lines.
+fn styled_mesh<'a, 'b, DB, XT, YT, X, Y>(
+    chart: &'b mut ChartContext<'a, DB, Cartesian2d<X, Y>>,
+) -> MeshStyle<'a, 'b, X, Y, DB>
+where
+    DB: DrawingBackend,
+    X: Ranged<ValueType = XT> + ValueFormatter<XT>,
+    Y: Ranged<ValueType = YT> + ValueFormatter<YT>,
+{
+    let mut m = chart.configure_mesh();
+    m.label_style((FONT, 16))
+        .axis_desc_style((FONT, 18))
+        .bold_line_style(GRID)
+        .light_line_style(GRID_MINOR);
+    m
+}
+
+/// Draws the legend of `chart` at `position` in the house style.
+fn legend<'a, DB: DrawingBackend + 'a, CT: CoordTranslate>(
+    chart: &mut ChartContext<'a, DB, CT>,
+    position: SeriesLabelPosition,
+) -> std::result::Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
+    chart
+        .configure_series_labels()
+        .position(position)
+        .background_style(WHITE.mix(0.85))
+        .border_style(GRID)
+        .label_font((FONT, 15))
+        .draw()
 }
 
 fn plot_error<E: std::fmt::Display>(path: &Path) -> impl FnOnce(E) -> Error + '_ {
@@ -125,17 +192,8 @@ pub fn response_png(
     phase_deg: &[f64],
     smoothing: &str,
 ) -> Result<()> {
-    register_font();
     let err = plot_error(path);
-    let root = BitMapBackend::new(path, SIZE).into_drawing_area();
-    root.fill(&WHITE).map_err(plot_error(path))?;
-    let (head, body) = root.split_vertically(50);
-    head.draw(&Text::new(
-        format!("Frequency response — {title}"),
-        (20, 14),
-        (FONT, 24).into_font(),
-    ))
-    .map_err(plot_error(path))?;
+    let (root, body) = canvas(path, &format!("Frequency response — {title}"))?;
     let (top, bottom) = body.split_vertically((body.dim_in_pixel().1 as f64 * 0.64) as u32);
     let f1 = frequency_hz.first().copied().unwrap_or(20.0);
     let f2 = frequency_hz.last().copied().unwrap_or(20_000.0);
@@ -183,28 +241,18 @@ fn draw_log_panel(
     x_desc: bool,
     series: &[Series<'_>],
 ) -> std::result::Result<(), Box<dyn std::error::Error>> {
-    let mut chart = ChartBuilder::on(area)
-        .margin_left(10)
-        .margin_right(30)
-        .margin_top(10)
-        .x_label_area_size(if x_desc { 55 } else { 30 })
-        .y_label_area_size(75)
-        .build_cartesian_2d(
-            (f1..f2)
-                .log_scale()
-                .with_key_points(log_ticks(f1, f2).0)
-                .with_light_points(log_ticks(f1, f2).1),
-            lo..hi,
-        )?;
-    let mut mesh = chart.configure_mesh();
+    let mut chart = chart_builder(area, if x_desc { 55 } else { 30 }).build_cartesian_2d(
+        (f1..f2)
+            .log_scale()
+            .with_key_points(log_ticks(f1, f2).0)
+            .with_light_points(log_ticks(f1, f2).1),
+        lo..hi,
+    )?;
+    let mut mesh = styled_mesh(&mut chart);
     mesh.x_labels(40)
         .x_label_formatter(&log_label)
         .y_label_formatter(&|v: &f64| format!("{v:.0}"))
-        .y_desc(y_desc)
-        .label_style((FONT, 16))
-        .axis_desc_style((FONT, 18))
-        .bold_line_style(GRID)
-        .light_line_style(GRID_MINOR);
+        .y_desc(y_desc);
     if x_desc {
         mesh.x_desc("Frequency (Hz)");
     }
@@ -225,13 +273,7 @@ fn draw_log_panel(
                 PathElement::new(vec![(x, y), (x + 24, y)], colour.stroke_width(3))
             });
     }
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::LowerRight)
-        .background_style(WHITE.mix(0.85))
-        .border_style(GRID)
-        .label_font((FONT, 16))
-        .draw()?;
+    legend(&mut chart, SeriesLabelPosition::LowerRight)?;
     Ok(())
 }
 
@@ -279,23 +321,12 @@ pub fn impulse_png(
     let d_ms = delay_s * 1e3;
     let (a, b) = (d_ms - 5.0, d_ms + 60.0);
     let draw_top = || -> std::result::Result<(), Box<dyn std::error::Error>> {
-        let mut chart = ChartBuilder::on(&top)
-            .margin_left(10)
-            .margin_right(30)
-            .margin_top(10)
-            .x_label_area_size(50)
-            .y_label_area_size(75)
-            .build_cartesian_2d(a..b, -1.05..1.05)?;
-        chart
-            .configure_mesh()
+        let mut chart = chart_builder(&top, 50).build_cartesian_2d(a..b, -1.05..1.05)?;
+        styled_mesh(&mut chart)
             .x_desc("Time after the start of the recording (ms)")
             .y_desc("Amplitude (re peak)")
             .x_label_formatter(&|v: &f64| format!("{v:.0}"))
             .y_label_formatter(&|v: &f64| format!("{:.1}", (v * 10.0).round() / 10.0 + 0.0))
-            .label_style((FONT, 16))
-            .axis_desc_style((FONT, 18))
-            .bold_line_style(GRID)
-            .light_line_style(GRID_MINOR)
             .draw()?;
         let pts = ir
             .iter()
@@ -306,13 +337,7 @@ pub fn impulse_png(
             .draw_series(LineSeries::new(pts, BLUE.stroke_width(1)))?
             .label(format!("impulse response, peak at {d_ms:.3} ms"))
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], BLUE.stroke_width(3)));
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(GRID)
-            .label_font((FONT, 16))
-            .draw()?;
+        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
         Ok(())
     };
     draw_top().map_err(plot_error(path))?;
@@ -326,36 +351,20 @@ pub fn impulse_png(
     };
     let (ta, tb) = (t_ms(0), t_ms(ir.len().saturating_sub(1)));
     let draw_bottom = || -> std::result::Result<(), Box<dyn std::error::Error>> {
-        let mut chart = ChartBuilder::on(&bottom)
-            .margin_left(10)
-            .margin_right(30)
-            .margin_top(10)
-            .x_label_area_size(50)
-            .y_label_area_size(75)
-            .build_cartesian_2d(ta..tb, floor.max(-120.0)..3.0)?;
-        chart
-            .configure_mesh()
+        let mut chart =
+            chart_builder(&bottom, 50).build_cartesian_2d(ta..tb, floor.max(-120.0)..3.0)?;
+        styled_mesh(&mut chart)
             .x_desc("Time after the start of the recording (ms)")
             .y_desc("Energy (dB re peak)")
             .x_label_formatter(&|v: &f64| format!("{v:.0}"))
             .y_label_formatter(&|v: &f64| format!("{v:.0}"))
-            .label_style((FONT, 16))
-            .axis_desc_style((FONT, 18))
-            .bold_line_style(GRID)
-            .light_line_style(GRID_MINOR)
             .draw()?;
         let pts = reduced.iter().map(|(i, v)| (t_ms(*i), *v));
         chart
             .draw_series(LineSeries::new(pts, ORANGE.stroke_width(1)))?
             .label("energy-time curve (squared envelope)")
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], ORANGE.stroke_width(3)));
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(GRID)
-            .label_font((FONT, 16))
-            .draw()?;
+        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
         Ok(())
     };
     draw_bottom().map_err(plot_error(path))?;
@@ -386,16 +395,7 @@ pub fn distortion_png(
     response: &crate::analysis::FrequencyResponse,
     d: &crate::analysis::Distortion,
 ) -> Result<()> {
-    register_font();
-    let root = BitMapBackend::new(path, SIZE).into_drawing_area();
-    root.fill(&WHITE).map_err(plot_error(path))?;
-    let (head, body) = root.split_vertically(50);
-    head.draw(&Text::new(
-        format!("Harmonic distortion — {title}"),
-        (20, 14),
-        (FONT, 24).into_font(),
-    ))
-    .map_err(plot_error(path))?;
+    let (root, body) = canvas(path, &format!("Harmonic distortion — {title}"))?;
     let (top, bottom) = body.split_vertically((body.dim_in_pixel().1 as f64 * 0.6) as u32);
     let f = &response.frequency_hz;
     let fund = &response.magnitude_db;
@@ -443,29 +443,18 @@ pub fn distortion_png(
     let top_lo = top_hi - 110.0;
     let (bold, light) = log_ticks(f1, f2);
     let draw_top = || -> std::result::Result<(), Box<dyn std::error::Error>> {
-        let mut chart = ChartBuilder::on(&top)
-            .margin_left(10)
-            .margin_right(30)
-            .margin_top(10)
-            .x_label_area_size(30)
-            .y_label_area_size(75)
-            .build_cartesian_2d(
-                (f1..f2)
-                    .log_scale()
-                    .with_key_points(bold.clone())
-                    .with_light_points(light.clone()),
-                top_lo..top_hi,
-            )?;
-        chart
-            .configure_mesh()
+        let mut chart = chart_builder(&top, 30).build_cartesian_2d(
+            (f1..f2)
+                .log_scale()
+                .with_key_points(bold.clone())
+                .with_light_points(light.clone()),
+            top_lo..top_hi,
+        )?;
+        styled_mesh(&mut chart)
             .x_labels(40)
             .x_label_formatter(&log_label)
             .y_label_formatter(&|v: &f64| format!("{v:.0}"))
             .y_desc("Level (dB re sweep)")
-            .label_style((FONT, 16))
-            .axis_desc_style((FONT, 18))
-            .bold_line_style(GRID)
-            .light_line_style(GRID_MINOR)
             .draw()?;
         let fund_pts: Vec<(f64, f64)> = f
             .iter()
@@ -549,13 +538,7 @@ pub fn distortion_png(
                     RGBColor(150, 150, 150).stroke_width(1),
                 )
             });
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::MiddleRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(GRID)
-            .label_font((FONT, 15))
-            .draw()?;
+        legend(&mut chart, SeriesLabelPosition::MiddleRight)?;
         Ok(())
     };
     draw_top().map_err(plot_error(path))?;
@@ -584,21 +567,14 @@ pub fn distortion_png(
     let hi = 10f64.powf(ymax.log10().ceil());
     let lo = 10f64.powf(ymin.log10().floor()).min(hi / 100.0);
     let draw_bottom = || -> std::result::Result<(), Box<dyn std::error::Error>> {
-        let mut chart = ChartBuilder::on(&bottom)
-            .margin_left(10)
-            .margin_right(30)
-            .margin_top(10)
-            .x_label_area_size(55)
-            .y_label_area_size(75)
-            .build_cartesian_2d(
-                (f1..f2)
-                    .log_scale()
-                    .with_key_points(bold.clone())
-                    .with_light_points(light.clone()),
-                (lo..hi).log_scale(),
-            )?;
-        chart
-            .configure_mesh()
+        let mut chart = chart_builder(&bottom, 55).build_cartesian_2d(
+            (f1..f2)
+                .log_scale()
+                .with_key_points(bold.clone())
+                .with_light_points(light.clone()),
+            (lo..hi).log_scale(),
+        )?;
+        styled_mesh(&mut chart)
             .x_labels(40)
             .x_label_formatter(&log_label)
             .y_label_formatter(&|v: &f64| {
@@ -610,10 +586,6 @@ pub fn distortion_png(
             })
             .x_desc("Excitation frequency (Hz)")
             .y_desc("THD")
-            .label_style((FONT, 16))
-            .axis_desc_style((FONT, 18))
-            .bold_line_style(GRID)
-            .light_line_style(GRID_MINOR)
             .draw()?;
         chart
             .draw_series(DashedLineSeries::new(
@@ -636,13 +608,7 @@ pub fn distortion_png(
                 d.harmonics, d.smoothing
             ))
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], BLUE.stroke_width(3)));
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(GRID)
-            .label_font((FONT, 15))
-            .draw()?;
+        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
         Ok(())
     };
     draw_bottom().map_err(plot_error(path))?;
@@ -685,16 +651,7 @@ fn seconds(v: f64) -> String {
 /// Draws the Schroeder decay curves of the octave bands, each with the
 /// line fitted for T30 (or T20, or EDT) over its evaluation range.
 pub fn decay_png(path: &Path, title: &str, room: &crate::analysis::room::Room) -> Result<()> {
-    register_font();
-    let root = BitMapBackend::new(path, SIZE).into_drawing_area();
-    root.fill(&WHITE).map_err(plot_error(path))?;
-    let (head, body) = root.split_vertically(50);
-    head.draw(&Text::new(
-        format!("Energy decay per octave band — {title}"),
-        (20, 14),
-        (FONT, 24).into_font(),
-    ))
-    .map_err(plot_error(path))?;
+    let (root, body) = canvas(path, &format!("Energy decay per octave band — {title}"))?;
     let t_max = room
         .curves
         .iter()
@@ -710,23 +667,12 @@ pub fn decay_png(path: &Path, title: &str, room: &crate::analysis::room::Room) -
         );
     let n = room.curves.len();
     let draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
-        let mut chart = ChartBuilder::on(&body)
-            .margin_left(10)
-            .margin_right(30)
-            .margin_top(10)
-            .x_label_area_size(55)
-            .y_label_area_size(75)
-            .build_cartesian_2d(0.0..t_max, -70.0..2.0)?;
-        chart
-            .configure_mesh()
+        let mut chart = chart_builder(&body, 55).build_cartesian_2d(0.0..t_max, -70.0..2.0)?;
+        styled_mesh(&mut chart)
             .x_desc("Time after the direct sound (s)")
             .y_desc("Decay curve (dB re start, Schroeder integral)")
             .x_label_formatter(&|v: &f64| format!("{v:.2}"))
             .y_label_formatter(&|v: &f64| format!("{v:.0}"))
-            .label_style((FONT, 16))
-            .axis_desc_style((FONT, 18))
-            .bold_line_style(GRID)
-            .light_line_style(GRID_MINOR)
             .draw()?;
         for (k, c) in room.curves.iter().enumerate() {
             let colour = band_colour(k, n);
@@ -777,13 +723,7 @@ pub fn decay_png(path: &Path, title: &str, room: &crate::analysis::room::Room) -
                     BLACK.mix(0.7).stroke_width(1),
                 )
             });
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(GRID)
-            .label_font((FONT, 15))
-            .draw()?;
+        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
         Ok(())
     };
     draw().map_err(plot_error(path))?;
@@ -798,16 +738,7 @@ pub fn reverberation_png(
     title: &str,
     room: &crate::analysis::room::Room,
 ) -> Result<()> {
-    register_font();
-    let root = BitMapBackend::new(path, SIZE).into_drawing_area();
-    root.fill(&WHITE).map_err(plot_error(path))?;
-    let (head, body) = root.split_vertically(50);
-    head.draw(&Text::new(
-        format!("Reverberation time per band — {title}"),
-        (20, 14),
-        (FONT, 24).into_font(),
-    ))
-    .map_err(plot_error(path))?;
+    let (root, body) = canvas(path, &format!("Reverberation time per band — {title}"))?;
     let get = |fraction: &str,
                f: fn(&crate::analysis::room::BandResult) -> Option<f64>|
      -> Vec<(f64, f64)> {
@@ -836,30 +767,19 @@ pub fn reverberation_png(
     let f_hi = freqs.iter().cloned().fold(0.0f64, f64::max).max(1000.0) * 1.3;
     let (bold, light) = log_ticks(f_lo, f_hi);
     let draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
-        let mut chart = ChartBuilder::on(&body)
-            .margin_left(10)
-            .margin_right(30)
-            .margin_top(10)
-            .x_label_area_size(55)
-            .y_label_area_size(75)
-            .build_cartesian_2d(
-                (f_lo..f_hi)
-                    .log_scale()
-                    .with_key_points(bold)
-                    .with_light_points(light),
-                0.0..y_max,
-            )?;
-        chart
-            .configure_mesh()
+        let mut chart = chart_builder(&body, 55).build_cartesian_2d(
+            (f_lo..f_hi)
+                .log_scale()
+                .with_key_points(bold)
+                .with_light_points(light),
+            0.0..y_max,
+        )?;
+        styled_mesh(&mut chart)
             .x_labels(40)
             .x_label_formatter(&log_label)
             .y_label_formatter(&|v: &f64| format!("{v:.1}"))
             .x_desc("Band centre frequency (Hz)")
             .y_desc("Decay time (s)")
-            .label_style((FONT, 16))
-            .axis_desc_style((FONT, 18))
-            .bold_line_style(GRID)
-            .light_line_style(GRID_MINOR)
             .draw()?;
         let grey = RGBColor(150, 150, 150);
         chart
@@ -885,13 +805,7 @@ pub fn reverberation_png(
                 });
             chart.draw_series(series.iter().map(|&p| Circle::new(p, 5, colour.filled())))?;
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(GRID)
-            .label_font((FONT, 15))
-            .draw()?;
+        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
         Ok(())
     };
     draw().map_err(plot_error(path))?;

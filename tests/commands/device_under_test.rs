@@ -5,65 +5,15 @@
 
 use rustfft::num_complex::Complex;
 
+use crate::cookbook::{filter, highpass, peaking, response};
 use crate::util::*;
-
-const FS: f64 = 48_000.0;
-
-/// Coefficients (b0, b1, b2, a1, a2), normalised by a0, as in the Cookbook.
-type Coeffs = [f64; 5];
-
-fn peaking(f0: f64, q: f64, gain_db: f64) -> Coeffs {
-    let a = 10f64.powf(gain_db / 40.0);
-    let w0 = std::f64::consts::TAU * f0 / FS;
-    let alpha = w0.sin() / (2.0 * q);
-    let a0 = 1.0 + alpha / a;
-    [
-        (1.0 + alpha * a) / a0,
-        -2.0 * w0.cos() / a0,
-        (1.0 - alpha * a) / a0,
-        -2.0 * w0.cos() / a0,
-        (1.0 - alpha / a) / a0,
-    ]
-}
-
-fn butterworth_highpass(f0: f64) -> Coeffs {
-    let w0 = std::f64::consts::TAU * f0 / FS;
-    let alpha = w0.sin() / (2.0 * std::f64::consts::FRAC_1_SQRT_2);
-    let c = w0.cos();
-    let a0 = 1.0 + alpha;
-    [
-        (1.0 + c) / 2.0 / a0,
-        -(1.0 + c) / a0,
-        (1.0 + c) / 2.0 / a0,
-        -2.0 * c / a0,
-        (1.0 - alpha) / a0,
-    ]
-}
-
-/// Direct form I: y[n] = b0x[n] + b1x[n−1] + b2x[n−2] − a1y[n−1] − a2y[n−2].
-fn filter(c: &Coeffs, x: &[f64]) -> Vec<f64> {
-    let mut y = vec![0.0; x.len()];
-    for n in 0..x.len() {
-        let x1 = if n >= 1 { x[n - 1] } else { 0.0 };
-        let x2 = if n >= 2 { x[n - 2] } else { 0.0 };
-        let y1 = if n >= 1 { y[n - 1] } else { 0.0 };
-        let y2 = if n >= 2 { y[n - 2] } else { 0.0 };
-        y[n] = c[0] * x[n] + c[1] * x1 + c[2] * x2 - c[3] * y1 - c[4] * y2;
-    }
-    y
-}
-
-fn response(c: &Coeffs, f: f64) -> Complex<f64> {
-    let z1 = Complex::from_polar(1.0, -std::f64::consts::TAU * f / FS);
-    (c[0] + z1 * c[1] + z1 * z1 * c[2]) / (1.0 + z1 * c[3] + z1 * z1 * c[4])
-}
 
 #[test]
 fn a_peaking_filter_after_a_highpass_matches_its_closed_form() {
     let t = tempfile::tempdir().unwrap();
     let sweep = make_sweep(t.path(), "sweep.wav", &["--length", "3", "--tail", "1"]);
     let x = read_wav(&sweep).1.remove(0);
-    let hp = butterworth_highpass(100.0);
+    let hp = highpass(100.0, std::f64::consts::FRAC_1_SQRT_2);
     let pk = peaking(1000.0, 1.0, 6.0);
     let y = filter(&pk, &filter(&hp, &x));
     write_wav_f32(&t.path().join("dut.wav"), 48_000, &[y]);

@@ -8,64 +8,23 @@
 //! n·f, so HD_n(f) = (V_n/V_1)·|G(n·f)|/|G(f)|. Chebyshev: T_n(cos θ) =
 //! cos nθ, so c·A·T_n(x/A) adds exactly c·A at harmonic n and nothing else.
 
-use rustfft::num_complex::Complex;
 use serde_json::Value;
 
+use crate::cookbook::{Coeffs, FS, filter, highpass, lowpass, response};
 use crate::util::*;
 
-const FS: f64 = 48_000.0;
-
-/// G: a 2nd-order Butterworth high-pass at 80 Hz (cookbook, Q = 1/√2)
-/// then a 2nd-order low-pass at 6 kHz (Q 0.9), so |G(n·f)|/|G(f)| varies
+/// G: a 2nd-order Butterworth high-pass at 80 Hz (Q = 1/√2) then a
+/// 2nd-order low-pass at 6 kHz (Q 0.9), so |G(n·f)|/|G(f)| varies
 /// across the band and the frequency convention of HD_n matters.
-fn g_sections() -> [[f64; 5]; 2] {
-    let hp = {
-        let w0 = std::f64::consts::TAU * 80.0 / FS;
-        let alpha = w0.sin() / (2.0 * std::f64::consts::FRAC_1_SQRT_2);
-        let c = w0.cos();
-        let a0 = 1.0 + alpha;
-        [
-            (1.0 + c) / 2.0 / a0,
-            -(1.0 + c) / a0,
-            (1.0 + c) / 2.0 / a0,
-            -2.0 * c / a0,
-            (1.0 - alpha) / a0,
-        ]
-    };
-    let lp = {
-        let w0 = std::f64::consts::TAU * 6000.0 / FS;
-        let alpha = w0.sin() / (2.0 * 0.9);
-        let c = w0.cos();
-        let a0 = 1.0 + alpha;
-        [
-            (1.0 - c) / 2.0 / a0,
-            (1.0 - c) / a0,
-            (1.0 - c) / 2.0 / a0,
-            -2.0 * c / a0,
-            (1.0 - alpha) / a0,
-        ]
-    };
-    [hp, lp]
-}
-
-fn filter(c: &[f64; 5], x: &[f64]) -> Vec<f64> {
-    let mut y = vec![0.0; x.len()];
-    for n in 0..x.len() {
-        let x1 = if n >= 1 { x[n - 1] } else { 0.0 };
-        let x2 = if n >= 2 { x[n - 2] } else { 0.0 };
-        let y1 = if n >= 1 { y[n - 1] } else { 0.0 };
-        let y2 = if n >= 2 { y[n - 2] } else { 0.0 };
-        y[n] = c[0] * x[n] + c[1] * x1 + c[2] * x2 - c[3] * y1 - c[4] * y2;
-    }
-    y
+fn g_sections() -> [Coeffs; 2] {
+    [
+        highpass(80.0, std::f64::consts::FRAC_1_SQRT_2),
+        lowpass(6000.0, 0.9),
+    ]
 }
 
 fn g_mag(f: f64) -> f64 {
-    let z1 = Complex::from_polar(1.0, -std::f64::consts::TAU * f / FS);
-    g_sections()
-        .iter()
-        .map(|c| ((c[0] + z1 * c[1] + z1 * z1 * c[2]) / (1.0 + z1 * c[3] + z1 * z1 * c[4])).norm())
-        .product()
+    g_sections().iter().map(|c| response(c, f).norm()).product()
 }
 
 /// Runs the nonlinearity `nl` (on the sweep normalised to its peak A)

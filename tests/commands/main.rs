@@ -1,6 +1,7 @@
 //! Integration tests: the real `gliss` binary on files the tests make, in
 //! temporary folders. One test binary, one module per subject.
 
+mod cookbook;
 mod util;
 
 mod bad_input;
