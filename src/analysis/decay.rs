@@ -6,13 +6,13 @@
 //!   response for every band.
 //! - Noise: the iterative truncation point and compensation of A. Lundeby,
 //!   T. E. Vigran, H. Bietz, M. Vorländer, Acustica 81(4), 1995 (steps as
-//!   quoted in REFERENCES.md [sec]).
+//!   quoted in REFERENCES.md, secondary source).
 //! - Decay curve: Schroeder's backward integration (M. R. Schroeder,
 //!   JASA 37(3), 1965) from the truncation point, plus the energy an
 //!   exponential with the late decay rate would still have had.
 //! - EDT, T20, T30: least-squares lines over 0…−10, −5…−25, −5…−35 dB,
 //!   extrapolated to 60 dB; C50, C80, D50, Ts from the energy integrals,
-//!   t = 0 at the onset (ISO 3382-1 definitions as quoted [sec]).
+//!   t = 0 at the onset (ISO 3382-1 definitions as quoted, secondary source).
 
 use serde::{Deserialize, Serialize};
 

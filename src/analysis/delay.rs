@@ -4,7 +4,7 @@
 /// Half-width, in samples, of the windowed-sinc interpolator.
 pub const SINC_HALF_WIDTH: usize = 48;
 
-/// Index of the largest |h[i]| for i in `range` (clamped to h).
+/// Index of the largest `|h[i]|` for i in `range` (clamped to h).
 pub fn peak_index(h: &[f64], range: std::ops::Range<usize>) -> Option<usize> {
     let end = range.end.min(h.len());
     let start = range.start.min(end);

@@ -11,7 +11,7 @@ use crate::signal::fft;
 
 /// Decay range (dB above the noise) each parameter needs: its evaluation
 /// range must end at least 10 dB above the noise (ISO 3382-1; REFERENCES.md
-/// [mem]): EDT 0…−10 dB → 20, T20 −5…−25 → 35, T30 −5…−35 → 45. The
+/// from memory): EDT 0…−10 dB → 20, T20 −5…−25 → 35, T30 −5…−35 → 45. The
 /// energy parameters are given from 20 dB (our choice, as for EDT).
 pub const RANGE_EDT_DB: f64 = 20.0;
 /// See [`RANGE_EDT_DB`].

@@ -2,7 +2,7 @@
 //!
 //! Definitions follow F. J. Harris, "On the use of windows for harmonic
 //! analysis with the discrete Fourier transform", Proc. IEEE 66(1), 1978.
-//! Windows are "periodic" (DFT-even, the form Harris tabulates): w[n] for
+//! Windows are "periodic" (DFT-even, the form Harris tabulates): `w[n]` for
 //! n = 0..N with period N.
 
 use std::f64::consts::PI;
