@@ -189,11 +189,17 @@ pub fn analyze(
     // harmonic responses up to the 10th order sit in the last L·ln 10
     let harmonics_len = (design.harmonic_offset_s(10) * fs).round() as usize;
     let harmonics_start = n.saturating_sub(harmonics_len);
-    let peak_to_noise_db = peak_to_noise(&h, ipeak, end, harmonics_start);
+    let (peak_to_noise_db, from_noise) = peak_to_noise(&h, ipeak, end, harmonics_start);
     if peak_to_noise_db < MIN_PEAK_TO_NOISE_DB {
-        warnings.push(format!(
-            "the impulse response rises only {peak_to_noise_db:.0} dB above its noise; check that the recording holds this sweep, and raise the level"
-        ));
+        warnings.push(if from_noise {
+            format!(
+                "the impulse response rises only {peak_to_noise_db:.0} dB above its noise; check that the recording holds this sweep, and raise the level"
+            )
+        } else {
+            format!(
+                "the end of the impulse response is only {peak_to_noise_db:.0} dB below its peak, and no part of the recording holds noise alone to tell decay from noise (the sweep spans less than a decade, or its tail is short); lengthen --tail or widen the sweep"
+            )
+        });
     }
 
     let max_order = config.harmonics.min(distortion::MAX_ORDER);
@@ -270,14 +276,20 @@ pub fn analyze(
 }
 
 /// Peak energy of h over the mean energy between the end of the linear
-/// window and the start of the harmonic responses (orders up to 10), or,
-/// when there is no such stretch, over the last tenth of the linear
-/// window; in dB.
-fn peak_to_noise(h: &[f64], ipeak: usize, linear_end: isize, harmonics_start: usize) -> f64 {
+/// window and the start of the harmonic responses (orders up to 10), in
+/// dB, and `true`; or, when there is no such stretch, over the last tenth
+/// of the linear window (which may still hold the decay), and `false`.
+fn peak_to_noise(
+    h: &[f64],
+    ipeak: usize,
+    linear_end: isize,
+    harmonics_start: usize,
+) -> (f64, bool) {
     let peak = h[ipeak] * h[ipeak];
     let a = linear_end.max(0) as usize;
     let b = harmonics_start;
-    let region: &[f64] = if b > a + 64 {
+    let from_noise = b > a + 64;
+    let region: &[f64] = if from_noise {
         &h[a..b]
     } else {
         let lo = ipeak + (a.saturating_sub(ipeak)) * 9 / 10;
@@ -285,7 +297,7 @@ fn peak_to_noise(h: &[f64], ipeak: usize, linear_end: isize, harmonics_start: us
     };
     let noise = region.iter().map(|v| v * v).sum::<f64>() / region.len().max(1) as f64;
     if noise <= 0.0 {
-        return 300.0;
+        return (300.0, from_noise);
     }
-    10.0 * (peak / noise).log10()
+    (10.0 * (peak / noise).log10(), from_noise)
 }

@@ -353,7 +353,7 @@ pub fn bands_csv(r: &crate::analysis::room::Room) -> Result<Vec<u8>> {
     let cell = |v: Option<f64>, digits: usize| v.map_or(String::new(), |x| format!("{x:.digits$}"));
     for b in r.bands.iter().chain(std::iter::once(&r.broadband)) {
         w.write_record([
-            format!("{}", b.center_hz),
+            format!("{}", (b.center_hz * 10.0).round() / 10.0),
             b.fraction.clone(),
             cell(b.edt_s, 3),
             cell(b.t20_s, 3),
