@@ -12,6 +12,7 @@ pub mod decay;
 pub mod delay;
 pub mod distortion;
 pub mod etc;
+pub mod phase;
 pub mod response;
 pub mod room;
 pub mod smoothing;
@@ -79,6 +80,8 @@ pub struct Analysis {
     pub impulse: ImpulseResponse,
     /// The frequency response on the log grid.
     pub response: FrequencyResponse,
+    /// Unwrapped phase, group delay, minimum phase and excess group delay.
+    pub phase: phase::PhaseAnalysis,
     /// The harmonic distortion orders (`None` with `harmonics` = 1).
     pub distortion: Option<Distortion>,
     /// Reverberation and energy parameters per band (`None` without bands).
@@ -211,6 +214,15 @@ pub fn analyze(
         response::delay_free_spectrum(&ir, start as f64, delay_samples, fs, fft_len);
     deconv::remove_low_edge(&mut spec, df, f1);
     let response = response::on_grid(&spec, df, &grid, config.smoothing, (f1, f2));
+    let phase = phase::analyze(
+        &grid,
+        &response.phase_deg,
+        &spec,
+        df,
+        (f1, f2),
+        config.smoothing,
+        delay_samples / fs,
+    );
 
     let distortion = (max_order >= 2).then(|| {
         let a = end.max(0) as usize;
@@ -267,6 +279,7 @@ pub fn analyze(
             sample_rate_hz: design.params.sample_rate_hz,
         },
         response,
+        phase,
         distortion,
         room,
         peak_dbfs,

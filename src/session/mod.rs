@@ -201,7 +201,19 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<(
     if job.plots {
         for rel in plot_files(a) {
             let tmp = folder.temp_path(rel);
-            if rel.ends_with("decay.png") || rel.ends_with("reverberation.png") {
+            if rel.ends_with("phase.png") || rel.ends_with("group-delay.png") {
+                if rel.ends_with("phase.png") {
+                    plot::phase_png(&tmp, &job.title, &a.response.frequency_hz, &a.phase)?;
+                } else {
+                    plot::group_delay_png(
+                        &tmp,
+                        &job.title,
+                        &a.response.frequency_hz,
+                        &a.phase,
+                        a.delay_s,
+                    )?;
+                }
+            } else if rel.ends_with("decay.png") || rel.ends_with("reverberation.png") {
                 if let Some(r) = &a.room {
                     if rel.ends_with("decay.png") {
                         plot::decay_png(&tmp, &job.title, r)?;
@@ -267,7 +279,12 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<(
 
 /// The plots an analysis draws.
 fn plot_files(a: &Analysis) -> Vec<&'static str> {
-    let mut v = vec!["plots/response.png", "plots/impulse.png"];
+    let mut v = vec![
+        "plots/response.png",
+        "plots/impulse.png",
+        "plots/phase.png",
+        "plots/group-delay.png",
+    ];
     if a.distortion.is_some() {
         v.push("plots/distortion.png");
     }
@@ -394,6 +411,10 @@ pub fn results_record(a: &Analysis) -> Results {
             frequency_hz: a.response.frequency_hz.clone(),
             magnitude_db: a.response.magnitude_db.clone(),
             phase_deg: a.response.phase_deg.clone(),
+            phase_unwrapped_deg: a.phase.phase_unwrapped_deg.clone(),
+            group_delay_s: a.phase.group_delay_s.clone(),
+            minimum_phase_deg: a.phase.minimum_phase_deg.clone(),
+            excess_group_delay_s: a.phase.excess_group_delay_s.clone(),
         },
         distortion: a.distortion.clone(),
         bands: a.room.as_ref().map(|r| r.bands.clone()).unwrap_or_default(),

@@ -67,6 +67,18 @@ pub struct ResponseRecord {
     pub magnitude_db: Vec<f64>,
     /// Phase with the delay `delay_s` removed, degrees in (−180, 180].
     pub phase_deg: Vec<f64>,
+    /// The same phase unwrapped along the grid, degrees.
+    #[serde(default)]
+    pub phase_unwrapped_deg: Vec<f64>,
+    /// Group delay of that phase, s, relative to `delay_s`.
+    #[serde(default)]
+    pub group_delay_s: Vec<f64>,
+    /// The minimum phase the magnitude implies, degrees.
+    #[serde(default)]
+    pub minimum_phase_deg: Vec<f64>,
+    /// Group delay beyond the minimum phase, with `delay_s` put back, s.
+    #[serde(default)]
+    pub excess_group_delay_s: Vec<f64>,
 }
 
 /// manifest.json: what was done.

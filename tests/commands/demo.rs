@@ -23,8 +23,15 @@ fn the_demo_writes_a_complete_measurement_folder() {
         "impulse.wav",
         "results.json",
         "response.csv",
+        "distortion.csv",
+        "bands.csv",
         "plots/response.png",
         "plots/impulse.png",
+        "plots/phase.png",
+        "plots/group-delay.png",
+        "plots/distortion.png",
+        "plots/decay.png",
+        "plots/reverberation.png",
     ] {
         assert!(dir.join(f).is_file(), "{f} missing");
     }
@@ -32,7 +39,11 @@ fn the_demo_writes_a_complete_measurement_folder() {
     for p in [
         "plots/response.png",
         "plots/impulse.png",
+        "plots/phase.png",
+        "plots/group-delay.png",
         "plots/distortion.png",
+        "plots/decay.png",
+        "plots/reverberation.png",
     ] {
         let b = std::fs::read(dir.join(p)).unwrap();
         assert_eq!(&b[..8], b"\x89PNG\r\n\x1a\n");
@@ -43,7 +54,7 @@ fn the_demo_writes_a_complete_measurement_folder() {
     assert_eq!(m["source"]["kind"], "virtual");
     let files = m["files"].as_array().unwrap();
     // every file but the manifest itself
-    assert_eq!(files.len(), 12);
+    assert_eq!(files.len(), 14);
     for f in files {
         let bytes = std::fs::read(dir.join(f["name"].as_str().unwrap())).unwrap();
         let hex: String = Sha256::digest(&bytes)

@@ -86,3 +86,66 @@ fn a_peaking_filter_after_a_highpass_matches_its_closed_form() {
         assert!((mag[i] - 20.0 * want[i].norm().log10()).abs() < 0.02);
     }
 }
+
+/// Runs `filter` (and a delay of `delay` samples) over a 3 s sweep and
+/// returns results.json of `analyze --smooth none`.
+fn measure_filter(c: &crate::cookbook::Coeffs, delay: usize) -> serde_json::Value {
+    let t = tempfile::tempdir().unwrap();
+    let sweep = make_sweep(t.path(), "sweep.wav", &["--length", "3", "--tail", "1"]);
+    let x = read_wav(&sweep).1.remove(0);
+    let mut y = vec![0.0; delay];
+    y.extend(filter(c, &x));
+    write_wav_f32(&t.path().join("dut.wav"), 48_000, &[y]);
+    ok(
+        t.path(),
+        &[
+            "analyze",
+            "dut.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "m",
+            "--smooth",
+            "none",
+            "--no-plots",
+            "--no-bands",
+        ],
+    );
+    json(&t.path().join("m/results.json"))
+}
+
+#[test]
+fn the_minimum_phase_of_a_butterworth_highpass_is_its_phase() {
+    // A Butterworth high-pass is minimum phase: the phase its magnitude
+    // implies (Hilbert transform of ln|H|) is its closed-form phase, within
+    // 3° in its band (the criterion), and its excess group delay
+    // is near zero; a pure delay added to it is all excess group delay.
+    let hp = highpass(100.0, std::f64::consts::FRAC_1_SQRT_2);
+    for delay in [0usize, 48] {
+        let r = measure_filter(&hp, delay);
+        let f = numbers(&r["response"]["frequency_hz"]);
+        let min = numbers(&r["response"]["minimum_phase_deg"]);
+        let excess = numbers(&r["response"]["excess_group_delay_s"]);
+        let want_delay = delay as f64 / 48_000.0;
+        for i in 0..f.len() {
+            if f[i] < 100.0 || f[i] > 15_000.0 {
+                continue;
+            }
+            let d = wrap_deg(min[i] - response(&hp, f[i]).arg().to_degrees());
+            assert!(
+                d.abs() < 3.0,
+                "delay {delay}: {:.1} Hz minimum phase off by {d:.2}°",
+                f[i]
+            );
+            if f[i] >= 200.0 {
+                // near zero: within 20 µs (about one sample) of the delay
+                assert!(
+                    (excess[i] - want_delay).abs() < 20e-6,
+                    "delay {delay}: {:.1} Hz excess group delay {:.6} s",
+                    f[i],
+                    excess[i]
+                );
+            }
+        }
+    }
+}
