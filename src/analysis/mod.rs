@@ -12,6 +12,7 @@ pub mod decay;
 pub mod delay;
 pub mod distortion;
 pub mod etc;
+pub mod gate;
 pub mod phase;
 pub mod response;
 pub mod room;
@@ -45,6 +46,8 @@ pub struct AnalysisConfig {
     pub harmonics: u32,
     /// Analyse the decay per octave and one-third-octave band (ISO 3382).
     pub bands: bool,
+    /// Gate the impulse response for the frequency response and phase.
+    pub gate: Option<gate::Gate>,
 }
 
 impl Default for AnalysisConfig {
@@ -53,6 +56,7 @@ impl Default for AnalysisConfig {
             smoothing: Smoothing::Fraction(6),
             harmonics: 5,
             bands: true,
+            gate: None,
         }
     }
 }
@@ -82,6 +86,8 @@ pub struct Analysis {
     pub response: FrequencyResponse,
     /// Unwrapped phase, group delay, minimum phase and excess group delay.
     pub phase: phase::PhaseAnalysis,
+    /// The gate applied to the response, if any.
+    pub gate: Option<gate::GateInfo>,
     /// The harmonic distortion orders (`None` with `harmonics` = 1).
     pub distortion: Option<Distortion>,
     /// Reverberation and energy parameters per band (`None` without bands).
@@ -213,11 +219,36 @@ pub fn analyze(
     let (mut spec, df) =
         response::delay_free_spectrum(&ir, start as f64, delay_samples, fs, fft_len);
     deconv::remove_low_edge(&mut spec, df, f1);
-    let response = response::on_grid(&spec, df, &grid, config.smoothing, (f1, f2));
+    // with a gate, the response and its phase come from the gated part
+    // alone; distortion and bands keep the whole linear response
+    let (gated, gate_info) = match config.gate {
+        Some(g) => {
+            let (gs, glen, fade_in, fade_out, info) = gate::window(&h, ipeak, fs, f2, g);
+            // a gate longer than the analysed response adds nothing
+            let glen = glen.min(fft_len);
+            let cut = deconv::cut(&h, gs, glen, fade_in.min(glen), fade_out.min(glen));
+            let (mut gspec, _) =
+                response::delay_free_spectrum(&cut, gs as f64, delay_samples, fs, fft_len);
+            deconv::remove_low_edge(&mut gspec, df, f1);
+            (Some(gspec), Some(info))
+        }
+        None => (None, None),
+    };
+    let resp_spec = gated.as_deref().unwrap_or(&spec);
+    let response = response::on_grid(resp_spec, df, &grid, config.smoothing, (f1, f2));
+    if let Some(g) = gate_info {
+        if g.resolution_hz > f1 {
+            warnings.push(format!(
+                "the {:.2} ms gate resolves the response only above about {:.0} Hz (1/gate length); below, results.json marks it unresolved and the plot greys it out",
+                (g.end_s - g.start_s) * 1e3,
+                g.resolution_hz
+            ));
+        }
+    }
     let phase = phase::analyze(
         &grid,
         &response.phase_deg,
-        &spec,
+        resp_spec,
         df,
         (f1, f2),
         config.smoothing,
@@ -280,6 +311,7 @@ pub fn analyze(
         },
         response,
         phase,
+        gate: gate_info,
         distortion,
         room,
         peak_dbfs,

@@ -4,6 +4,7 @@ use std::path::Path;
 
 use clap::Args as ClapArgs;
 
+use crate::analysis::gate::Gate;
 use crate::analysis::{AnalysisConfig, Smoothing, distortion};
 use crate::error::{Error, Result};
 use crate::signal::sweep::{SweepDesign, SweepParams};
@@ -82,6 +83,12 @@ pub struct OutputArgs {
     /// (N up to 9); 1 analyses the linear response only.
     #[arg(long, value_name = "N", default_value_t = 5)]
     pub harmonics: u32,
+    /// Gate the impulse response for a quasi-anechoic response: auto (end
+    /// just before the first strong reflection) or START_MS,END_MS relative
+    /// to the impulse peak, e.g. -1,5. Below 1/gate length the response is
+    /// marked unresolved.
+    #[arg(long, value_name = "auto|START_MS,END_MS", allow_hyphen_values = true)]
+    pub gate: Option<String>,
     /// Skip the reverberation and energy parameters per octave and
     /// one-third-octave band.
     #[arg(long)]
@@ -109,6 +116,7 @@ impl OutputArgs {
             smoothing: Smoothing::parse(&self.smooth)?,
             harmonics: self.harmonics,
             bands: !self.no_bands,
+            gate: self.gate.as_deref().map(Gate::parse).transpose()?,
         })
     }
 }

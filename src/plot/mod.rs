@@ -191,6 +191,7 @@ pub fn response_png(
     magnitude_db: &[f64],
     phase_deg: &[f64],
     smoothing: &str,
+    resolved: Option<(f64, f64)>,
 ) -> Result<()> {
     let err = plot_error(path);
     let (root, body) = canvas(path, &format!("Frequency response — {title}"))?;
@@ -209,6 +210,7 @@ pub fn response_png(
         (lo, hi),
         "Magnitude (dB re sweep)",
         false,
+        resolved,
         &[(
             frequency_hz,
             magnitude_db,
@@ -223,6 +225,7 @@ pub fn response_png(
         (-180.0, 180.0),
         "Phase (degrees, delay removed)",
         true,
+        resolved,
         &[(frequency_hz, phase_deg, ORANGE, "phase".to_string())],
     )
     .map_err(plot_error(path))?;
@@ -239,6 +242,7 @@ fn draw_log_panel(
     (lo, hi): (f64, f64),
     y_desc: &str,
     x_desc: bool,
+    resolved: Option<(f64, f64)>,
     series: &[Series<'_>],
 ) -> std::result::Result<(), Box<dyn std::error::Error>> {
     let mut chart = chart_builder(area, if x_desc { 55 } else { 30 }).build_cartesian_2d(
@@ -260,6 +264,30 @@ fn draw_log_panel(
         mesh.y_labels(9);
     }
     mesh.draw()?;
+    if let Some((from, to)) = resolved {
+        let grey = RGBColor(120, 120, 120);
+        let mut labelled = false;
+        for (a, b) in [(f1, from.min(f2)), (to.max(f1), f2)] {
+            if b <= a {
+                continue;
+            }
+            let s = chart.draw_series(std::iter::once(Rectangle::new(
+                [(a, lo), (b, hi)],
+                grey.mix(0.15).filled(),
+            )))?;
+            if !labelled {
+                s.label(format!(
+                    "shaded: not resolved by the gate (below {} Hz, above {} Hz)",
+                    format_hz(from.round()),
+                    format_hz((to / 10.0).round() * 10.0)
+                ))
+                .legend(move |(x, y)| {
+                    Rectangle::new([(x, y - 5), (x + 24, y + 5)], grey.mix(0.3).filled())
+                });
+                labelled = true;
+            }
+        }
+    }
     for (x, y, colour, name) in series {
         let pts = x
             .iter()
@@ -838,6 +866,7 @@ pub fn phase_png(
         (lo, hi),
         "Phase (degrees, delay removed, unwrapped)",
         true,
+        None,
         &[
             (
                 frequency_hz,
@@ -894,6 +923,7 @@ pub fn group_delay_png(
         (lo, hi),
         "Time (ms)",
         true,
+        None,
         &[
             (
                 frequency_hz,

@@ -233,6 +233,7 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<(
                     &a.response.magnitude_db,
                     &a.response.phase_deg,
                     &a.response.smoothing,
+                    a.gate.map(|g| (g.resolution_hz, g.resolved_to_hz)),
                 )?;
             } else {
                 plot::impulse_png(
@@ -415,6 +416,14 @@ pub fn results_record(a: &Analysis) -> Results {
             group_delay_s: a.phase.group_delay_s.clone(),
             minimum_phase_deg: a.phase.minimum_phase_deg.clone(),
             excess_group_delay_s: a.phase.excess_group_delay_s.clone(),
+            gate: a.gate,
+            resolved: a.gate.map_or_else(Vec::new, |g| {
+                a.response
+                    .frequency_hz
+                    .iter()
+                    .map(|&f| f >= g.resolution_hz && f <= g.resolved_to_hz)
+                    .collect()
+            }),
         },
         distortion: a.distortion.clone(),
         bands: a.room.as_ref().map(|r| r.bands.clone()).unwrap_or_default(),

@@ -4,6 +4,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::analysis::Distortion;
+use crate::analysis::gate::GateInfo;
 use crate::analysis::room::BandResult;
 use crate::signal::sweep::SweepDesign;
 
@@ -79,6 +80,13 @@ pub struct ResponseRecord {
     /// Group delay beyond the minimum phase, with `delay_s` put back, s.
     #[serde(default)]
     pub excess_group_delay_s: Vec<f64>,
+    /// The gate the response was taken through (`null`: none).
+    #[serde(default)]
+    pub gate: Option<GateInfo>,
+    /// Per grid point, whether the gate resolves it (from 1/gate length up
+    /// to `gate.resolved_to_hz`); empty without a gate.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub resolved: Vec<bool>,
 }
 
 /// manifest.json: what was done.

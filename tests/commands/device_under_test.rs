@@ -149,3 +149,74 @@ fn the_minimum_phase_of_a_butterworth_highpass_is_its_phase() {
         }
     }
 }
+
+#[test]
+fn a_gate_removes_a_reflection_and_auto_finds_it() {
+    // the direct sound through a known filter F, and a reflection of it
+    // 4 ms later at half the amplitude: ungated, the response combs by
+    // ±3.5 dB (20·lg 1.5 and 20·lg 0.5, closed form); gated, it is F
+    // within 0.3 dB above the gate's resolution 1/Tg (the criterion)
+    let hp = highpass(300.0, std::f64::consts::FRAC_1_SQRT_2);
+    let pk = peaking(2000.0, 2.0, 6.0);
+    let t = tempfile::tempdir().unwrap();
+    let sweep = make_sweep(t.path(), "sweep.wav", &["--length", "3", "--tail", "1"]);
+    let x = read_wav(&sweep).1.remove(0);
+    let direct = filter(&pk, &filter(&hp, &x));
+    let lag = 192; // 4 ms at 48 kHz
+    let mut y = direct.clone();
+    y.extend(std::iter::repeat_n(0.0, lag));
+    for (i, v) in direct.iter().enumerate() {
+        y[i + lag] += 0.5 * v;
+    }
+    write_wav_f32(&t.path().join("room.wav"), 48_000, &[y]);
+    for (gate, out) in [("auto", "auto"), ("-0.5,3.8", "fixed")] {
+        ok(
+            t.path(),
+            &[
+                "analyze",
+                "room.wav",
+                "--sweep",
+                "sweep.wav",
+                "--out",
+                out,
+                "--smooth",
+                "none",
+                "--gate",
+                gate,
+                "--no-plots",
+                "--no-bands",
+            ],
+        );
+        let r = json(&t.path().join(out).join("results.json"));
+        let g = &r["response"]["gate"];
+        let end = g["end_s"].as_f64().unwrap();
+        if gate == "auto" {
+            assert_eq!(g["auto"], true);
+            assert!(
+                (0.004 - 0.0002..=0.004).contains(&end),
+                "auto gate ends at {end} s, reflection at 0.004 s"
+            );
+        }
+        let res = g["resolution_hz"].as_f64().unwrap();
+        let top = g["resolved_to_hz"].as_f64().unwrap();
+        let f = numbers(&r["response"]["frequency_hz"]);
+        let mag = numbers(&r["response"]["magnitude_db"]);
+        let resolved = r["response"]["resolved"].as_array().unwrap();
+        let mut checked = 0;
+        for i in 0..f.len() {
+            assert_eq!(resolved[i].as_bool().unwrap(), f[i] >= res && f[i] <= top);
+            if f[i] < res || f[i] > top {
+                continue;
+            }
+            let want = 20.0 * (response(&hp, f[i]) * response(&pk, f[i])).norm().log10();
+            assert!(
+                (mag[i] - want).abs() < 0.3,
+                "{gate}: {:.1} Hz gated {:.2} dB, direct {want:.2} dB",
+                f[i],
+                mag[i]
+            );
+            checked += 1;
+        }
+        assert!(checked > 250, "{checked}");
+    }
+}
