@@ -103,9 +103,23 @@ fn every_help_page_explains_its_options() {
                 "--smooth",
                 "--no-plots",
                 "--overwrite",
+                "--harmonics",
+                "--no-bands",
+                "--gate",
             ][..],
         ),
-        ("demo", &["--out", "--smooth", "--no-plots", "--seed"][..]),
+        (
+            "demo",
+            &[
+                "--out",
+                "--smooth",
+                "--no-plots",
+                "--seed",
+                "--harmonics",
+                "--no-bands",
+                "--gate",
+            ][..],
+        ),
     ] {
         let h = ok(t.path(), &[cmd, "--help"]);
         for o in opts {
