@@ -11,29 +11,14 @@ use crate::util::*;
 #[test]
 fn a_peaking_filter_after_a_highpass_matches_its_closed_form() {
     let t = tempfile::tempdir().unwrap();
-    let sweep = make_sweep(t.path(), "sweep.wav", &["--length", "3", "--tail", "1"]);
-    let x = read_wav(&sweep).1.remove(0);
     let hp = highpass(100.0, std::f64::consts::FRAC_1_SQRT_2);
     let pk = peaking(1000.0, 1.0, 6.0);
-    let y = filter(&pk, &filter(&hp, &x));
-    write_wav_f32(&t.path().join("dut.wav"), 48_000, &[y]);
+    record_device(t.path(), &["--length", "3", "--tail", "1"], |x| {
+        filter(&pk, &filter(&hp, x))
+    });
     for smooth in ["none", "1/48"] {
         let out = format!("m-{}", smooth.replace('/', "_"));
-        ok(
-            t.path(),
-            &[
-                "analyze",
-                "dut.wav",
-                "--sweep",
-                "sweep.wav",
-                "--out",
-                &out,
-                "--smooth",
-                smooth,
-                "--no-plots",
-            ],
-        );
-        let r = json(&t.path().join(&out).join("results.json"));
+        let r = analyze_device(t.path(), &out, &["--smooth", smooth, "--no-plots"]);
         let delay = r["delay_s"].as_f64().unwrap();
         let f = numbers(&r["response"]["frequency_hz"]);
         let mag = numbers(&r["response"]["magnitude_db"]);
@@ -91,27 +76,16 @@ fn a_peaking_filter_after_a_highpass_matches_its_closed_form() {
 /// returns results.json of `analyze --smooth none`.
 fn measure_filter(c: &crate::cookbook::Coeffs, delay: usize) -> serde_json::Value {
     let t = tempfile::tempdir().unwrap();
-    let sweep = make_sweep(t.path(), "sweep.wav", &["--length", "3", "--tail", "1"]);
-    let x = read_wav(&sweep).1.remove(0);
-    let mut y = vec![0.0; delay];
-    y.extend(filter(c, &x));
-    write_wav_f32(&t.path().join("dut.wav"), 48_000, &[y]);
-    ok(
+    record_device(t.path(), &["--length", "3", "--tail", "1"], |x| {
+        let mut y = vec![0.0; delay];
+        y.extend(filter(c, x));
+        y
+    });
+    analyze_device(
         t.path(),
-        &[
-            "analyze",
-            "dut.wav",
-            "--sweep",
-            "sweep.wav",
-            "--out",
-            "m",
-            "--smooth",
-            "none",
-            "--no-plots",
-            "--no-bands",
-        ],
-    );
-    json(&t.path().join("m/results.json"))
+        "m",
+        &["--smooth", "none", "--no-plots", "--no-bands"],
+    )
 }
 
 #[test]
@@ -159,26 +133,21 @@ fn a_gate_removes_a_reflection_and_auto_finds_it() {
     let hp = highpass(300.0, std::f64::consts::FRAC_1_SQRT_2);
     let pk = peaking(2000.0, 2.0, 6.0);
     let t = tempfile::tempdir().unwrap();
-    let sweep = make_sweep(t.path(), "sweep.wav", &["--length", "3", "--tail", "1"]);
-    let x = read_wav(&sweep).1.remove(0);
-    let direct = filter(&pk, &filter(&hp, &x));
     let lag = 192; // 4 ms at 48 kHz
-    let mut y = direct.clone();
-    y.extend(std::iter::repeat_n(0.0, lag));
-    for (i, v) in direct.iter().enumerate() {
-        y[i + lag] += 0.5 * v;
-    }
-    write_wav_f32(&t.path().join("room.wav"), 48_000, &[y]);
+    record_device(t.path(), &["--length", "3", "--tail", "1"], |x| {
+        let direct = filter(&pk, &filter(&hp, x));
+        let mut y = direct.clone();
+        y.extend(std::iter::repeat_n(0.0, lag));
+        for (i, v) in direct.iter().enumerate() {
+            y[i + lag] += 0.5 * v;
+        }
+        y
+    });
     for (gate, out) in [("auto", "auto"), ("-0.5,3.8", "fixed")] {
-        ok(
+        let r = analyze_device(
             t.path(),
+            out,
             &[
-                "analyze",
-                "room.wav",
-                "--sweep",
-                "sweep.wav",
-                "--out",
-                out,
                 "--smooth",
                 "none",
                 "--gate",
@@ -187,7 +156,6 @@ fn a_gate_removes_a_reflection_and_auto_finds_it() {
                 "--no-bands",
             ],
         );
-        let r = json(&t.path().join(out).join("results.json"));
         let g = &r["response"]["gate"];
         let end = g["end_s"].as_f64().unwrap();
         if gate == "auto" {

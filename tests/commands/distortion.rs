@@ -36,35 +36,24 @@ fn measure(level_dbfs: f64, harmonics: &str, nl: impl Fn(f64) -> f64) -> Value {
     // The nonlinearity runs at the sample rate, so its harmonics above
     // the Nyquist frequency would alias (a real device's converter filters
     // them): ending the sweep at 4 kHz keeps orders up to 5 below 24 kHz.
-    let sweep = make_sweep(
+    record_device(
         t.path(),
-        "sweep.wav",
         &[
             "--length", "4", "--tail", "1", "--level", &level, "--end", "4000",
         ],
+        |x| {
+            let mut y: Vec<f64> = x.iter().map(|&v| nl(v)).collect();
+            for c in g_sections() {
+                y = filter(&c, &y);
+            }
+            y
+        },
     );
-    let x = read_wav(&sweep).1.remove(0);
-    let mut y: Vec<f64> = x.iter().map(|&v| nl(v)).collect();
-    for c in g_sections() {
-        y = filter(&c, &y);
-    }
-    write_wav_f32(&t.path().join("dut.wav"), 48_000, &[y]);
-    ok(
+    let r = analyze_device(
         t.path(),
-        &[
-            "analyze",
-            "dut.wav",
-            "--sweep",
-            "sweep.wav",
-            "--out",
-            "m",
-            "--smooth",
-            "1/12",
-            "--harmonics",
-            harmonics,
-        ],
+        "m",
+        &["--smooth", "1/12", "--harmonics", harmonics],
     );
-    let r = json(&t.path().join("m/results.json"));
     if harmonics != "1" {
         for f in ["distortion.csv", "plots/distortion.png"] {
             assert!(t.path().join("m").join(f).is_file(), "{f}");

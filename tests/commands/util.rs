@@ -155,3 +155,20 @@ pub fn wrap_deg(d: f64) -> f64 {
     let w = (d + 180.0).rem_euclid(360.0) - 180.0;
     if w == -180.0 { 180.0 } else { w }
 }
+
+/// Makes `sweep.wav` in `dir` with `sweep_args`, runs it through `device`
+/// (a function of the test's own) and writes the result as `dut.wav`.
+pub fn record_device(dir: &Path, sweep_args: &[&str], device: impl Fn(&[f64]) -> Vec<f64>) {
+    let sweep = make_sweep(dir, "sweep.wav", sweep_args);
+    let x = read_wav(&sweep).1.remove(0);
+    write_wav_f32(&dir.join("dut.wav"), 48_000, &[device(&x)]);
+}
+
+/// Analyses `dut.wav` against `sweep.wav` in `dir` into `out` with the
+/// extra options `args`; returns its results.json.
+pub fn analyze_device(dir: &Path, out: &str, args: &[&str]) -> Value {
+    let mut all = vec!["analyze", "dut.wav", "--sweep", "sweep.wav", "--out", out];
+    all.extend_from_slice(args);
+    ok(dir, &all);
+    json(&dir.join(out).join("results.json"))
+}
