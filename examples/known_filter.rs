@@ -25,6 +25,7 @@ fn main() -> gliss::Result<()> {
         harmonics: 1, // a linear filter: no distortion to separate
         bands: false, // and no room to decay
         gate: None,
+        mic_correction: None,
     };
     let a = analyze(&recording, &stimulus, &design, &config)?;
     println!("delay {:.4} samples", a.delay_s * design.fs());

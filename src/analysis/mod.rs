@@ -8,6 +8,7 @@
 //! - phase is given with the delay `delay_s` removed.
 
 pub mod bands;
+pub mod correction;
 pub mod decay;
 pub mod delay;
 pub mod distortion;
@@ -48,6 +49,8 @@ pub struct AnalysisConfig {
     pub bands: bool,
     /// Gate the impulse response for the frequency response and phase.
     pub gate: Option<gate::Gate>,
+    /// A microphone correction to remove from the response and phase.
+    pub mic_correction: Option<correction::Correction>,
 }
 
 impl Default for AnalysisConfig {
@@ -57,6 +60,7 @@ impl Default for AnalysisConfig {
             harmonics: 5,
             bands: true,
             gate: None,
+            mic_correction: None,
         }
     }
 }
@@ -234,7 +238,22 @@ pub fn analyze(
         }
         None => (None, None),
     };
-    let resp_spec = gated.as_deref().unwrap_or(&spec);
+    let mut resp_spec: Vec<_> = gated.unwrap_or_else(|| spec.clone());
+    if let Some(c) = &config.mic_correction {
+        // the microphone's own deviation out of the response and its phase
+        // (distortion and bands keep the uncorrected response)
+        for (k, v) in resp_spec.iter_mut().enumerate().skip(1) {
+            let (db, deg) = c.at(k as f64 * df);
+            *v *= rustfft::num_complex::Complex::from_polar(
+                10f64.powf(-db / 20.0),
+                -deg.to_radians(),
+            );
+        }
+        if let Some(w) = c.coverage_warning(f1, f2) {
+            warnings.push(w);
+        }
+    }
+    let resp_spec = &resp_spec[..];
     let response = response::on_grid(resp_spec, df, &grid, config.smoothing, (f1, f2));
     if let Some(g) = gate_info {
         if g.resolution_hz > f1 {

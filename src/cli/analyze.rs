@@ -43,7 +43,9 @@ fn read(path: &PathBuf, what: &str) -> Result<(Vec<u8>, wav::WavData)> {
 
 /// Runs `gliss analyze`.
 pub fn run(a: Args) -> Result<()> {
-    let config = a.output.config()?;
+    let mut config = a.output.config()?;
+    let mic = a.output.mic_correction()?;
+    config.mic_correction = mic.as_ref().map(|m| m.0.clone());
     if a.channel == 0 {
         return Err(Error::parameter(
             "--channel counts from 1; use --channel 1 for the first channel",
@@ -80,6 +82,7 @@ pub fn run(a: Args) -> Result<()> {
         },
         title: format!("{title}, channel {}", a.channel),
         command_line: std::env::args().collect(),
+        mic_correction: mic.map(|m| m.1),
     };
     let outcome = session::run(&job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);

@@ -4,9 +4,12 @@ use std::path::Path;
 
 use clap::Args as ClapArgs;
 
+use crate::analysis::correction::Correction;
 use crate::analysis::gate::Gate;
 use crate::analysis::{AnalysisConfig, Smoothing, distortion};
 use crate::error::{Error, Result};
+use crate::session::folder::sha256_hex;
+use crate::session::records::FileEntry;
 use crate::signal::sweep::{SweepDesign, SweepParams};
 
 /// The sweep options of `sweep`, `demo` (and later `measure`).
@@ -89,6 +92,10 @@ pub struct OutputArgs {
     /// marked unresolved.
     #[arg(long, value_name = "auto|START_MS,END_MS", allow_hyphen_values = true)]
     pub gate: Option<String>,
+    /// A microphone correction file (frequency Hz and dB per line, optional
+    /// phase in degrees; # comments) to remove from the response.
+    #[arg(long, value_name = "FILE")]
+    pub mic_correction: Option<std::path::PathBuf>,
     /// Skip the reverberation and energy parameters per octave and
     /// one-third-octave band.
     #[arg(long)]
@@ -117,7 +124,30 @@ impl OutputArgs {
             harmonics: self.harmonics,
             bands: !self.no_bands,
             gate: self.gate.as_deref().map(Gate::parse).transpose()?,
+            // read by `mic_correction`, once, by the command
+            mic_correction: None,
         })
+    }
+
+    /// The microphone correction, parsed, with its path and SHA-256 for the
+    /// manifest.
+    pub fn mic_correction(&self) -> Result<Option<(Correction, FileEntry)>> {
+        let Some(path) = &self.mic_correction else {
+            return Ok(None);
+        };
+        let bytes = std::fs::read(path).map_err(|e| Error::io("read", path, &e))?;
+        let text = String::from_utf8_lossy(&bytes);
+        let c = Correction::parse(&text).map_err(|m| {
+            Error::input(format!("the microphone correction {}: {m}", path.display()))
+        })?;
+        Ok(Some((
+            c,
+            FileEntry {
+                name: path.display().to_string(),
+                role: "input".into(),
+                sha256: sha256_hex(&bytes),
+            },
+        )))
     }
 }
 

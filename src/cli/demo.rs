@@ -61,7 +61,9 @@ pub fn print_summary(out: &str, o: &Outcome) {
 
 /// Runs `gliss demo`.
 pub fn run(a: Args) -> Result<()> {
-    let config = a.output.config()?;
+    let mut config = a.output.config()?;
+    let mic = a.output.mic_correction()?;
+    config.mic_correction = mic.as_ref().map(|m| m.0.clone());
     let design = a.sweep.design()?;
     let mut system = VirtualSystem {
         seed: a.seed,
@@ -107,6 +109,7 @@ pub fn run(a: Args) -> Result<()> {
         },
         title: "Kestrel 5 in the rehearsal room (simulated)".into(),
         command_line: std::env::args().collect(),
+        mic_correction: mic.map(|m| m.1),
     };
     let outcome = session::run(&job)?;
     print_summary(&common::show(&a.out), &outcome);

@@ -47,6 +47,8 @@ pub struct Job {
     pub title: String,
     /// The command line, for the manifest.
     pub command_line: Vec<String>,
+    /// The microphone correction file, if one was given (path and hash).
+    pub mic_correction: Option<FileEntry>,
 }
 
 /// What a finished job wrote.
@@ -272,6 +274,7 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<(
             plots: job.plots,
             harmonics: job.config.harmonics,
             bands: job.config.bands,
+            mic_correction: job.mic_correction.clone(),
         },
         files,
     };

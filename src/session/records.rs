@@ -150,6 +150,9 @@ pub struct Settings {
     /// Whether the band parameters were analysed.
     #[serde(default)]
     pub bands: bool,
+    /// The microphone correction removed from the response, with its hash.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub mic_correction: Option<FileEntry>,
 }
 
 /// One file of the folder.

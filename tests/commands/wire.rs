@@ -202,3 +202,60 @@ fn integer_recordings_read_the_same_as_float() {
         assert_eq!(w.phase.len(), w.f.len());
     }
 }
+
+#[test]
+fn a_microphone_correction_comes_off_the_response() {
+    // a correction of +3 dB at all frequencies lowers the response by
+    // exactly 3.00 dB (closed form: the file's deviation is divided out)
+    let t = tempfile::tempdir().unwrap();
+    make_sweep(t.path(), "sweep.wav", &["--length", "2", "--tail", "0.5"]);
+    std::fs::copy(t.path().join("sweep.wav"), t.path().join("rec.wav")).unwrap();
+    std::fs::write(t.path().join("plus3.txt"), "# flat +3 dB\n10 3\n24000 3\n").unwrap();
+    let args = |out: &'static str| {
+        vec![
+            "analyze",
+            "rec.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            out,
+            "--no-plots",
+            "--no-bands",
+            "--harmonics",
+            "1",
+        ]
+    };
+    ok(t.path(), &args("plain"));
+    let mut with = args("corrected");
+    with.extend_from_slice(&["--mic-correction", "plus3.txt"]);
+    ok(t.path(), &with);
+    let a = numbers(&json(&t.path().join("plain/results.json"))["response"]["magnitude_db"]);
+    let b = numbers(&json(&t.path().join("corrected/results.json"))["response"]["magnitude_db"]);
+    for (x, y) in a.iter().zip(&b) {
+        assert!((x - y - 3.0).abs() < 0.005, "{x} vs {y}");
+    }
+    let m = json(&t.path().join("corrected/manifest.json"));
+    assert_eq!(m["settings"]["mic_correction"]["name"], "plus3.txt");
+    // malformed files: one error line naming the line, nothing written
+    for (name, text, needle) in [
+        ("words.txt", "# only words\nflat response\n", "line 2"),
+        ("empty.txt", "# nothing\n", "fewer than two"),
+        ("order.txt", "1000 0\n500 1\n", "line 2"),
+    ] {
+        std::fs::write(t.path().join(name), text).unwrap();
+        let mut bad = args("never");
+        bad.extend_from_slice(&["--mic-correction", name]);
+        let line = refused(t.path(), &bad);
+        assert!(line.contains(needle) && line.contains(name), "{line}");
+        assert!(!t.path().join("never").exists());
+    }
+    // a file that does not cover the sweep: a warning naming its lines
+    std::fs::write(t.path().join("narrow.txt"), "100 0\n10000 0\n").unwrap();
+    let mut narrow = args("narrow");
+    narrow.extend_from_slice(&["--mic-correction", "narrow.txt"]);
+    let out = ok(t.path(), &narrow);
+    assert!(
+        out.contains("line 1") && out.contains("line 2") && out.contains("end values are held"),
+        "{out}"
+    );
+}
