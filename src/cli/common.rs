@@ -75,31 +75,53 @@ impl SweepArgs {
     }
 }
 
+/// What is being measured: it picks the defaults.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum Profile {
+    /// A room: the whole response, 1/6-octave smoothing, bands.
+    Room,
+    /// A loudspeaker in a room: gated before the first reflection,
+    /// 1/12-octave smoothing, no bands.
+    Speaker,
+}
+
 /// Analysis and output options of `analyze` and `demo`.
 #[derive(Debug, Clone, ClapArgs)]
 pub struct OutputArgs {
+    /// Defaults for the job: room (no gate, 1/6-octave smoothing, bands
+    /// on) or speaker (auto gate, 1/12-octave smoothing, bands off);
+    /// distortion is on in both. Every option below overrides its default.
+    #[arg(long, value_enum, default_value_t = Profile::Room)]
+    pub profile: Profile,
     /// Fractional-octave smoothing of the frequency response: 1/1, 1/2,
-    /// 1/3, 1/6, 1/12, 1/24, 1/48, or none.
-    #[arg(long, value_name = "1/N|none", default_value = "1/6")]
-    pub smooth: String,
+    /// 1/3, 1/6, 1/12, 1/24, 1/48, or none [default: 1/6, speaker 1/12].
+    #[arg(long, value_name = "1/N|none")]
+    pub smooth: Option<String>,
     /// Separate the harmonic distortion orders 2..N from the same sweep
     /// (N up to 9); 1 analyses the linear response only.
     #[arg(long, value_name = "N", default_value_t = 5)]
     pub harmonics: u32,
     /// Gate the impulse response for a quasi-anechoic response: auto (end
     /// just before the first strong reflection) or START_MS,END_MS relative
-    /// to the impulse peak, e.g. -1,5. Below 1/gate length the response is
-    /// marked unresolved.
-    #[arg(long, value_name = "auto|START_MS,END_MS", allow_hyphen_values = true)]
+    /// to the impulse peak, e.g. -1,5, or none. Below 1/gate length the
+    /// response is marked unresolved [default: none, speaker auto].
+    #[arg(
+        long,
+        value_name = "auto|START_MS,END_MS|none",
+        allow_hyphen_values = true
+    )]
     pub gate: Option<String>,
     /// A microphone correction file (frequency Hz and dB per line, optional
     /// phase in degrees; # comments) to remove from the response.
     #[arg(long, value_name = "FILE")]
     pub mic_correction: Option<std::path::PathBuf>,
     /// Skip the reverberation and energy parameters per octave and
-    /// one-third-octave band.
-    #[arg(long)]
+    /// one-third-octave band (the speaker profile's default).
+    #[arg(long, conflicts_with = "bands")]
     pub no_bands: bool,
+    /// Analyse the bands even with the speaker profile.
+    #[arg(long)]
+    pub bands: bool,
     /// Skip the PNG plots (faster for batch runs).
     #[arg(long)]
     pub no_plots: bool,
@@ -119,11 +141,22 @@ impl OutputArgs {
                 distortion::MAX_ORDER
             )));
         }
+        let speaker = self.profile == Profile::Speaker;
+        let smooth = self
+            .smooth
+            .as_deref()
+            .unwrap_or(if speaker { "1/12" } else { "1/6" });
+        let gate = match self.gate.as_deref() {
+            Some(g) if g.trim().eq_ignore_ascii_case("none") => None,
+            Some(g) => Some(Gate::parse(g)?),
+            None if speaker => Some(Gate::Auto),
+            None => None,
+        };
         Ok(AnalysisConfig {
-            smoothing: Smoothing::parse(&self.smooth)?,
+            smoothing: Smoothing::parse(smooth)?,
             harmonics: self.harmonics,
-            bands: !self.no_bands,
-            gate: self.gate.as_deref().map(Gate::parse).transpose()?,
+            bands: if speaker { self.bands } else { !self.no_bands },
+            gate,
             // read by `mic_correction`, once, by the command
             mic_correction: None,
         })

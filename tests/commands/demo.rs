@@ -265,3 +265,34 @@ fn the_demo_room_decays_longer_at_low_frequencies() {
     assert!(r["bands"].as_array().unwrap().is_empty());
     assert!(!t.path().join("e/bands.csv").exists());
 }
+
+#[test]
+fn the_speaker_profile_picks_its_defaults_and_each_can_be_overridden() {
+    let t = tempfile::tempdir().unwrap();
+    let run = |out: &str, extra: &[&str]| {
+        let mut args = vec![
+            "demo",
+            "--out",
+            out,
+            "--no-plots",
+            "--length",
+            "1",
+            "--tail",
+            "0.5",
+            "--profile",
+            "speaker",
+        ];
+        args.extend_from_slice(extra);
+        ok(t.path(), &args);
+        json(&t.path().join(out).join("results.json"))
+    };
+    let r = run("s", &[]);
+    assert_eq!(r["response"]["gate"]["auto"], true);
+    assert_eq!(r["response"]["smoothing"], "1/12");
+    assert!(r["bands"].as_array().unwrap().is_empty());
+    assert!(!r["distortion"].is_null());
+    let r = run("o", &["--smooth", "1/3", "--gate", "none", "--bands"]);
+    assert!(r["response"]["gate"].is_null());
+    assert_eq!(r["response"]["smoothing"], "1/3");
+    assert!(!r["bands"].as_array().unwrap().is_empty());
+}
