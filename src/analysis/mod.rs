@@ -9,6 +9,7 @@
 
 pub mod bands;
 pub mod correction;
+pub mod csd;
 pub mod decay;
 pub mod delay;
 pub mod distortion;
@@ -92,6 +93,8 @@ pub struct Analysis {
     pub phase: phase::PhaseAnalysis,
     /// The gate applied to the response, if any.
     pub gate: Option<gate::GateInfo>,
+    /// The decay spectrum within the gate (with a gate only).
+    pub decay_spectrum: Option<Vec<csd::Slice>>,
     /// The harmonic distortion orders (`None` with `harmonics` = 1).
     pub distortion: Option<Distortion>,
     /// Reverberation and energy parameters per band (`None` without bands).
@@ -264,6 +267,18 @@ pub fn analyze(
             ));
         }
     }
+    // the decay spectrum inside the gate: 40 starts from the gate's start
+    // over 80 % of its length after the peak
+    let decay_spectrum = gate_info.map(|g| {
+        let cfg = csd::CsdConfig {
+            first_s: g.start_s,
+            step_s: 0.8 * (g.end_s - g.start_s) / 40.0,
+            slices: 40,
+            end_s: g.end_s,
+            rise_s: 0.1e-3,
+        };
+        csd::decay_spectrum(&h, ipeak, fs, &grid, config.smoothing, (f1, f2), cfg)
+    });
     let phase = phase::analyze(
         &grid,
         &response.phase_deg,
@@ -331,6 +346,7 @@ pub fn analyze(
         response,
         phase,
         gate: gate_info,
+        decay_spectrum,
         distortion,
         room,
         peak_dbfs,

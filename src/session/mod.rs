@@ -203,7 +203,17 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<(
     if job.plots {
         for rel in plot_files(a) {
             let tmp = folder.temp_path(rel);
-            if rel.ends_with("phase.png") || rel.ends_with("group-delay.png") {
+            if rel.ends_with("decay-spectrum.png") {
+                if let (Some(slices), Some(g)) = (&a.decay_spectrum, a.gate) {
+                    plot::decay_spectrum_png(
+                        &tmp,
+                        &job.title,
+                        &a.response.frequency_hz,
+                        slices,
+                        (g.resolution_hz, g.resolved_to_hz),
+                    )?;
+                }
+            } else if rel.ends_with("phase.png") || rel.ends_with("group-delay.png") {
                 if rel.ends_with("phase.png") {
                     plot::phase_png(&tmp, &job.title, &a.response.frequency_hz, &a.phase)?;
                 } else {
@@ -291,6 +301,9 @@ fn plot_files(a: &Analysis) -> Vec<&'static str> {
     ];
     if a.distortion.is_some() {
         v.push("plots/distortion.png");
+    }
+    if a.decay_spectrum.is_some() {
+        v.push("plots/decay-spectrum.png");
     }
     if a.room.is_some() {
         v.push("plots/decay.png");
