@@ -8,6 +8,7 @@
 //! - phase is given with the delay `delay_s` removed.
 
 pub mod bands;
+pub mod calibration;
 pub mod correction;
 pub mod csd;
 pub mod decay;

@@ -83,6 +83,7 @@ pub fn run(a: Args) -> Result<()> {
         title: format!("{title}, channel {}", a.channel),
         command_line: std::env::args().collect(),
         mic_correction: mic.map(|m| m.1),
+        calibration: a.output.calibration()?,
     };
     let outcome = session::run(&job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);

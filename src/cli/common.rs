@@ -4,6 +4,7 @@ use std::path::Path;
 
 use clap::Args as ClapArgs;
 
+use crate::analysis::calibration::Calibration;
 use crate::analysis::correction::Correction;
 use crate::analysis::gate::Gate;
 use crate::analysis::{AnalysisConfig, Smoothing, distortion};
@@ -115,6 +116,10 @@ pub struct OutputArgs {
     /// phase in degrees; # comments) to remove from the response.
     #[arg(long, value_name = "FILE")]
     pub mic_correction: Option<std::path::PathBuf>,
+    /// A calibration file from `gliss calibrate`: the response is then also
+    /// given in dB SPL at the microphone for the sweep's drive level.
+    #[arg(long, value_name = "FILE.json")]
+    pub calibration: Option<std::path::PathBuf>,
     /// Skip the reverberation and energy parameters per octave and
     /// one-third-octave band (the speaker profile's default).
     #[arg(long, conflicts_with = "bands")]
@@ -160,6 +165,31 @@ impl OutputArgs {
             // read by `mic_correction`, once, by the command
             mic_correction: None,
         })
+    }
+
+    /// The calibration, parsed, with its path and SHA-256 for the manifest.
+    pub fn calibration(&self) -> Result<Option<(Calibration, FileEntry)>> {
+        let Some(path) = &self.calibration else {
+            return Ok(None);
+        };
+        let bytes = std::fs::read(path).map_err(|e| Error::io("read", path, &e))?;
+        let c: Calibration = serde_json::from_slice(&bytes)
+            .ok()
+            .filter(|c: &Calibration| c.format == "gliss calibration" && c.pa_per_fs > 0.0)
+            .ok_or_else(|| {
+                Error::input(format!(
+                    "{} is not a calibration file from gliss calibrate",
+                    path.display()
+                ))
+            })?;
+        Ok(Some((
+            c,
+            FileEntry {
+                name: path.display().to_string(),
+                role: "input".into(),
+                sha256: sha256_hex(&bytes),
+            },
+        )))
     }
 
     /// The microphone correction, parsed, with its path and SHA-256 for the

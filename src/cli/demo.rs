@@ -110,6 +110,7 @@ pub fn run(a: Args) -> Result<()> {
         title: "Kestrel 5 in the rehearsal room (simulated)".into(),
         command_line: std::env::args().collect(),
         mic_correction: mic.map(|m| m.1),
+        calibration: a.output.calibration()?,
     };
     let outcome = session::run(&job)?;
     print_summary(&common::show(&a.out), &outcome);

@@ -2,6 +2,7 @@
 //! settings here, and the library does the work.
 
 mod analyze;
+mod calibrate;
 mod common;
 mod demo;
 mod sweep;
@@ -37,6 +38,8 @@ enum Command {
     Analyze(analyze::Args),
     /// Run the whole job on the built-in virtual loudspeaker and room (simulated).
     Demo(demo::Args),
+    /// Turn a recording of a sound calibrator's tone into a calibration file for --calibration.
+    Calibrate(calibrate::Args),
 }
 
 /// Parses the command line, runs the command, prints any error once.
@@ -53,6 +56,7 @@ pub fn main() -> ExitCode {
         Command::Sweep(a) => sweep::run(a),
         Command::Analyze(a) => analyze::run(a),
         Command::Demo(a) => demo::run(a),
+        Command::Calibrate(a) => calibrate::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -49,6 +49,8 @@ pub struct Job {
     pub command_line: Vec<String>,
     /// The microphone correction file, if one was given (path and hash).
     pub mic_correction: Option<FileEntry>,
+    /// The calibration, if one was given, and its file (path and hash).
+    pub calibration: Option<(crate::analysis::calibration::Calibration, FileEntry)>,
 }
 
 /// What a finished job wrote.
@@ -191,7 +193,16 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<(
             SampleEncoding::Float,
         ),
     )?;
-    let results = results_record(a);
+    let mut results = results_record(a);
+    if let Some((c, _)) = &job.calibration {
+        let level = job.design.params.level_dbfs;
+        results.response.spl_db = a
+            .response
+            .magnitude_db
+            .iter()
+            .map(|&m| c.spl_db(m, level))
+            .collect();
+    }
     derived("results.json", to_json(&results)?)?;
     derived("response.csv", response_csv(&results.response)?)?;
     if let Some(d) = &a.distortion {
@@ -285,6 +296,7 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<(
             harmonics: job.config.harmonics,
             bands: job.config.bands,
             mic_correction: job.mic_correction.clone(),
+            calibration: job.calibration.as_ref().map(|c| c.1.clone()),
         },
         files,
     };
@@ -433,6 +445,7 @@ pub fn results_record(a: &Analysis) -> Results {
             minimum_phase_deg: a.phase.minimum_phase_deg.clone(),
             excess_group_delay_s: a.phase.excess_group_delay_s.clone(),
             gate: a.gate,
+            spl_db: Vec::new(),
             resolved: a.gate.map_or_else(Vec::new, |g| {
                 a.response
                     .frequency_hz

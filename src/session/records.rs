@@ -83,6 +83,10 @@ pub struct ResponseRecord {
     /// The gate the response was taken through (`null`: none).
     #[serde(default)]
     pub gate: Option<GateInfo>,
+    /// With --calibration: the response as dB SPL at the microphone for the
+    /// sweep's drive level (its peak `level_dbfs`); empty without.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub spl_db: Vec<f64>,
     /// Per grid point, whether the gate resolves it (from 1/gate length up
     /// to `gate.resolved_to_hz`); empty without a gate.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
@@ -150,6 +154,9 @@ pub struct Settings {
     /// Whether the band parameters were analysed.
     #[serde(default)]
     pub bands: bool,
+    /// The calibration file the SPL came from, with its hash.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub calibration: Option<FileEntry>,
     /// The microphone correction removed from the response, with its hash.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub mic_correction: Option<FileEntry>,

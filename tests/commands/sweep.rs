@@ -83,7 +83,7 @@ fn an_existing_file_is_never_overwritten() {
 fn every_help_page_explains_its_options() {
     let t = tempfile::tempdir().unwrap();
     let top = ok(t.path(), &["--help"]);
-    for cmd in ["sweep", "analyze", "demo"] {
+    for cmd in ["sweep", "analyze", "demo", "calibrate"] {
         assert!(top.contains(cmd));
     }
     assert!(top.contains("hearing"), "the safety note is in --help");
@@ -108,6 +108,7 @@ fn every_help_page_explains_its_options() {
                 "--gate",
             ][..],
         ),
+        ("calibrate", &["--level", "--channel", "--out"][..]),
         (
             "demo",
             &[

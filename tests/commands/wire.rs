@@ -259,3 +259,98 @@ fn a_microphone_correction_comes_off_the_response() {
         "{out}"
     );
 }
+
+#[test]
+fn a_calibrated_measurement_reads_the_right_spl() {
+    // closed forms: 94 dB SPL is 20 µPa·10^(94/20) = 1.0024 Pa RMS; a tone
+    // of peak 0.2 has RMS 0.2/√2, so a full-scale sine (RMS 1/√2) reads
+    // 94 − 20·lg 0.2 = 107.98 dB SPL. A wire at gain 0.5 driven by a
+    // −20 dBFS sweep then reads 107.98 − 20 + 20·lg 0.5 = 81.96 dB SPL.
+    let t = tempfile::tempdir().unwrap();
+    let tone: Vec<f64> = (0..96_000)
+        .map(|i| 0.2 * (std::f64::consts::TAU * 1000.0 * i as f64 / 48_000.0).sin())
+        .collect();
+    write_wav_f32(&t.path().join("tone.wav"), 48_000, &[tone]);
+    let out = ok(
+        t.path(),
+        &[
+            "calibrate",
+            "tone.wav",
+            "--level",
+            "94",
+            "--out",
+            "cal.json",
+        ],
+    );
+    assert!(out.contains("dB SPL"), "{out}");
+    let cal = json(&t.path().join("cal.json"));
+    let fs_spl = cal["full_scale_db_spl"].as_f64().unwrap();
+    assert!(
+        (fs_spl - (94.0 - 20.0 * 0.2f64.log10())).abs() < 0.05,
+        "{fs_spl}"
+    );
+    // never overwritten
+    refused(
+        t.path(),
+        &[
+            "calibrate",
+            "tone.wav",
+            "--level",
+            "94",
+            "--out",
+            "cal.json",
+        ],
+    );
+    make_sweep(t.path(), "sweep.wav", &["--length", "2", "--tail", "0.5"]);
+    let x = read_wav(&t.path().join("sweep.wav")).1.remove(0);
+    write_wav_f32(
+        &t.path().join("rec.wav"),
+        48_000,
+        &[x.iter().map(|v| 0.5 * v).collect()],
+    );
+    ok(
+        t.path(),
+        &[
+            "analyze",
+            "rec.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "m",
+            "--calibration",
+            "cal.json",
+            "--no-plots",
+            "--no-bands",
+        ],
+    );
+    let r = json(&t.path().join("m/results.json"));
+    let f = numbers(&r["response"]["frequency_hz"]);
+    let spl = numbers(&r["response"]["spl_db"]);
+    let want = 94.0 - 20.0 * 0.2f64.log10() - 20.0 + 20.0 * 0.5f64.log10();
+    for (f, s) in f.iter().zip(&spl) {
+        if *f >= 40.0 && *f <= 15_000.0 {
+            assert!(
+                (s - want).abs() < 0.06,
+                "{f:.1} Hz: {s:.3} dB SPL, want {want:.3}"
+            );
+        }
+    }
+    let m = json(&t.path().join("m/manifest.json"));
+    assert_eq!(m["settings"]["calibration"]["name"], "cal.json");
+    // a file that is not a calibration: one error line
+    std::fs::write(t.path().join("bogus.json"), "{\"hello\": 1}").unwrap();
+    let line = refused(
+        t.path(),
+        &[
+            "analyze",
+            "rec.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "n",
+            "--calibration",
+            "bogus.json",
+        ],
+    );
+    assert!(line.contains("not a calibration file"), "{line}");
+}

@@ -1,0 +1,151 @@
+//! SPL calibration from a sound calibrator's tone (commonly 94 dB SPL,
+//! 1 Pa, or 114 dB at 1 kHz; common practice).
+//!
+//! The tone is found as the strongest spectral line; its RMS is the power
+//! within ±1/6 octave of it (Hann-windowed spectrum, so broadband noise
+//! outside hardly counts). Sensitivity is stated as Pa (RMS) per unit RMS
+//! of the recorded signal (full scale ±1): p = x·pa_per_fs.
+
+use serde::{Deserialize, Serialize};
+
+use crate::error::{Error, Result};
+use crate::signal::fft;
+use crate::signal::window::Window;
+
+/// Reference pressure of dB SPL, 20 µPa.
+pub const P_REF_PA: f64 = 20e-6;
+
+/// A microphone channel's calibration.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Calibration {
+    /// Always "gliss calibration".
+    pub format: String,
+    /// Layout version.
+    pub schema_version: u32,
+    /// The calibrator's level, dB SPL.
+    pub level_db_spl: f64,
+    /// The tone's frequency as found, Hz.
+    pub tone_hz: f64,
+    /// The tone's RMS in the recording, full scale = 1.
+    pub tone_rms_fs: f64,
+    /// Pa (RMS) per unit RMS of the recording.
+    pub pa_per_fs: f64,
+    /// Sensitivity as the dB SPL that a full-scale sine (0 dBFS) would read.
+    pub full_scale_db_spl: f64,
+}
+
+/// Finds the calibrator's tone in `x` (sample rate `fs`) and states the
+/// sensitivity for a calibrator of `level_db_spl`.
+pub fn calibrate(x: &[f64], fs: f64, level_db_spl: f64) -> Result<Calibration> {
+    if !(60.0..=150.0).contains(&level_db_spl) {
+        return Err(Error::parameter(format!(
+            "--level {level_db_spl} dB SPL is not a calibrator's level; calibrators give 94 or 114 dB SPL"
+        )));
+    }
+    // skip the first and last tenth (the calibrator being seated)
+    let a = x.len() / 10;
+    let seg = &x[a..x.len() - a];
+    if (seg.len() as f64) < 0.25 * fs {
+        return Err(Error::input(
+            "the calibrator recording is shorter than a third of a second; record at least 2 s of the tone",
+        ));
+    }
+    let w = Window::Hann.make(seg.len());
+    let energy: f64 = w.iter().map(|v| v * v).sum();
+    let xw: Vec<f64> = seg.iter().zip(&w).map(|(s, w)| s * w).collect();
+    let n = fft::fast_len(seg.len());
+    let spec = fft::rfft(&xw, n);
+    let df = fs / n as f64;
+    let power: Vec<f64> = spec.iter().map(|c| c.norm_sqr()).collect();
+    let (k, _) = power
+        .iter()
+        .enumerate()
+        .skip((20.0 / df) as usize)
+        .fold((0, 0.0), |m, (i, &p)| if p > m.1 { (i, p) } else { m });
+    let tone_hz = k as f64 * df;
+    let lo = ((tone_hz * 2f64.powf(-1.0 / 6.0)) / df) as usize;
+    let hi = (((tone_hz * 2f64.powf(1.0 / 6.0)) / df) as usize).min(power.len() - 1);
+    // Parseval with the window: Σ|X|² (both halves) / (n·Σw²) = mean square
+    let band: f64 = power[lo..=hi].iter().sum::<f64>() * 2.0;
+    let total: f64 = power.iter().sum::<f64>() * 2.0;
+    let tone_rms_fs = (band / (n as f64 * energy)).sqrt();
+    if tone_rms_fs < 1e-5 || band < 0.5 * total {
+        return Err(Error::input(format!(
+            "no clear calibrator tone in the recording (the strongest line, {tone_hz:.0} Hz, carries {:.0} % of the power); check the channel and that the calibrator is on",
+            100.0 * band / total.max(f64::MIN_POSITIVE)
+        )));
+    }
+    let p_rms = P_REF_PA * 10f64.powf(level_db_spl / 20.0);
+    let pa_per_fs = p_rms / tone_rms_fs;
+    Ok(Calibration {
+        format: "gliss calibration".into(),
+        schema_version: 1,
+        level_db_spl,
+        tone_hz,
+        tone_rms_fs,
+        pa_per_fs,
+        full_scale_db_spl: 20.0 * (pa_per_fs / std::f64::consts::SQRT_2 / P_REF_PA).log10(),
+    })
+}
+
+impl Calibration {
+    /// dB SPL at the microphone of a response level `magnitude_db` (re the
+    /// sweep as written) for a sweep of peak `level_dbfs`: the sweep's sine
+    /// has RMS 10^(level/20)/√2 of full scale.
+    pub fn spl_db(&self, magnitude_db: f64, level_dbfs: f64) -> f64 {
+        let drive_rms = 10f64.powf(level_dbfs / 20.0) / std::f64::consts::SQRT_2;
+        magnitude_db + 20.0 * (drive_rms * self.pa_per_fs / P_REF_PA).log10()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_known_tone_gives_its_sensitivity() {
+        // closed form: a 1 kHz sine of peak a has RMS a/√2; at 94 dB SPL
+        // (1.0024 Pa) the sensitivity is 1.0024/(a/√2) Pa per unit RMS
+        let fs = 48_000.0;
+        for a in [0.05, 0.3] {
+            let mut s = 3u64;
+            let x: Vec<f64> = (0..(3.0 * fs) as usize)
+                .map(|i| {
+                    s = s.wrapping_mul(6364136223846793005).wrapping_add(1);
+                    let noise = ((s >> 11) as f64 / (1u64 << 53) as f64 - 0.5) * 1e-4;
+                    a * (std::f64::consts::TAU * 1000.0 * i as f64 / fs).sin() + noise
+                })
+                .collect();
+            let c = calibrate(&x, fs, 94.0).unwrap();
+            let want = P_REF_PA * 10f64.powf(94.0 / 20.0) / (a / std::f64::consts::SQRT_2);
+            assert!(
+                (20.0 * (c.pa_per_fs / want).log10()).abs() < 0.05,
+                "{} vs {want}",
+                c.pa_per_fs
+            );
+            assert!((c.tone_hz - 1000.0).abs() < 1.0);
+        }
+        // silence or noise is no calibrator
+        assert!(calibrate(&vec![0.0; 96_000], fs, 94.0).is_err());
+        assert!(calibrate(&vec![0.1; 1000], fs, 94.0).is_err());
+        assert!(calibrate(&vec![0.1; 96_000], fs, 20.0).is_err());
+    }
+
+    #[test]
+    fn spl_of_a_response() {
+        // a wire with 1 Pa per unit RMS: a −20 dBFS peak sweep has RMS
+        // 0.0707, i.e. 0.0707 Pa = 70.97 dB SPL at 0 dB response
+        let c = Calibration {
+            format: String::new(),
+            schema_version: 1,
+            level_db_spl: 94.0,
+            tone_hz: 1000.0,
+            tone_rms_fs: 1.0,
+            pa_per_fs: 1.0,
+            full_scale_db_spl: 0.0,
+        };
+        let want = 20.0 * (0.1 / std::f64::consts::SQRT_2 / P_REF_PA).log10();
+        assert!((c.spl_db(0.0, -20.0) - want).abs() < 1e-9);
+        assert!((want - 70.97).abs() < 0.01);
+    }
+}
