@@ -172,7 +172,7 @@ impl OutputArgs {
         let Some(path) = &self.calibration else {
             return Ok(None);
         };
-        let bytes = std::fs::read(path).map_err(|e| Error::io("read", path, &e))?;
+        let (bytes, entry) = read_input(path)?;
         let c: Calibration = serde_json::from_slice(&bytes)
             .ok()
             .filter(|c: &Calibration| c.format == "gliss calibration" && c.pa_per_fs > 0.0)
@@ -182,14 +182,7 @@ impl OutputArgs {
                     path.display()
                 ))
             })?;
-        Ok(Some((
-            c,
-            FileEntry {
-                name: path.display().to_string(),
-                role: "input".into(),
-                sha256: sha256_hex(&bytes),
-            },
-        )))
+        Ok(Some((c, entry)))
     }
 
     /// The microphone correction, parsed, with its path and SHA-256 for the
@@ -198,23 +191,28 @@ impl OutputArgs {
         let Some(path) = &self.mic_correction else {
             return Ok(None);
         };
-        let bytes = std::fs::read(path).map_err(|e| Error::io("read", path, &e))?;
+        let (bytes, entry) = read_input(path)?;
         let text = String::from_utf8_lossy(&bytes);
         let c = Correction::parse(&text).map_err(|m| {
             Error::input(format!("the microphone correction {}: {m}", path.display()))
         })?;
-        Ok(Some((
-            c,
-            FileEntry {
-                name: path.display().to_string(),
-                role: "input".into(),
-                sha256: sha256_hex(&bytes),
-            },
-        )))
+        Ok(Some((c, entry)))
     }
 }
 
 /// The folder name for messages.
 pub fn show(p: &Path) -> String {
     p.display().to_string()
+}
+
+/// Reads an input file named on the command line; returns its bytes and
+/// its manifest entry (path as given, role "input", SHA-256).
+fn read_input(path: &Path) -> Result<(Vec<u8>, FileEntry)> {
+    let bytes = std::fs::read(path).map_err(|e| Error::io("read", path, &e))?;
+    let entry = FileEntry {
+        name: path.display().to_string(),
+        role: "input".into(),
+        sha256: sha256_hex(&bytes),
+    };
+    Ok((bytes, entry))
 }

@@ -137,31 +137,12 @@ pub fn run(job: &Job) -> Result<Outcome> {
     )?;
     extra.append(&mut analysis.warnings);
     analysis.warnings = extra;
-    write_folder(job, &folder, &analysis)?;
-    let mut files: Vec<String> = vec![
-        "manifest.json",
-        "stimulus.wav",
-        "recording.wav",
-        "impulse.wav",
-        "results.json",
-        "response.csv",
-    ]
-    .into_iter()
-    .map(String::from)
-    .collect();
-    if analysis.distortion.is_some() {
-        files.push("distortion.csv".into());
-    }
-    if analysis.room.is_some() {
-        files.push("bands.csv".into());
-    }
-    if job.plots {
-        files.extend(plot_files(&analysis).iter().map(|s| s.to_string()));
-    }
+    let files = write_folder(job, &folder, &analysis)?;
     Ok(Outcome { analysis, files })
 }
 
-fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<()> {
+/// Writes the folder; returns the files written, manifest first.
+fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<Vec<String>> {
     folder.create()?;
     let mut files = Vec::new();
     // raw files first: they are the measurement
@@ -300,7 +281,10 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<(
         },
         files,
     };
-    folder.write_derived("manifest.json", &to_json(&manifest)?)
+    folder.write_derived("manifest.json", &to_json(&manifest)?)?;
+    Ok(std::iter::once("manifest.json".to_string())
+        .chain(manifest.files.into_iter().map(|f| f.name))
+        .collect())
 }
 
 /// The plots an analysis draws.
