@@ -9,7 +9,7 @@ use rand::{SeedableRng, rngs::StdRng};
 use rand_distr::{Distribution, Normal};
 
 use crate::analysis::bands;
-use crate::audio::{PlayRecord, Take};
+use crate::audio::{Capture, PlayRecord, Playback, Progress, RawSink, STOP_RAMP_S, stop_gain};
 use crate::error::{Error, Result};
 use crate::signal::biquad::Biquad;
 use crate::signal::fft;
@@ -39,7 +39,25 @@ pub struct VirtualSystem {
     pub noise_dbfs: f64,
     /// Seed of the noise generators (a take is reproducible).
     pub seed: u64,
+    /// Record a second input wired back from output 2 (a loopback through
+    /// the interface, with the same latency): for `--reference 2`.
+    pub loopback: bool,
+    /// Faults to inject, for tests of what a measurement does when the
+    /// sound path fails.
+    pub faults: Faults,
 }
+
+/// Faults the virtual interface can be told to have.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Faults {
+    /// Lose this many input frames (an overrun) at the given time, in s.
+    pub lose_frames_at_s: Option<(f64, usize)>,
+    /// Stop as if Ctrl-C had been pressed at this time, in s.
+    pub stop_at_s: Option<f64>,
+}
+
+/// Sample rates the virtual interface runs at, Hz.
+pub const VIRTUAL_RATES: [u32; 6] = [44_100, 48_000, 88_200, 96_000, 176_400, 192_000];
 
 impl Default for VirtualSystem {
     fn default() -> Self {
@@ -65,6 +83,8 @@ impl Default for VirtualSystem {
             nonlinearity: (0.04, 0.03),
             noise_dbfs: -96.0,
             seed: 2026,
+            loopback: false,
+            faults: Faults::default(),
         }
     }
 }
@@ -229,26 +249,149 @@ impl VirtualSystem {
 impl PlayRecord for VirtualSystem {
     fn describe(&self) -> String {
         format!(
-            "virtual system (simulated): Kestrel 5 monitor at {:.1} m in a {:.1} × {:.1} × {:.1} m room, T {:.2} s at 125 Hz to {:.2} s at 4 kHz, latency {} samples",
+            "virtual system (simulated): Kestrel 5 monitor at {:.1} m in a {:.1} × {:.1} × {:.1} m room, T {:.2} s at 125 Hz to {:.2} s at 4 kHz, latency {} samples{}",
             self.distance_m,
             self.room_m.0,
             self.room_m.1,
             self.room_m.2,
             self.reverberation_s[2].1,
             self.reverberation_s[7].1,
-            self.latency_samples
+            self.latency_samples,
+            if self.loopback {
+                "; input 2 is a loopback from output 2"
+            } else {
+                ""
+            }
         )
     }
 
-    fn play_record(&mut self, stimulus: &[f64], sample_rate_hz: u32) -> Result<Take> {
-        if stimulus.is_empty() {
-            return Err(Error::parameter("nothing to play: the stimulus is empty"));
+    fn input_channels(&self) -> usize {
+        if self.loopback { 2 } else { 1 }
+    }
+
+    fn output_channels(&self) -> usize {
+        2
+    }
+
+    fn check_rate(&self, rate: u32) -> Result<()> {
+        if VIRTUAL_RATES.contains(&rate) {
+            return Ok(());
         }
-        let y = self.render(stimulus, f64::from(sample_rate_hz));
-        Ok(Take {
-            channels: vec![y],
-            sample_rate_hz,
-            problems: Vec::new(),
+        Err(Error::new(
+            crate::ErrorKind::Device,
+            format!(
+                "the virtual interface cannot run at {rate} Hz; it runs at {} Hz; choose one with --rate",
+                VIRTUAL_RATES.map(|r| r.to_string()).join(", ")
+            ),
+        ))
+    }
+
+    /// Output 1 drives the loudspeaker, heard by the microphone on input
+    /// 1; with `loopback`, output 2 is wired to input 2.
+    fn play_record(
+        &mut self,
+        what: &Playback<'_>,
+        sink: &mut dyn RawSink,
+        progress: &mut dyn FnMut(Progress),
+    ) -> Result<Capture> {
+        let rate = what.sample_rate_hz;
+        self.check_rate(rate)?;
+        if what.signal.is_empty() {
+            return Err(Error::parameter("nothing to play: the signal is empty"));
+        }
+        let fs = f64::from(rate);
+        let n = what.signal.len();
+        // a stop: Ctrl-C before the start, or an injected one
+        let stop_at = if what.stop.load(std::sync::atomic::Ordering::SeqCst) {
+            Some(0)
+        } else {
+            self.faults.stop_at_s.map(|t| ((t * fs) as usize).min(n))
+        };
+        let ramp = (STOP_RAMP_S * fs).round() as usize;
+        let drive_of = |ch: usize| -> Vec<f64> {
+            if !what.output_channels.contains(&ch) {
+                return vec![0.0; n];
+            }
+            let mut d = what.signal.to_vec();
+            if let Some(s) = stop_at {
+                for (i, v) in d.iter_mut().enumerate().skip(s) {
+                    *v *= stop_gain(i - s, ramp);
+                }
+            }
+            d
+        };
+        let mut channels = vec![self.render(&drive_of(0), fs)];
+        if self.loopback {
+            let d = drive_of(1);
+            let mut wire = vec![0.0; n];
+            for (i, v) in wire.iter_mut().enumerate().skip(self.latency_samples) {
+                *v = d[i - self.latency_samples];
+            }
+            channels.push(wire);
+        }
+        let mut problems = Vec::new();
+        let mut kept = n;
+        if let Some(s) = stop_at {
+            // the recording goes on for the ramp and a little after it
+            kept = (s + 2 * ramp).min(n);
+            problems.push(format!(
+                "stopped after {:.2} s of {:.2} s",
+                s as f64 / fs,
+                n as f64 / fs
+            ));
+        }
+        let mut lost = 0;
+        if let Some((t, frames)) = self.faults.lose_frames_at_s {
+            let at = ((t * fs) as usize).min(kept);
+            let frames = frames.min(kept - at);
+            for c in &mut channels {
+                c.truncate(kept);
+                c.drain(at..at + frames);
+            }
+            kept -= frames;
+            lost = frames as u64;
+            problems.push(format!(
+                "{frames} input frames were lost at {t:.2} s (an overrun)"
+            ));
+        }
+        for c in &mut channels {
+            c.truncate(kept);
+        }
+        // hand the recording to the sink in blocks, as a sound card would
+        let chans = channels.len();
+        sink.begin(chans, rate)?;
+        let block = 4800;
+        let mut inter = Vec::with_capacity(block * chans);
+        let mut start = 0;
+        while start < kept {
+            let end = (start + block).min(kept);
+            inter.clear();
+            let mut peak = 0.0f32;
+            for i in start..end {
+                for c in &channels {
+                    let v = c[i] as f32;
+                    peak = peak.max(v.abs());
+                    inter.push(v);
+                }
+            }
+            sink.write(&inter)?;
+            progress(Progress {
+                done_frames: end as u64,
+                total_frames: n as u64,
+                peak,
+            });
+            start = end;
+        }
+        sink.finish()?;
+        Ok(Capture {
+            channels,
+            sample_rate_hz: rate,
+            signal_start: 0,
+            lost_frames: lost,
+            stopped: stop_at.is_some(),
+            fault: None,
+            problems,
+            stream: "simulated, 32-bit float".into(),
         })
     }
 }

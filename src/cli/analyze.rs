@@ -30,6 +30,11 @@ pub struct Args {
     /// The recording's microphone channel, counted from 1.
     #[arg(long, value_name = "N", default_value_t = 1)]
     pub channel: usize,
+    /// A channel of the recording wired straight back from an output that
+    /// also played the sweep (a loopback): the response is divided by it,
+    /// which removes the interface's own response and latency.
+    #[arg(long, value_name = "N")]
+    pub reference: Option<usize>,
     #[command(flatten)]
     pub output: OutputArgs,
 }
@@ -84,6 +89,15 @@ pub fn run(a: Args) -> Result<()> {
         command_line: std::env::args().collect(),
         mic_correction: mic.map(|m| m.1),
         calibration: a.output.calibration()?,
+        reference: match a.reference {
+            Some(0) => {
+                return Err(Error::parameter(
+                    "--reference counts from 1; use --reference 2 for the second channel",
+                ));
+            }
+            r => r.map(|r| r - 1),
+        },
+        measurement: None,
     };
     let outcome = session::run(&job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);

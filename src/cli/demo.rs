@@ -4,8 +4,8 @@ use std::path::PathBuf;
 
 use clap::Args as ClapArgs;
 
-use crate::audio::PlayRecord;
 use crate::audio::virtual_system::VirtualSystem;
+use crate::audio::{NoSink, PlayRecord, Playback};
 use crate::cli::common::{self, OutputArgs, SweepArgs};
 use crate::error::Result;
 use crate::session::{self, Job, Outcome, records::Source};
@@ -72,7 +72,17 @@ pub fn run(a: Args) -> Result<()> {
     println!("SIMULATED: {}", system.describe());
     println!("(no sound is played; the recording is computed)");
     let stimulus = design.generate();
-    let take = system.play_record(&stimulus, design.params.sample_rate_hz)?;
+    let stop = std::sync::atomic::AtomicBool::new(false);
+    let take = system.play_record(
+        &Playback {
+            signal: &stimulus,
+            sample_rate_hz: design.params.sample_rate_hz,
+            output_channels: &[0],
+            stop: &stop,
+        },
+        &mut NoSink,
+        &mut |_| {},
+    )?;
     let stimulus_bytes = encode_wav(
         &[&stimulus],
         design.params.sample_rate_hz,
@@ -111,6 +121,8 @@ pub fn run(a: Args) -> Result<()> {
         command_line: std::env::args().collect(),
         mic_correction: mic.map(|m| m.1),
         calibration: a.output.calibration()?,
+        reference: None,
+        measurement: None,
     };
     let outcome = session::run(&job)?;
     print_summary(&common::show(&a.out), &outcome);

@@ -5,6 +5,8 @@ mod analyze;
 mod calibrate;
 mod common;
 mod demo;
+mod devices;
+mod measure;
 mod sweep;
 
 use std::process::ExitCode;
@@ -34,6 +36,10 @@ pub struct Cli {
 enum Command {
     /// Write a synchronised exponential sine sweep (WAV plus its parameters as .json).
     Sweep(sweep::Args),
+    /// List the sound cards: inputs, outputs, channels, sample rates, formats.
+    Devices(devices::Args),
+    /// Play the sweep through a sound card while recording, then analyse (mind the level).
+    Measure(measure::Args),
     /// Analyse a recording of a gliss sweep made with any recorder into a measurement folder.
     Analyze(analyze::Args),
     /// Run the whole job on the built-in virtual loudspeaker and room (simulated).
@@ -54,6 +60,8 @@ pub fn main() -> ExitCode {
     };
     let result = match cli.command {
         Command::Sweep(a) => sweep::run(a),
+        Command::Devices(a) => devices::run(a),
+        Command::Measure(a) => measure::run(a),
         Command::Analyze(a) => analyze::run(a),
         Command::Demo(a) => demo::run(a),
         Command::Calibrate(a) => calibrate::run(a),

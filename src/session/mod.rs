@@ -2,6 +2,7 @@
 //! All file I/O of an analysis happens here; the stages it calls are pure.
 
 pub mod folder;
+pub mod measure;
 pub mod records;
 pub mod sweep_file;
 
@@ -51,6 +52,11 @@ pub struct Job {
     pub mic_correction: Option<FileEntry>,
     /// The calibration, if one was given, and its file (path and hash).
     pub calibration: Option<(crate::analysis::calibration::Calibration, FileEntry)>,
+    /// The recording's loopback reference channel, 0-based: the response
+    /// is then divided by it instead of the sweep as written.
+    pub reference: Option<usize>,
+    /// How a device measurement ran, for the manifest.
+    pub measurement: Option<records::MeasurementRecord>,
 }
 
 /// What a finished job wrote.
@@ -89,6 +95,15 @@ pub fn check_inputs(job: &Job) -> Result<Vec<String>> {
             if rec.channels.len() == 1 { "" } else { "s" }
         )));
     }
+    if let Some(r) = job.reference {
+        if r >= rec.channels.len() || r == job.channel {
+            return Err(Error::parameter(format!(
+                "--reference {} must be another channel of the recording, which has {}",
+                r + 1,
+                rec.channels.len()
+            )));
+        }
+    }
     if stim.channels.len() != 1 {
         return Err(Error::input(format!(
             "the sweep file has {} channels; a gliss sweep is mono, give the file gliss sweep wrote",
@@ -120,7 +135,7 @@ pub fn check_inputs(job: &Job) -> Result<Vec<String>> {
 /// Runs a job: checks, analyses, then writes the folder. Nothing is
 /// written when the inputs or the folder are refused.
 pub fn run(job: &Job) -> Result<Outcome> {
-    let mut extra = check_inputs(job)?;
+    check_inputs(job)?;
     let folder = MeasurementFolder::check(
         &job.out,
         job.overwrite,
@@ -129,15 +144,47 @@ pub fn run(job: &Job) -> Result<Outcome> {
             ("recording.wav", &job.recording_bytes),
         ],
     )?;
+    analyse_into(job, &folder)
+}
+
+/// Analyses a job into `folder`, whose raw files may already be there
+/// (a measurement writes them while it records).
+pub fn analyse_into(job: &Job, folder: &MeasurementFolder) -> Result<Outcome> {
+    let mut extra = check_inputs(job)?;
+    let divisor = match job.reference {
+        Some(r) => {
+            let reference = &job.recording.channels[r];
+            let peak = reference.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+            if peak < 1e-4 {
+                return Err(Error::input(format!(
+                    "the reference channel {} is silent (peak {:.0} dBFS); wire an output that plays the sweep back to it, and play the sweep on that output too (--output-channel)",
+                    r + 1,
+                    20.0 * peak.max(1e-12).log10()
+                )));
+            }
+            reference
+        }
+        None => &job.stimulus.channels[0],
+    };
     let mut analysis = analysis::analyze(
         &job.recording.channels[job.channel],
-        &job.stimulus.channels[0],
+        divisor,
         &job.design,
         &job.config,
     )?;
+    // name the channel that clips
+    for w in &mut analysis.warnings {
+        if w.starts_with("the recording clips") {
+            *w = w.replacen(
+                "the recording clips",
+                &format!("channel {} of the recording clips", job.channel + 1),
+                1,
+            );
+        }
+    }
     extra.append(&mut analysis.warnings);
     analysis.warnings = extra;
-    let files = write_folder(job, &folder, &analysis)?;
+    let files = write_folder(job, folder, &analysis)?;
     Ok(Outcome { analysis, files })
 }
 
@@ -175,6 +222,14 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<V
         ),
     )?;
     let mut results = results_record(a);
+    if job.reference.is_some() {
+        results.delay_reference =
+            "the loopback reference channel: the interface's own latency is divided out".into();
+        results.response.magnitude_reference =
+            "0 dB = the microphone channel equals the loopback reference channel".into();
+    } else if let Some(m) = &job.measurement {
+        results.delay_reference = m.delay_note.clone();
+    }
     if let Some((c, _)) = &job.calibration {
         let level = job.design.params.level_dbfs;
         results.response.spl_db = a
@@ -280,6 +335,8 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<V
             calibration: job.calibration.as_ref().map(|c| c.1.clone()),
         },
         files,
+        measurement: job.measurement.clone(),
+        problems: Vec::new(),
     };
     folder.write_derived("manifest.json", &to_json(&manifest)?)?;
     Ok(std::iter::once("manifest.json".to_string())

@@ -124,6 +124,46 @@ pub struct Manifest {
     pub settings: Settings,
     /// Every file of the folder with its role and SHA-256.
     pub files: Vec<FileEntry>,
+    /// How a measurement through a device ran (measure only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub measurement: Option<MeasurementRecord>,
+    /// What went wrong; an incomplete folder says why here.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub problems: Vec<String>,
+}
+
+/// How `gliss measure` played and recorded.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct MeasurementRecord {
+    /// The device as it described itself.
+    pub device: String,
+    /// The streams as they ran (formats, buffer).
+    pub stream: String,
+    /// Output channels that played the sweep, 1-based.
+    pub output_channels: Vec<usize>,
+    /// The loopback reference input, 1-based, if one was recorded.
+    pub reference_channel: Option<usize>,
+    /// Sweeps played and averaged.
+    pub repeat: usize,
+    /// Silence between sweeps, s.
+    pub gap_s: f64,
+    /// Where each take lies in recording.wav.
+    pub takes: Vec<TakeRecord>,
+    /// Input frames lost to overruns or underruns (invalid if not 0).
+    pub lost_frames: u64,
+    /// Peak level of each recorded input over the whole recording, dBFS.
+    pub input_peaks_dbfs: Vec<f64>,
+    /// What the measured delay is relative to.
+    pub delay_note: String,
+}
+
+/// One sweep of a measurement inside recording.wav.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TakeRecord {
+    /// First frame, counted from 0.
+    pub start_frame: usize,
+    /// Frames analysed.
+    pub frames: usize,
 }
 
 /// Where the recording came from.

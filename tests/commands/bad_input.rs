@@ -262,7 +262,10 @@ fn clipping_is_a_warning_in_the_results() {
             "--no-plots",
         ],
     );
-    assert!(out.contains("warning: the recording clips"), "{out}");
+    assert!(
+        out.contains("warning: channel 1 of the recording clips"),
+        "{out}"
+    );
     let r = json(&t.path().join("m/results.json"));
     let w = r["warnings"].as_array().unwrap();
     assert!(

@@ -8,5 +8,7 @@ mod bad_input;
 mod demo;
 mod device_under_test;
 mod distortion;
+mod measure;
+mod sound_server;
 mod sweep;
 mod wire;

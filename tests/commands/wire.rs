@@ -354,3 +354,63 @@ fn a_calibrated_measurement_reads_the_right_spl() {
     );
     assert!(line.contains("not a calibration file"), "{line}");
 }
+
+#[test]
+fn a_loopback_reference_channel_divides_out_the_interface() {
+    // channel 2 is the loopback: the sweep through an "interface" with 117
+    // samples of latency and 3 dB of loss; channel 1 is the same interface
+    // plus a wire 25.4 samples long. Divided by the reference, the
+    // interface goes: 0 dB and a delay of 25.4 samples (closed form of a
+    // pure delay).
+    let t = tempfile::tempdir().unwrap();
+    let sweep = make_sweep(t.path(), "sweep.wav", &["--length", "2", "--tail", "0.5"]);
+    let x = read_wav(&sweep).1.remove(0);
+    let gain = 10f64.powf(-3.0 / 20.0);
+    let scale = |v: Vec<f64>| v.into_iter().map(|s| s * gain).collect::<Vec<_>>();
+    let reference = scale(fractional_delay(&x, 117.0, 0));
+    let mic = scale(fractional_delay(&x, 142.4, 0));
+    write_wav_f32(&t.path().join("rec.wav"), 48_000, &[mic, reference]);
+    ok(
+        t.path(),
+        &[
+            "analyze",
+            "rec.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "m",
+            "--reference",
+            "2",
+            "--no-plots",
+            "--no-bands",
+            "--harmonics",
+            "1",
+        ],
+    );
+    let r = json(&t.path().join("m/results.json"));
+    let d = r["delay_s"].as_f64().unwrap() * 48_000.0;
+    assert!((d - 25.4).abs() < 0.05, "delay {d} samples");
+    let f = numbers(&r["response"]["frequency_hz"]);
+    let m = numbers(&r["response"]["magnitude_db"]);
+    for (f, m) in f.iter().zip(&m) {
+        if (30.0..=18_000.0).contains(f) {
+            assert!(m.abs() < 0.05, "{f} Hz: {m} dB");
+        }
+    }
+    assert!(r["delay_reference"].as_str().unwrap().contains("loopback"));
+    // a reference that is the microphone itself is refused
+    let line = refused(
+        t.path(),
+        &[
+            "analyze",
+            "rec.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "n",
+            "--reference",
+            "1",
+        ],
+    );
+    assert!(line.contains("--reference 1"), "{line}");
+}

@@ -1,0 +1,316 @@
+//! `gliss measure`: play the sweep through a sound card while recording the
+//! microphone, then analyse.
+
+use std::io::{IsTerminal, Write};
+use std::path::PathBuf;
+use std::sync::atomic::{AtomicBool, Ordering};
+
+use clap::Args as ClapArgs;
+
+use crate::audio::soundcard::{Request, SoundCard};
+use crate::audio::virtual_system::VirtualSystem;
+use crate::audio::{PlayRecord, Progress};
+use crate::cli::common::{self, OutputArgs, SweepArgs};
+use crate::error::{Error, Result};
+use crate::session::measure::{self, MeasureJob};
+
+/// Above this sweep level `measure` asks before it plays, dBFS.
+pub const CONFIRM_ABOVE_DBFS: f64 = -6.0;
+
+const AFTER_HELP: &str = "\
+Safety: sweeps are loud, broadband signals. Protect your hearing (and that of anyone \
+near) and start at a low level, with the amplifier turned down; raise it step by step. \
+High-level sweeps with much high-frequency energy can damage tweeters: keep the level \
+modest and the sweep short when measuring a tweeter on its own. Follow local rules on \
+noise exposure. The default level is -20 dBFS; above -6 dBFS gliss asks first (--yes \
+answers for scripts). Ctrl-C stops at once: the output ramps down over 10 ms, the \
+recording so far is kept and the manifest says the measurement is incomplete.
+
+Wiring: play the sweep on --output-channel (default 1) into the amplifier, record the \
+microphone on --channel. For a loopback reference, play the sweep on a second output too \
+(--output-channel 1,2) and wire that output straight back to an input (--reference 2): \
+the interface's own response and latency are then divided out, so a loopback reads 0 dB \
+and 0 s. Without it the measured delay includes the interface's latency.
+
+--device virtual measures the built-in simulated system (nothing is played; input 2 is \
+a loopback from output 2).";
+
+/// Options of `gliss measure`.
+#[derive(Debug, ClapArgs)]
+#[command(after_help = AFTER_HELP)]
+pub struct Args {
+    /// The new measurement folder (it must not exist yet, or be empty).
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+    /// The sound card: a number from `gliss devices`, part of its name, or
+    /// `virtual` for the simulated system [default: the system's default
+    /// input and output].
+    #[arg(long, value_name = "N|NAME|virtual")]
+    pub device: Option<String>,
+    /// The device that records, when it differs from the output (overrides
+    /// --device for the input).
+    #[arg(long, value_name = "N|NAME")]
+    pub input_device: Option<String>,
+    /// The device that plays, when it differs from the input (overrides
+    /// --device for the output).
+    #[arg(long, value_name = "N|NAME")]
+    pub output_device: Option<String>,
+    /// Output channels that play the sweep, counted from 1, e.g. 1 or 1,2.
+    #[arg(
+        long,
+        value_name = "N[,N...]",
+        value_delimiter = ',',
+        default_value = "1"
+    )]
+    pub output_channel: Vec<usize>,
+    /// The microphone input, counted from 1.
+    #[arg(long, value_name = "N", default_value_t = 1)]
+    pub channel: usize,
+    /// An input wired straight back from an output that also plays the
+    /// sweep (a loopback): the response is divided by it, which removes the
+    /// interface's own response and latency.
+    #[arg(long, value_name = "N")]
+    pub reference: Option<usize>,
+    /// Play N sweeps with short gaps and average them synchronously (each
+    /// doubling lowers uncorrelated noise by 3 dB); every take stays in
+    /// recording.wav.
+    #[arg(long, value_name = "N", default_value_t = 1)]
+    pub repeat: usize,
+    /// Buffer size in frames [default: the device's]; smaller buffers
+    /// risk lost samples on a busy machine.
+    #[arg(long, value_name = "FRAMES")]
+    pub buffer: Option<u32>,
+    /// Play above -6 dBFS without asking (for scripts; mind the safety
+    /// notes below).
+    #[arg(long)]
+    pub yes: bool,
+    #[command(flatten)]
+    pub sweep: SweepArgs,
+    #[command(flatten)]
+    pub output: OutputArgs,
+}
+
+/// Set by Ctrl-C: the measurement stops, the output ramps down.
+static STOP: AtomicBool = AtomicBool::new(false);
+
+fn one_based(v: usize, what: &str) -> Result<usize> {
+    v.checked_sub(1).ok_or_else(|| {
+        Error::parameter(format!(
+            "{what} counts from 1; use {what} 1 for the first channel"
+        ))
+    })
+}
+
+/// Asks before a loud sweep; refuses when nobody can answer.
+fn confirm_level(level: f64, yes: bool) -> Result<()> {
+    if level <= CONFIRM_ABOVE_DBFS || yes {
+        return Ok(());
+    }
+    if !std::io::stdin().is_terminal() {
+        return Err(Error::parameter(format!(
+            "--level {level} dBFS is above {CONFIRM_ABOVE_DBFS} dBFS and nobody is at the terminal to confirm it; add --yes if you mean it (protect your hearing and the tweeters)"
+        )));
+    }
+    eprint!(
+        "The sweep will play at {level} dBFS, which can be very loud and can damage tweeters. Turn the amplifier down first. Play it? Type yes: "
+    );
+    let _ = std::io::stderr().flush();
+    let mut answer = String::new();
+    std::io::stdin()
+        .read_line(&mut answer)
+        .map_err(|e| Error::parameter(format!("could not read the answer: {e}")))?;
+    if answer.trim().eq_ignore_ascii_case("yes") {
+        Ok(())
+    } else {
+        Err(Error::parameter(
+            "not played: the loud sweep was not confirmed; lower --level or answer yes",
+        ))
+    }
+}
+
+/// A terminal progress bar with time left and a live input peak meter.
+struct Meter {
+    bar: indicatif::ProgressBar,
+    hold: f32,
+    hold_age: u32,
+}
+
+impl Meter {
+    fn new(total_frames: u64) -> Self {
+        let bar = indicatif::ProgressBar::with_draw_target(
+            Some(total_frames),
+            indicatif::ProgressDrawTarget::stderr(),
+        );
+        if let Ok(style) =
+            indicatif::ProgressStyle::with_template("{bar:30} {msg}  {elapsed} played, {eta} left")
+        {
+            bar.set_style(style.progress_chars("=> "));
+        }
+        Meter {
+            bar,
+            hold: 0.0,
+            hold_age: 0,
+        }
+    }
+
+    fn update(&mut self, p: Progress) {
+        // a peak meter holds its highest reading for about a second
+        self.hold_age += 1;
+        if p.peak >= self.hold || self.hold_age > 50 {
+            self.hold = p.peak;
+            self.hold_age = 0;
+        }
+        let db = 20.0 * f64::from(self.hold.max(1e-6)).log10();
+        let cells = (((db + 60.0) / 60.0).clamp(0.0, 1.0) * 12.0).round() as usize;
+        let warn = if db >= -0.1 {
+            " CLIP"
+        } else if db < -50.0 {
+            " low"
+        } else {
+            ""
+        };
+        self.bar.set_message(format!(
+            "in {db:6.1} dBFS [{:<12}]{warn}",
+            "#".repeat(cells)
+        ));
+        self.bar.set_length(p.total_frames);
+        self.bar.set_position(p.done_frames);
+    }
+}
+
+/// Runs `gliss measure`.
+pub fn run(a: Args) -> Result<()> {
+    if a.output.overwrite {
+        return Err(Error::parameter(
+            "--overwrite does not apply to measure: every measurement goes to a new folder; to re-analyse one, use gliss analyze on its recording.wav",
+        ));
+    }
+    let mut config = a.output.config()?;
+    let mic = a.output.mic_correction()?;
+    config.mic_correction = mic.as_ref().map(|m| m.0.clone());
+    let calibration = a.output.calibration()?;
+    let design = a.sweep.design()?;
+    let channel = one_based(a.channel, "--channel")?;
+    let reference = a
+        .reference
+        .map(|r| one_based(r, "--reference"))
+        .transpose()?;
+    let mut outputs = Vec::new();
+    for &o in &a.output_channel {
+        let o = one_based(o, "--output-channel")?;
+        if !outputs.contains(&o) {
+            outputs.push(o);
+        }
+    }
+    if a.repeat == 0 || a.repeat > 64 {
+        return Err(Error::parameter(format!(
+            "--repeat {} is out of range; use 1 to 64 sweeps",
+            a.repeat
+        )));
+    }
+    if a.buffer == Some(0) {
+        return Err(Error::parameter(
+            "--buffer must be a positive number of frames",
+        ));
+    }
+    let is_virtual = a
+        .device
+        .as_deref()
+        .is_some_and(|d| d.trim().eq_ignore_ascii_case("virtual"));
+    if !is_virtual {
+        confirm_level(design.params.level_dbfs, a.yes)?;
+    }
+    let mut device: Box<dyn PlayRecord> = if is_virtual {
+        Box::new(VirtualSystem {
+            loopback: true,
+            ..VirtualSystem::default()
+        })
+    } else {
+        let highest_in = channel.max(reference.unwrap_or(0)) + 1;
+        let highest_out = outputs.iter().copied().max().unwrap_or(0) + 1;
+        Box::new(SoundCard::open(&Request {
+            input_device: a.input_device.clone().or_else(|| a.device.clone()),
+            output_device: a.output_device.clone().or_else(|| a.device.clone()),
+            sample_rate_hz: design.params.sample_rate_hz,
+            input_channels: highest_in,
+            output_channels: highest_out,
+            buffer_frames: a.buffer,
+        })?)
+    };
+    let job = MeasureJob {
+        out: a.out.clone(),
+        plots: !a.output.no_plots,
+        channel,
+        reference,
+        output_channels: outputs,
+        repeat: a.repeat,
+        design: design.clone(),
+        config,
+        title: if is_virtual {
+            "Kestrel 5 in the rehearsal room (simulated)".into()
+        } else {
+            format!("{}, input {}", common::show(&a.out), a.channel)
+        },
+        command_line: std::env::args().collect(),
+        mic_correction: mic.map(|m| m.1),
+        calibration,
+        source_kind: if is_virtual { "virtual" } else { "soundcard" }.into(),
+    };
+    measure::check(&job, device.as_ref())?;
+    // Ctrl-C stops the measurement instead of killing the process, so that
+    // the output ramps down and the raw file is closed properly
+    let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
+    println!("{}", device.describe());
+    println!(
+        "playing {} sweep{} of {:.1} s at {} dBFS on output {}; recording input {}{}",
+        a.repeat,
+        if a.repeat == 1 { "" } else { "s" },
+        design.length_s,
+        design.params.level_dbfs,
+        a.output_channel
+            .iter()
+            .map(|c| c.to_string())
+            .collect::<Vec<_>>()
+            .join(","),
+        a.channel,
+        a.reference
+            .map(|r| format!(" (reference: input {r})"))
+            .unwrap_or_default()
+    );
+    let mut meter = Meter::new(1);
+    let outcome = measure::measure(device.as_mut(), &job, &STOP, &mut |p| meter.update(p));
+    meter.bar.finish_and_clear();
+    let outcome = outcome?;
+    if let Some(m) = outcome_measurement(&a.out) {
+        let peaks: Vec<String> = m
+            .input_peaks_dbfs
+            .iter()
+            .enumerate()
+            .map(|(i, p)| format!("input {} {p:.1} dBFS", i + 1))
+            .collect();
+        println!("input peaks: {}", peaks.join(", "));
+    }
+    super::demo::print_summary(&common::show(&a.out), &outcome);
+    if a.repeat > 1 {
+        println!(
+            "{} sweeps averaged synchronously: uncorrelated noise {:.1} dB lower than one sweep's",
+            a.repeat,
+            10.0 * (a.repeat as f64).log10()
+        );
+    }
+    if reference.is_none() {
+        println!(
+            "note: no --reference, so the delay includes the interface's latency (known to about one buffer)"
+        );
+    }
+    Ok(())
+}
+
+/// The measurement record of the folder just written.
+fn outcome_measurement(
+    dir: &std::path::Path,
+) -> Option<crate::session::records::MeasurementRecord> {
+    let text = std::fs::read_to_string(dir.join("manifest.json")).ok()?;
+    let m: crate::session::records::Manifest = serde_json::from_str(&text).ok()?;
+    m.measurement
+}

@@ -1,0 +1,223 @@
+//! The real sound path: `gliss measure` through cpal and ALSA into a
+//! software sound server whose null sink's monitor records what is played.
+//!
+//! `.ci/run` starts PulseAudio with a null sink as the default sink and its
+//! monitor as the default source, and sets GLISS_REQUIRE_SOUND_SERVER=1.
+//! Elsewhere the tests skip (and say so) unless that variable is set, in
+//! which case a missing sound server is a failure. They never run against
+//! a real sink: a sweep is only played where it cannot be heard.
+
+use std::path::Path;
+use std::process::Command;
+use std::sync::Mutex;
+use std::time::Duration;
+
+use crate::util::*;
+
+/// One measurement at a time: they share the sink.
+static SINK: Mutex<()> = Mutex::new(());
+
+/// Whether the default sink of a running sound server is a null sink.
+fn null_sink_ready() -> Result<(), String> {
+    let info = Command::new("pactl")
+        .arg("info")
+        .output()
+        .map_err(|e| format!("pactl cannot run ({e})"))?;
+    if !info.status.success() {
+        return Err("no sound server is running".into());
+    }
+    let text = String::from_utf8_lossy(&info.stdout).into_owned();
+    let sink = text
+        .lines()
+        .find_map(|l| l.strip_prefix("Default Sink: "))
+        .ok_or("the sound server has no default sink")?
+        .trim()
+        .to_string();
+    let sinks = Command::new("pactl")
+        .args(["list", "short", "sinks"])
+        .output()
+        .map_err(|e| format!("pactl cannot run ({e})"))?;
+    let list = String::from_utf8_lossy(&sinks.stdout).into_owned();
+    let is_null = list
+        .lines()
+        .any(|l| l.split('\t').nth(1) == Some(sink.as_str()) && l.contains("module-null-sink"));
+    if is_null {
+        Ok(())
+    } else {
+        Err(format!(
+            "the default sink {sink} is not a null sink (a sweep would be heard)"
+        ))
+    }
+}
+
+/// True when the tests may play; panics when CI requires it and it is not
+/// there.
+fn sound_server() -> bool {
+    match null_sink_ready() {
+        Ok(()) => true,
+        Err(why) => {
+            assert!(
+                std::env::var_os("GLISS_REQUIRE_SOUND_SERVER").is_none(),
+                "GLISS_REQUIRE_SOUND_SERVER is set but {why}"
+            );
+            eprintln!("skipped: {why} (start PulseAudio with a null sink, as .ci/run does)");
+            false
+        }
+    }
+}
+
+fn measure(dir: &Path, out: &str, extra: &[&str]) -> serde_json::Value {
+    let mut args = vec![
+        "measure",
+        "--out",
+        out,
+        "--length",
+        "2",
+        "--tail",
+        "1",
+        "--no-plots",
+        "--no-bands",
+        "--harmonics",
+        "1",
+    ];
+    args.extend_from_slice(extra);
+    ok(dir, &args);
+    json(&dir.join(out).join("results.json"))
+}
+
+/// Asserts 0 dB ± 0.5 dB over 50 Hz–16 kHz (a wire; the null sink passes
+/// the samples unchanged).
+fn assert_flat(r: &serde_json::Value) {
+    let f = numbers(&r["response"]["frequency_hz"]);
+    let m = numbers(&r["response"]["magnitude_db"]);
+    let mut n = 0;
+    for (f, m) in f.iter().zip(&m) {
+        if (50.0..=16_000.0).contains(f) {
+            assert!(m.abs() <= 0.5, "{f:.1} Hz reads {m:.3} dB");
+            n += 1;
+        }
+    }
+    assert!(n >= 399, "only {n} points checked");
+}
+
+#[test]
+fn a_loopback_through_the_sound_server_reads_zero_db_and_zero_seconds() {
+    let _one = SINK.lock().unwrap_or_else(|e| e.into_inner());
+    if !sound_server() {
+        return;
+    }
+    let t = tempfile::tempdir().unwrap();
+    let r = measure(
+        t.path(),
+        "loop",
+        &["--output-channel", "1,2", "--reference", "2"],
+    );
+    assert_flat(&r);
+    let delay = r["delay_s"].as_f64().unwrap() * 48_000.0;
+    assert!(delay.abs() <= 1.0, "delay {delay:.3} samples");
+    let m = json(&t.path().join("loop/manifest.json"));
+    assert_eq!(m["complete"], true);
+    assert_eq!(m["source"]["kind"], "soundcard");
+    assert_eq!(m["measurement"]["lost_frames"], 0);
+    assert_eq!(m["measurement"]["reference_channel"], 2);
+}
+
+#[test]
+fn without_a_reference_the_response_is_flat_and_the_delay_is_the_latency() {
+    let _one = SINK.lock().unwrap_or_else(|e| e.into_inner());
+    if !sound_server() {
+        return;
+    }
+    let t = tempfile::tempdir().unwrap();
+    let r = measure(t.path(), "plain", &[]);
+    assert_flat(&r);
+    // the delay is the server's latency: positive, under a second, and the
+    // results say what it includes
+    let delay = r["delay_s"].as_f64().unwrap();
+    assert!(delay > 0.0 && delay < 1.0, "delay {delay} s");
+    let why = r["delay_reference"].as_str().unwrap();
+    assert!(why.contains("latency"), "{why}");
+}
+
+#[test]
+fn ctrl_c_ramps_down_keeps_the_recording_and_marks_the_manifest_incomplete() {
+    let _one = SINK.lock().unwrap_or_else(|e| e.into_inner());
+    if !sound_server() {
+        return;
+    }
+    let t = tempfile::tempdir().unwrap();
+    let bin = assert_cmd::cargo::cargo_bin("gliss");
+    let child = Command::new(bin)
+        .current_dir(t.path())
+        .args([
+            "measure",
+            "--out",
+            "cut",
+            "--length",
+            "8",
+            "--tail",
+            "1",
+            "--no-plots",
+        ])
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    // stop once a second has reached the disk (the raw file is written
+    // while it is recorded), however slowly the machine started
+    let raw = t.path().join("cut/recording.wav");
+    let one_second = 44 + 48_000 * 4;
+    let waited = std::time::Instant::now();
+    while std::fs::metadata(&raw).map_or(0, |m| m.len()) < one_second {
+        assert!(
+            waited.elapsed() < Duration::from_secs(30),
+            "no recording reached the disk"
+        );
+        std::thread::sleep(Duration::from_millis(50));
+    }
+    let killed = Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(killed.success());
+    let out = child.wait_with_output().unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        !out.status.success(),
+        "a stopped measurement is not a success"
+    );
+    assert!(!err.contains("panicked"), "{err}");
+    assert!(err.contains("error:") && err.contains("stopped"), "{err}");
+    let dir = t.path().join("cut");
+    let m = json(&dir.join("manifest.json"));
+    assert_eq!(m["complete"], false);
+    assert!(m["problems"].to_string().contains("stopped"), "{m}");
+    // the raw file is a proper WAV holding what was recorded: at least
+    // the second seen on disk, far less than the 9 s of sweep and tail
+    let (rate, rec) = read_wav(&dir.join("recording.wav"));
+    assert_eq!(rate, 48_000);
+    let s = rec[0].len() as f64 / 48_000.0;
+    assert!(s >= 1.0 && s < 6.0, "{s} s recorded");
+    assert!(!dir.join("results.json").exists());
+}
+
+#[test]
+fn devices_lists_the_sound_server_with_its_rates() {
+    let _one = SINK.lock().unwrap_or_else(|e| e.into_inner());
+    if !sound_server() {
+        return;
+    }
+    let t = tempfile::tempdir().unwrap();
+    let out = ok(t.path(), &["devices", "--json"]);
+    let list: serde_json::Value = serde_json::from_str(&out).expect("JSON on stdout");
+    let list = list.as_array().unwrap();
+    let default_in = list
+        .iter()
+        .find(|d| d["default_input"] == true)
+        .expect("a default input");
+    assert!(
+        numbers(&default_in["input"]["sample_rates_hz"]).contains(&48_000.0),
+        "{default_in}"
+    );
+    assert!(list.iter().any(|d| d["default_output"] == true));
+}
