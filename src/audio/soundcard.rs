@@ -634,6 +634,19 @@ fn error_handler(sh: &Arc<Shared>, input: bool) -> impl FnMut(cpal::Error) + Sen
     }
 }
 
+/// Drops the streams on a helper thread; false when that took longer than
+/// `within` (the thread is then left behind, and ends with the process).
+fn close_within(streams: (cpal::Stream, cpal::Stream), within: Duration) -> bool {
+    let (tx, rx) = std::sync::mpsc::channel();
+    let spawned = std::thread::Builder::new()
+        .name("gliss-close".into())
+        .spawn(move || {
+            drop(streams);
+            let _ = tx.send(());
+        });
+    spawned.is_ok() && rx.recv_timeout(within).is_ok()
+}
+
 impl PlayRecord for SoundCard {
     fn describe(&self) -> String {
         let in_name = name_of(&self.input);
@@ -833,9 +846,13 @@ impl PlayRecord for SoundCard {
             sh.stop.store(true, Ordering::Release);
             std::thread::sleep(Duration::from_secs_f64(2.0 * STOP_RAMP_S + 0.02));
         }
-        drop(output);
-        drop(input);
+        // a driver whose server has died can hang in its own lock while the
+        // stream closes: close on another thread and wait a bounded time
+        let closed = close_within((output, input), Duration::from_secs(2));
         drain(&mut consumer, sink, &mut channels)?;
+        if !closed && fault.is_none() {
+            fault = Some("the sound device did not close (its driver hung)".into());
+        }
         sink.finish()?;
 
         let dropped = sh.dropped_frames.load(Ordering::Relaxed);

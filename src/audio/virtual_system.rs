@@ -54,6 +54,8 @@ pub struct Faults {
     pub lose_frames_at_s: Option<(f64, usize)>,
     /// Stop as if Ctrl-C had been pressed at this time, in s.
     pub stop_at_s: Option<f64>,
+    /// Go away (as an unplugged interface does) at this time, in s.
+    pub fail_at_s: Option<f64>,
 }
 
 /// Sample rates the virtual interface runs at, Hz.
@@ -354,6 +356,13 @@ impl PlayRecord for VirtualSystem {
                 "{frames} input frames were lost at {t:.2} s (an overrun)"
             ));
         }
+        let mut fault = None;
+        if let Some(t) = self.faults.fail_at_s {
+            kept = kept.min((t * fs) as usize);
+            fault = Some(format!(
+                "the virtual interface went away after {t:.2} s (a simulated unplugging)"
+            ));
+        }
         for c in &mut channels {
             c.truncate(kept);
         }
@@ -389,7 +398,7 @@ impl PlayRecord for VirtualSystem {
             signal_start: 0,
             lost_frames: lost,
             stopped: stop_at.is_some(),
-            fault: None,
+            fault,
             problems,
             stream: "simulated, 32-bit float".into(),
         })

@@ -438,6 +438,9 @@ pub fn measure(
         delay_note,
     };
     let mut problems = capture.problems.clone();
+    if let Some(f) = &capture.fault {
+        problems.push(f.clone());
+    }
     let invalid = capture.stopped || capture.fault.is_some() || capture.lost_frames > 0;
     if !invalid && spans.is_none() {
         problems.push("the recording does not hold every sweep and its tail".into());
@@ -461,12 +464,24 @@ pub fn measure(
             problems.clone(),
             chans,
         ))?;
+        let others: Vec<&String> = problems.iter().filter(|p| **p != why).collect();
+        let detail = if others.is_empty() {
+            String::new()
+        } else {
+            format!(
+                " ({})",
+                others
+                    .iter()
+                    .map(|s| s.as_str())
+                    .collect::<Vec<_>>()
+                    .join("; ")
+            )
+        };
         return Err(Error::new(
             ErrorKind::Device,
             format!(
-                "{why}; the raw recording is kept in {} and its manifest is marked incomplete ({})",
-                folder.dir().display(),
-                problems.join("; ")
+                "{why}; the raw recording is kept in {} and its manifest is marked incomplete{detail}",
+                folder.dir().display()
             ),
         ));
     }

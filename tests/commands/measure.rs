@@ -295,7 +295,7 @@ fn lost_samples_make_the_measurement_invalid_and_keep_the_files() {
     let mut device = VirtualSystem {
         faults: Faults {
             lose_frames_at_s: Some((1.0, 256)),
-            stop_at_s: None,
+            ..Faults::default()
         },
         ..VirtualSystem::default()
     };
@@ -318,8 +318,8 @@ fn a_stop_in_the_middle_keeps_what_was_recorded() {
     let mut device = VirtualSystem {
         loopback: true,
         faults: Faults {
-            lose_frames_at_s: None,
             stop_at_s: Some(1.0),
+            ..Faults::default()
         },
         ..VirtualSystem::default()
     };
@@ -346,4 +346,23 @@ fn a_stop_in_the_middle_keeps_what_was_recorded() {
         );
     }
     assert_eq!(peak(at + ramp..played.len()), 0.0);
+}
+
+#[test]
+fn a_device_that_goes_away_is_a_clear_error_and_keeps_the_recording() {
+    let t = tempfile::tempdir().unwrap();
+    let out = t.path().join("x");
+    let j = job(&out);
+    let mut device = VirtualSystem {
+        faults: Faults {
+            fail_at_s: Some(1.5),
+            ..Faults::default()
+        },
+        ..VirtualSystem::default()
+    };
+    let stop = AtomicBool::new(false);
+    let err = measure(&mut device, &j, &stop, &mut |_| {}).unwrap_err();
+    assert!(err.message().contains("went away"), "{err}");
+    assert!(!err.message().contains('\n'));
+    assert_honest_leftovers(&out, 72_000, "went away after 1.50 s");
 }
