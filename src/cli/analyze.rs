@@ -44,6 +44,7 @@ fn read(path: &PathBuf, what: &str) -> Result<(Vec<u8>, wav::WavData)> {
 /// Runs `gliss analyze`.
 pub fn run(a: Args) -> Result<()> {
     let mut config = a.output.config()?;
+    let drive = a.output.drive()?;
     let mic = a.output.mic_correction()?;
     config.mic_correction = mic.as_ref().map(|m| m.0.clone());
     if a.channel == 0 {
@@ -84,6 +85,7 @@ pub fn run(a: Args) -> Result<()> {
         command_line: std::env::args().collect(),
         mic_correction: mic.map(|m| m.1),
         calibration: a.output.calibration()?,
+        drive,
     };
     let outcome = session::run(&job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);

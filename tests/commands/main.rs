@@ -8,5 +8,6 @@ mod bad_input;
 mod demo;
 mod device_under_test;
 mod distortion;
+mod sensitivity;
 mod sweep;
 mod wire;
