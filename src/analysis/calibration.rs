@@ -98,9 +98,74 @@ impl Calibration {
     }
 }
 
+/// The reference drive of a loudspeaker's sensitivity: 2.83 V RMS, 1 W
+/// into 8 Ω (the trade's usual reference; common practice).
+pub const REFERENCE_VOLTS: f64 = 2.83;
+
+/// The reference distance of a sensitivity, 1 m.
+pub const REFERENCE_DISTANCE_M: f64 = 1.0;
+
+/// The electrical drive of the loudspeaker and the microphone's distance:
+/// what turns the SPL at the microphone into a sensitivity.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Drive {
+    /// V RMS at the loudspeaker's terminals for a full-scale sine (0 dBFS)
+    /// from the sound card.
+    pub volts_per_fs: f64,
+    /// Distance from the loudspeaker to the microphone, m; `None` leaves
+    /// the sensitivity at the microphone's distance.
+    pub distance_m: Option<f64>,
+}
+
+impl Drive {
+    /// V RMS of a sweep of peak `level_dbfs`: its sine peaks at
+    /// 10^(level/20) of full scale, so its RMS is that fraction of a
+    /// full-scale sine's.
+    pub fn drive_volts_rms(&self, level_dbfs: f64) -> f64 {
+        self.volts_per_fs * 10f64.powf(level_dbfs / 20.0)
+    }
+
+    /// dB to add to the SPL at the microphone (for a sweep of peak
+    /// `level_dbfs`) to refer it to [`REFERENCE_VOLTS`] and, with a
+    /// distance, to 1 m: 20·lg(2.83 V / V_drive) (the SPL of a linear
+    /// system scales with its drive) + 20·lg(d / 1 m) (inverse-square law:
+    /// pressure falls as 1/d in the far field); common practice.
+    pub fn sensitivity_offset_db(&self, level_dbfs: f64) -> f64 {
+        20.0 * (REFERENCE_VOLTS / self.drive_volts_rms(level_dbfs)).log10()
+            + self
+                .distance_m
+                .map_or(0.0, |d| 20.0 * (d / REFERENCE_DISTANCE_M).log10())
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_drive_refers_the_spl_to_2_83_volts_and_1_metre() {
+        // by hand: 2 V RMS per full scale at -20 dBFS peak is 0.2 V RMS;
+        // 20·lg(2.83/0.2) = 23.0148 dB; at 0.5 m the inverse-square law
+        // takes 20·lg(0.5) = -6.0206 dB (common practice)
+        let d = Drive {
+            volts_per_fs: 2.0,
+            distance_m: Some(0.5),
+        };
+        assert!((d.drive_volts_rms(-20.0) - 0.2).abs() < 1e-12);
+        assert!((d.sensitivity_offset_db(-20.0) - (23.0148 - 6.0206)).abs() < 1e-3);
+        // at 2 m the far-away microphone is 6.02 dB down: add it back
+        let far = Drive {
+            distance_m: Some(2.0),
+            ..d
+        };
+        assert!((far.sensitivity_offset_db(-20.0) - (23.0148 + 6.0206)).abs() < 1e-3);
+        // driven at exactly 2.83 V, at the microphone's own distance: nothing
+        let exact = Drive {
+            volts_per_fs: 2.83,
+            distance_m: None,
+        };
+        assert!(exact.sensitivity_offset_db(0.0).abs() < 1e-12);
+    }
 
     #[test]
     fn a_known_tone_gives_its_sensitivity() {

@@ -20,6 +20,7 @@ pub mod phase;
 pub mod response;
 pub mod room;
 pub mod smoothing;
+pub mod spectrogram;
 
 use crate::deconv;
 use crate::error::{Error, Result};
@@ -96,6 +97,9 @@ pub struct Analysis {
     pub gate: Option<gate::GateInfo>,
     /// The decay spectrum within the gate (with a gate only).
     pub decay_spectrum: Option<Vec<csd::Slice>>,
+    /// The spectrogram of the whole response's decay (without a gate only:
+    /// a gated response has the decay spectrum instead).
+    pub spectrogram: Option<spectrogram::Spectrogram>,
     /// The harmonic distortion orders (`None` with `harmonics` = 1).
     pub distortion: Option<Distortion>,
     /// Reverberation and energy parameters per band (`None` without bands).
@@ -280,6 +284,17 @@ pub fn analyze(
         };
         csd::decay_spectrum(&h, ipeak, fs, &grid, config.smoothing, (f1, f2), cfg)
     });
+    // without a gate, the time-frequency picture of the whole decay (the
+    // response without its final fade-out, as the room analysis sees it)
+    let spectrogram = gate_info.is_none().then(|| {
+        let fade = (len / 20).max(8).min(len);
+        spectrogram::spectrogram(
+            &ir[..len - fade],
+            fs,
+            (f1, f2),
+            spectrogram::SpectrogramConfig::default(),
+        )
+    });
     let phase = phase::analyze(
         &grid,
         &response.phase_deg,
@@ -348,6 +363,7 @@ pub fn analyze(
         phase,
         gate: gate_info,
         decay_spectrum,
+        spectrogram,
         distortion,
         room,
         peak_dbfs,

@@ -49,6 +49,7 @@ fn read(path: &PathBuf, what: &str) -> Result<(Vec<u8>, wav::WavData)> {
 /// Runs `gliss analyze`.
 pub fn run(a: Args) -> Result<()> {
     let mut config = a.output.config()?;
+    let drive = a.output.drive()?;
     let mic = a.output.mic_correction()?;
     config.mic_correction = mic.as_ref().map(|m| m.0.clone());
     if a.channel == 0 {
@@ -98,6 +99,7 @@ pub fn run(a: Args) -> Result<()> {
             r => r.map(|r| r - 1),
         },
         measurement: None,
+        drive,
     };
     let outcome = session::run(&job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);

@@ -4,7 +4,7 @@ use std::path::Path;
 
 use clap::Args as ClapArgs;
 
-use crate::analysis::calibration::Calibration;
+use crate::analysis::calibration::{Calibration, Drive};
 use crate::analysis::correction::Correction;
 use crate::analysis::gate::Gate;
 use crate::analysis::{AnalysisConfig, Smoothing, distortion};
@@ -120,6 +120,24 @@ pub struct OutputArgs {
     /// given in dB SPL at the microphone for the sweep's drive level.
     #[arg(long, value_name = "FILE.json")]
     pub calibration: Option<std::path::PathBuf>,
+    /// The drive voltage: V RMS at the loudspeaker's terminals for a
+    /// full-scale sine (0 dBFS) from the sound card. Measure it with a
+    /// voltmeter while a sine at a known level plays, and scale: a -20 dBFS
+    /// sine reading 0.2 V gives 2.0. With --calibration the response is
+    /// then also given as a sensitivity, dB SPL at 2.83 V RMS (1 W into
+    /// 8 ohm), in results.json (response.sensitivity_db_spl) and
+    /// response.csv. Needs --calibration.
+    #[arg(long, value_name = "V", allow_hyphen_values = true)]
+    pub volts_per_fs: Option<String>,
+    /// The microphone's distance from the loudspeaker in metres: the
+    /// sensitivity is then referred to 1 m by the inverse-square law
+    /// (+20*lg(d/1 m) dB). That law holds only in the far field: several
+    /// times the size of the driver or baffle away, and beyond the near
+    /// field of a multi-way speaker, where its drivers' sound has merged;
+    /// at short distance in a room, reflections count too (gate them).
+    /// Needs --calibration and --volts-per-fs.
+    #[arg(long, value_name = "M", allow_hyphen_values = true)]
+    pub distance: Option<String>,
     /// Skip the reverberation and energy parameters per octave and
     /// one-third-octave band (the speaker profile's default).
     #[arg(long, conflicts_with = "bands")]
@@ -167,6 +185,53 @@ impl OutputArgs {
         })
     }
 
+    /// The checked drive voltage and distance (`None` without
+    /// --volts-per-fs); refused without --calibration.
+    pub fn drive(&self) -> Result<Option<Drive>> {
+        let volts = self
+            .volts_per_fs
+            .as_deref()
+            .map(|v| {
+                positive(
+                    "--volts-per-fs",
+                    v,
+                    "V RMS for a full-scale sine, e.g. --volts-per-fs 2.0",
+                )
+            })
+            .transpose()?;
+        let distance = self
+            .distance
+            .as_deref()
+            .map(|v| {
+                positive(
+                    "--distance",
+                    v,
+                    "the microphone's distance in metres, e.g. --distance 1",
+                )
+            })
+            .transpose()?;
+        if self.calibration.is_none() && (volts.is_some() || distance.is_some()) {
+            let which = if volts.is_some() {
+                "--volts-per-fs"
+            } else {
+                "--distance"
+            };
+            return Err(Error::parameter(format!(
+                "{which} needs --calibration: a sensitivity in dB SPL needs a calibrated microphone; run gliss calibrate on a calibrator's tone and pass --calibration FILE.json"
+            )));
+        }
+        match (volts, distance) {
+            (Some(volts_per_fs), distance_m) => Ok(Some(Drive {
+                volts_per_fs,
+                distance_m,
+            })),
+            (None, Some(_)) => Err(Error::parameter(
+                "--distance refers the sensitivity (dB SPL at 2.83 V) to 1 m and needs the drive voltage: add --volts-per-fs V",
+            )),
+            (None, None) => Ok(None),
+        }
+    }
+
     /// The calibration, parsed, with its path and SHA-256 for the manifest.
     pub fn calibration(&self) -> Result<Option<(Calibration, FileEntry)>> {
         let Some(path) = &self.calibration else {
@@ -197,6 +262,20 @@ impl OutputArgs {
             Error::input(format!("the microphone correction {}: {m}", path.display()))
         })?;
         Ok(Some((c, entry)))
+    }
+}
+
+/// Parses `value` of `option` as a positive finite number; `what` says
+/// what to give instead.
+fn positive(option: &str, value: &str, what: &str) -> Result<f64> {
+    match value.trim().parse::<f64>() {
+        Ok(v) if v.is_finite() && v > 0.0 => Ok(v),
+        Ok(_) => Err(Error::parameter(format!(
+            "{option} {value} must be a positive finite number: {what}"
+        ))),
+        Err(_) => Err(Error::parameter(format!(
+            "{option} {value:?} is not a number: give {what}"
+        ))),
     }
 }
 

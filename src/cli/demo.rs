@@ -62,6 +62,7 @@ pub fn print_summary(out: &str, o: &Outcome) {
 /// Runs `gliss demo`.
 pub fn run(a: Args) -> Result<()> {
     let mut config = a.output.config()?;
+    let drive = a.output.drive()?;
     let mic = a.output.mic_correction()?;
     config.mic_correction = mic.as_ref().map(|m| m.0.clone());
     let design = a.sweep.design()?;
@@ -123,6 +124,7 @@ pub fn run(a: Args) -> Result<()> {
         calibration: a.output.calibration()?,
         reference: None,
         measurement: None,
+        drive,
     };
     let outcome = session::run(&job)?;
     print_summary(&common::show(&a.out), &outcome);

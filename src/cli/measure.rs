@@ -189,6 +189,7 @@ pub fn run(a: Args) -> Result<()> {
     let mic = a.output.mic_correction()?;
     config.mic_correction = mic.as_ref().map(|m| m.0.clone());
     let calibration = a.output.calibration()?;
+    let drive = a.output.drive()?;
     let design = a.sweep.design()?;
     let channel = one_based(a.channel, "--channel")?;
     let reference = a
@@ -254,6 +255,7 @@ pub fn run(a: Args) -> Result<()> {
         command_line: std::env::args().collect(),
         mic_correction: mic.map(|m| m.1),
         calibration,
+        drive,
         source_kind: if is_virtual { "virtual" } else { "soundcard" }.into(),
     };
     measure::check(&job, device.as_ref())?;

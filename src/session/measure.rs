@@ -148,6 +148,8 @@ pub struct MeasureJob {
     pub mic_correction: Option<FileEntry>,
     /// The calibration and its file, if any.
     pub calibration: Option<(crate::analysis::calibration::Calibration, FileEntry)>,
+    /// The drive voltage and distance for a sensitivity, if any.
+    pub drive: Option<crate::analysis::calibration::Drive>,
     /// "soundcard" or "virtual".
     pub source_kind: String,
 }
@@ -250,6 +252,8 @@ fn manifest(
             bands: m.config.bands,
             mic_correction: m.mic_correction.clone(),
             calibration: m.calibration.as_ref().map(|c| c.1.clone()),
+            volts_per_fs: m.drive.map(|d| d.volts_per_fs),
+            distance_m: m.drive.and_then(|d| d.distance_m),
         },
         files,
         measurement: rec,
@@ -518,6 +522,7 @@ pub fn measure(
         calibration: m.calibration.clone(),
         reference: m.reference,
         measurement: Some(record),
+        drive: m.drive,
     };
     let mut outcome = analyse_into(&job, &folder)?;
     // clipping on any input used, by name (the analysis looks at the

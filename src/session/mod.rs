@@ -16,7 +16,8 @@ use crate::signal::wav::{self, SampleEncoding, WavData};
 
 use folder::MeasurementFolder;
 use records::{
-    FileEntry, ImpulseRecord, Manifest, ResponseRecord, Results, SCHEMA_VERSION, Settings, Source,
+    FileEntry, ImpulseRecord, Manifest, ResponseRecord, Results, SCHEMA_VERSION, SensitivityRecord,
+    Settings, Source,
 };
 
 /// Everything needed to analyse one recording into a folder.
@@ -57,6 +58,9 @@ pub struct Job {
     pub reference: Option<usize>,
     /// How a device measurement ran, for the manifest.
     pub measurement: Option<records::MeasurementRecord>,
+    /// The drive voltage and microphone distance for a sensitivity (only
+    /// with a calibration).
+    pub drive: Option<crate::analysis::calibration::Drive>,
 }
 
 /// What a finished job wrote.
@@ -86,6 +90,18 @@ pub fn check_inputs(job: &Job) -> Result<Vec<String>> {
             "the recording is at {} Hz but the sweep at {} Hz; record at the sweep's rate, or make a sweep with --rate {}",
             rec.sample_rate_hz, stim.sample_rate_hz, rec.sample_rate_hz
         )));
+    }
+    if job.drive.is_some() && job.calibration.is_none() {
+        return Err(Error::parameter(
+            "a drive voltage needs a calibration: --volts-per-fs and --distance need --calibration",
+        ));
+    }
+    if let Some(d) = &job.drive {
+        if d.distance_m.is_none() {
+            warnings.push(
+                "the sensitivity holds at the microphone's distance, not at 1 m: give --distance M to refer it to 1 m".to_string(),
+            );
+        }
     }
     if job.channel >= rec.channels.len() {
         return Err(Error::input(format!(
@@ -238,6 +254,12 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<V
             .iter()
             .map(|&m| c.spl_db(m, level))
             .collect();
+        if let Some(d) = &job.drive {
+            results.response.sensitivity = Some(sensitivity_record(d, level));
+            let offset = d.sensitivity_offset_db(level);
+            results.response.sensitivity_db_spl =
+                results.response.spl_db.iter().map(|s| s + offset).collect();
+        }
     }
     derived("results.json", to_json(&results)?)?;
     derived("response.csv", response_csv(&results.response)?)?;
@@ -250,7 +272,11 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<V
     if job.plots {
         for rel in plot_files(a) {
             let tmp = folder.temp_path(rel);
-            if rel.ends_with("decay-spectrum.png") {
+            if rel.ends_with("spectrogram.png") {
+                if let Some(sg) = &a.spectrogram {
+                    plot::spectrogram_png(&tmp, &job.title, sg)?;
+                }
+            } else if rel.ends_with("decay-spectrum.png") {
                 if let (Some(slices), Some(g)) = (&a.decay_spectrum, a.gate) {
                     plot::decay_spectrum_png(
                         &tmp,
@@ -333,6 +359,8 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<V
             bands: job.config.bands,
             mic_correction: job.mic_correction.clone(),
             calibration: job.calibration.as_ref().map(|c| c.1.clone()),
+            volts_per_fs: job.drive.map(|d| d.volts_per_fs),
+            distance_m: job.drive.and_then(|d| d.distance_m),
         },
         files,
         measurement: job.measurement.clone(),
@@ -342,6 +370,32 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<V
     Ok(std::iter::once("manifest.json".to_string())
         .chain(manifest.files.into_iter().map(|f| f.name))
         .collect())
+}
+
+/// What the sensitivity of a sweep of peak `level_dbfs` driven by `d` is
+/// referred to.
+fn sensitivity_record(
+    d: &crate::analysis::calibration::Drive,
+    level_dbfs: f64,
+) -> SensitivityRecord {
+    use crate::analysis::calibration::{REFERENCE_DISTANCE_M, REFERENCE_VOLTS};
+    let drive = d.drive_volts_rms(level_dbfs);
+    SensitivityRecord {
+        reference_volts: REFERENCE_VOLTS,
+        reference_distance_m: d.distance_m.map(|_| REFERENCE_DISTANCE_M),
+        volts_per_fs: d.volts_per_fs,
+        drive_volts_rms: drive,
+        measured_distance_m: d.distance_m,
+        offset_db: d.sensitivity_offset_db(level_dbfs),
+        description: match d.distance_m {
+            Some(m) => format!(
+                "dB SPL for {REFERENCE_VOLTS} V RMS at the loudspeaker's terminals at 1 m: spl_db (driven at {drive:.4} V RMS) scaled by the drive and referred from {m} m to 1 m by the inverse-square law, which holds in the far field only"
+            ),
+            None => format!(
+                "dB SPL for {REFERENCE_VOLTS} V RMS at the loudspeaker's terminals at the microphone's distance (not given): spl_db (driven at {drive:.4} V RMS) scaled by the drive"
+            ),
+        },
+    }
 }
 
 /// The plots an analysis draws.
@@ -357,6 +411,9 @@ fn plot_files(a: &Analysis) -> Vec<&'static str> {
     }
     if a.decay_spectrum.is_some() {
         v.push("plots/decay-spectrum.png");
+    }
+    if a.spectrogram.is_some() {
+        v.push("plots/spectrogram.png");
     }
     if a.room.is_some() {
         v.push("plots/decay.png");
@@ -487,6 +544,8 @@ pub fn results_record(a: &Analysis) -> Results {
             excess_group_delay_s: a.phase.excess_group_delay_s.clone(),
             gate: a.gate,
             spl_db: Vec::new(),
+            sensitivity_db_spl: Vec::new(),
+            sensitivity: None,
             resolved: a.gate.map_or_else(Vec::new, |g| {
                 a.response
                     .frequency_hz
@@ -510,19 +569,31 @@ pub fn to_json<T: serde::Serialize>(v: &T) -> Result<Vec<u8>> {
     Ok(s)
 }
 
-/// response.csv: header, then frequency_hz,magnitude_db,phase_deg.
+/// response.csv: header, then frequency_hz,magnitude_db,phase_deg, and
+/// spl_db and sensitivity_db_spl where results.json has them.
 pub fn response_csv(r: &ResponseRecord) -> Result<Vec<u8>> {
     let mut w = csv::Writer::from_writer(Vec::new());
     let err = |e: csv::Error| Error::input(format!("could not encode CSV: {e}"));
-    w.write_record(["frequency_hz", "magnitude_db", "phase_deg"])
-        .map_err(err)?;
+    let mut extra: Vec<(&str, &[f64])> = Vec::new();
+    for (name, v) in [
+        ("spl_db", &r.spl_db),
+        ("sensitivity_db_spl", &r.sensitivity_db_spl),
+    ] {
+        if v.len() == r.frequency_hz.len() {
+            extra.push((name, v));
+        }
+    }
+    let mut header = vec!["frequency_hz", "magnitude_db", "phase_deg"];
+    header.extend(extra.iter().map(|e| e.0));
+    w.write_record(&header).map_err(err)?;
     for i in 0..r.frequency_hz.len() {
-        w.write_record([
+        let mut row = vec![
             format!("{:.4}", r.frequency_hz[i]),
             format!("{:.4}", r.magnitude_db[i]),
             format!("{:.3}", r.phase_deg[i]),
-        ])
-        .map_err(err)?;
+        ];
+        row.extend(extra.iter().map(|e| format!("{:.4}", e.1[i])));
+        w.write_record(&row).map_err(err)?;
     }
     w.into_inner()
         .map_err(|e| Error::input(format!("could not encode CSV: {e}")))

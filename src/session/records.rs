@@ -87,10 +87,40 @@ pub struct ResponseRecord {
     /// sweep's drive level (its peak `level_dbfs`); empty without.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub spl_db: Vec<f64>,
+    /// With --calibration and --volts-per-fs: the sensitivity, dB SPL for
+    /// `sensitivity.reference_volts` at `sensitivity.reference_distance_m`
+    /// (the microphone's distance when that is `null`); empty without.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub sensitivity_db_spl: Vec<f64>,
+    /// What `sensitivity_db_spl` is referred to and how it was derived.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sensitivity: Option<SensitivityRecord>,
     /// Per grid point, whether the gate resolves it (from 1/gate length up
     /// to `gate.resolved_to_hz`); empty without a gate.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub resolved: Vec<bool>,
+}
+
+/// How `response.sensitivity_db_spl` was derived from `response.spl_db`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SensitivityRecord {
+    /// The drive the sensitivity is stated for, V RMS (2.83 V: 1 W into 8 Ω).
+    pub reference_volts: f64,
+    /// The distance it is stated for, m (1 m); `null` without --distance:
+    /// then it holds at the microphone's distance.
+    pub reference_distance_m: Option<f64>,
+    /// --volts-per-fs: V RMS at the loudspeaker's terminals for a
+    /// full-scale sine (0 dBFS).
+    pub volts_per_fs: f64,
+    /// V RMS of the sweep as played (its peak `level_dbfs` re full scale).
+    pub drive_volts_rms: f64,
+    /// --distance: the microphone's distance, m (`null`: not given).
+    pub measured_distance_m: Option<f64>,
+    /// `sensitivity_db_spl` − `spl_db`, dB: 20·lg(reference_volts /
+    /// drive_volts_rms) + 20·lg(measured_distance_m / 1 m).
+    pub offset_db: f64,
+    /// The same in words.
+    pub description: String,
 }
 
 /// manifest.json: what was done.
@@ -200,6 +230,12 @@ pub struct Settings {
     /// The microphone correction removed from the response, with its hash.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub mic_correction: Option<FileEntry>,
+    /// --volts-per-fs: V RMS at the loudspeaker for a full-scale sine.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub volts_per_fs: Option<f64>,
+    /// --distance: the microphone's distance, m.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub distance_m: Option<f64>,
 }
 
 /// One file of the folder.

@@ -32,6 +32,7 @@ fn the_demo_writes_a_complete_measurement_folder() {
         "plots/distortion.png",
         "plots/decay.png",
         "plots/reverberation.png",
+        "plots/spectrogram.png",
     ] {
         assert!(dir.join(f).is_file(), "{f} missing");
     }
@@ -44,6 +45,7 @@ fn the_demo_writes_a_complete_measurement_folder() {
         "plots/distortion.png",
         "plots/decay.png",
         "plots/reverberation.png",
+        "plots/spectrogram.png",
     ] {
         let b = std::fs::read(dir.join(p)).unwrap();
         assert_eq!(&b[..8], b"\x89PNG\r\n\x1a\n");
@@ -54,7 +56,7 @@ fn the_demo_writes_a_complete_measurement_folder() {
     assert_eq!(m["source"]["kind"], "virtual");
     let files = m["files"].as_array().unwrap();
     // every file but the manifest itself
-    assert_eq!(files.len(), 14);
+    assert_eq!(files.len(), 15);
     for f in files {
         let bytes = std::fs::read(dir.join(f["name"].as_str().unwrap())).unwrap();
         let hex: String = Sha256::digest(&bytes)
@@ -295,4 +297,31 @@ fn the_speaker_profile_picks_its_defaults_and_each_can_be_overridden() {
     assert!(r["response"]["gate"].is_null());
     assert_eq!(r["response"]["smoothing"], "1/3");
     assert!(!r["bands"].as_array().unwrap().is_empty());
+}
+
+#[test]
+fn the_spectrogram_is_drawn_without_a_gate_and_the_decay_spectrum_with_one() {
+    let t = tempfile::tempdir().unwrap();
+    let short = ["--length", "1", "--tail", "0.5", "--harmonics", "1"];
+    let mut args = vec!["demo", "--out", "s", "--profile", "speaker"];
+    args.extend_from_slice(&short);
+    ok(t.path(), &args);
+    let s = t.path().join("s/plots");
+    assert!(s.join("decay-spectrum.png").is_file());
+    assert!(!s.join("spectrogram.png").exists());
+    let mut args = vec!["demo", "--out", "r", "--no-bands"];
+    args.extend_from_slice(&short);
+    ok(t.path(), &args);
+    let r = t.path().join("r/plots");
+    assert!(r.join("spectrogram.png").is_file());
+    assert!(!r.join("decay-spectrum.png").exists());
+    // the manifest lists it with its hash, like every other plot
+    let m = json(&t.path().join("r/manifest.json"));
+    assert!(
+        m["files"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|f| f["name"] == "plots/spectrogram.png" && f["role"] == "derived")
+    );
 }

@@ -259,6 +259,7 @@ fn job(out: &Path) -> MeasureJob {
         command_line: vec!["test".into()],
         mic_correction: None,
         calibration: None,
+        drive: None,
         source_kind: "virtual".into(),
     }
 }

@@ -197,7 +197,7 @@ fn ctrl_c_ramps_down_keeps_the_recording_and_marks_the_manifest_incomplete() {
     let (rate, rec) = read_wav(&dir.join("recording.wav"));
     assert_eq!(rate, 48_000);
     let s = rec[0].len() as f64 / 48_000.0;
-    assert!(s >= 1.0 && s < 6.0, "{s} s recorded");
+    assert!((1.0..6.0).contains(&s), "{s} s recorded");
     assert!(!dir.join("results.json").exists());
 }
 

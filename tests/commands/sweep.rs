@@ -106,6 +106,9 @@ fn every_help_page_explains_its_options() {
                 "--harmonics",
                 "--no-bands",
                 "--gate",
+                "--calibration",
+                "--volts-per-fs",
+                "--distance",
             ][..],
         ),
         ("calibrate", &["--level", "--channel", "--out"][..]),
@@ -119,6 +122,8 @@ fn every_help_page_explains_its_options() {
                 "--harmonics",
                 "--no-bands",
                 "--gate",
+                "--volts-per-fs",
+                "--distance",
             ][..],
         ),
     ] {
