@@ -449,6 +449,8 @@ struct Shared {
     /// Overruns and underruns the host reported.
     input_xruns: AtomicU64,
     output_xruns: AtomicU64,
+    /// Other errors the driver reported while the streams went on.
+    driver_errors: AtomicU64,
     /// The device went away or the stream failed.
     failed: AtomicBool,
     /// Output frames handed out since the stream started.
@@ -471,6 +473,7 @@ impl Shared {
             dropped_frames: AtomicU64::new(0),
             input_xruns: AtomicU64::new(0),
             output_xruns: AtomicU64::new(0),
+            driver_errors: AtomicU64::new(0),
             failed: AtomicBool::new(false),
             out_frames: AtomicU64::new(0),
             signal_start: AtomicU64::new(u64::MAX),
@@ -630,7 +633,17 @@ fn error_handler(sh: &Arc<Shared>, input: bool) -> impl FnMut(cpal::Error) + Sen
         }
         // the host rerouted or could not raise priority: not fatal
         cpal::ErrorKind::DeviceChanged | cpal::ErrorKind::RealtimeDenied => {}
-        _ => sh.failed.store(true, Ordering::Release),
+        // the device is gone or can no longer stream
+        cpal::ErrorKind::DeviceNotAvailable
+        | cpal::ErrorKind::StreamInvalidated
+        | cpal::ErrorKind::DeviceBusy
+        | cpal::ErrorKind::PermissionDenied => sh.failed.store(true, Ordering::Release),
+        // a driver call failed but the stream goes on (the PulseAudio
+        // plugin does this right after an underrun): samples may be
+        // missing, so the take is invalid, but the device is still there
+        _ => {
+            sh.driver_errors.fetch_add(1, Ordering::Relaxed);
+        }
     }
 }
 
@@ -785,6 +798,8 @@ impl PlayRecord for SoundCard {
             .play()
             .map_err(|e| device_error(format!("could not start playback ({e})")))?;
 
+        // what the host really chose (a fixed request is only a wish)
+        let period = input.buffer_size().ok();
         let started = Instant::now();
         // every wait is bounded: the whole signal, its rolls, and slack
         let deadline =
@@ -876,6 +891,13 @@ impl PlayRecord for SoundCard {
                 if out_x == 1 { "" } else { "s" }
             ));
         }
+        let driver = sh.driver_errors.load(Ordering::Relaxed);
+        if driver > 0 {
+            problems.push(format!(
+                "the sound driver reported {driver} error{} while streaming (samples may be missing)",
+                if driver == 1 { "" } else { "s" }
+            ));
+        }
         let stopped = stop_seen.is_some();
         if stopped {
             problems.push(format!(
@@ -894,7 +916,7 @@ impl PlayRecord for SoundCard {
             sample_rate_hz: rate,
             signal_start: if start == u64::MAX { 0 } else { start as usize },
             // an xrun loses an unknown number of frames: count at least one
-            lost_frames: dropped + in_x + out_x,
+            lost_frames: dropped + in_x + out_x + driver,
             stopped,
             fault,
             problems,
@@ -904,9 +926,13 @@ impl PlayRecord for SoundCard {
                 self.in_format,
                 out_ch,
                 self.out_format,
-                match self.in_config.buffer_size {
-                    BufferSize::Default => "device default".to_string(),
-                    BufferSize::Fixed(b) => format!("{b} frames"),
+                match (self.in_config.buffer_size, period) {
+                    (BufferSize::Default, Some(p)) => format!("{p} frames (device default)"),
+                    (BufferSize::Default, None) => "device default".to_string(),
+                    (BufferSize::Fixed(b), Some(p)) if p != b => {
+                        format!("{p} frames ({b} asked for)")
+                    }
+                    (BufferSize::Fixed(b), _) => format!("{b} frames"),
                 }
             ),
         })
