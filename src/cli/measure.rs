@@ -131,23 +131,23 @@ fn confirm_level(level: f64, yes: bool) -> Result<()> {
 /// A terminal progress bar with time left and a live input peak meter.
 struct Meter {
     bar: indicatif::ProgressBar,
+    rate: f64,
     hold: f32,
     hold_age: u32,
 }
 
 impl Meter {
-    fn new(total_frames: u64) -> Self {
+    fn new(total_frames: u64, rate: f64) -> Self {
         let bar = indicatif::ProgressBar::with_draw_target(
             Some(total_frames),
             indicatif::ProgressDrawTarget::stderr(),
         );
-        if let Ok(style) =
-            indicatif::ProgressStyle::with_template("{bar:30} {msg}  {elapsed} played, {eta} left")
-        {
+        if let Ok(style) = indicatif::ProgressStyle::with_template("{bar:30} {msg}") {
             bar.set_style(style.progress_chars("=> "));
         }
         Meter {
             bar,
+            rate,
             hold: 0.0,
             hold_age: 0,
         }
@@ -164,13 +164,16 @@ impl Meter {
         let cells = (((db + 60.0) / 60.0).clamp(0.0, 1.0) * 12.0).round() as usize;
         let warn = if db >= -0.1 {
             " CLIP"
-        } else if db < -50.0 {
+        } else if db < -50.0 && p.done_frames > 0 {
             " low"
         } else {
             ""
         };
+        let done = p.done_frames as f64 / self.rate;
+        let total = p.total_frames as f64 / self.rate;
         self.bar.set_message(format!(
-            "in {db:6.1} dBFS [{:<12}]{warn}",
+            "{done:5.1} s of {total:.1} s, {:.1} s left   input {db:6.1} dBFS [{:<12}]{warn}",
+            total - done,
             "#".repeat(cells)
         ));
         self.bar.set_length(p.total_frames);
@@ -279,7 +282,7 @@ pub fn run(a: Args) -> Result<()> {
             .map(|r| format!(" (reference: input {r})"))
             .unwrap_or_default()
     );
-    let mut meter = Meter::new(1);
+    let mut meter = Meter::new(1, f64::from(design.params.sample_rate_hz));
     let outcome = measure::measure(device.as_mut(), &job, &STOP, &mut |p| meter.update(p));
     meter.bar.finish_and_clear();
     let outcome = outcome?;
