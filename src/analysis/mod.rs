@@ -9,6 +9,7 @@
 
 pub mod bands;
 pub mod calibration;
+pub mod compare;
 pub mod correction;
 pub mod csd;
 pub mod decay;

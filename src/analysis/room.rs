@@ -54,6 +54,19 @@ pub struct BandResult {
     pub curvature_percent: Option<f64>,
     /// Why a value is missing or doubtful, in plain words.
     pub warnings: Vec<String>,
+    /// For an average over positions: per parameter, how many positions
+    /// measured it and their sample standard deviation.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub spread: Option<std::collections::BTreeMap<String, Spread>>,
+}
+
+/// The spread of one band parameter over positions (an average).
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Spread {
+    /// Positions that measured the parameter.
+    pub n: usize,
+    /// Sample standard deviation over them (`null` below two).
+    pub std: Option<f64>,
 }
 
 /// A band's decay curve for plotting.
@@ -115,6 +128,7 @@ fn band_decay(
         inr_db: None,
         curvature_percent: None,
         warnings: Vec::new(),
+        spread: None,
     };
     let x = &p2[o.min(p2.len())..];
     let Some(tr) = decay::lundeby(x, fs, interval_s(fc)) else {

@@ -2,8 +2,10 @@
 //! settings here, and the library does the work.
 
 mod analyze;
+mod average;
 mod calibrate;
 mod common;
+mod compare;
 mod demo;
 mod devices;
 mod measure;
@@ -44,6 +46,10 @@ enum Command {
     Analyze(analyze::Args),
     /// Run the whole job on the built-in virtual loudspeaker and room (simulated).
     Demo(demo::Args),
+    /// Average several microphone positions of one condition into one folder.
+    Average(average::Args),
+    /// Compare measurements before and after: responses, band parameters, absorption.
+    Compare(compare::Args),
     /// Turn a recording of a sound calibrator's tone into a calibration file for --calibration.
     Calibrate(calibrate::Args),
 }
@@ -65,6 +71,8 @@ pub fn main() -> ExitCode {
         Command::Analyze(a) => analyze::run(a),
         Command::Demo(a) => demo::run(a),
         Command::Calibrate(a) => calibrate::run(a),
+        Command::Average(a) => average::run(a),
+        Command::Compare(a) => compare::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

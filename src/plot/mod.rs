@@ -12,6 +12,8 @@ use plotters::coord::{CoordTranslate, Shift};
 use plotters::drawing::DrawingAreaErrorKind;
 use plotters::prelude::*;
 
+pub mod compare;
+
 use crate::analysis::etc;
 use crate::error::{Error, ErrorKind, Result};
 
@@ -294,12 +296,13 @@ fn draw_log_panel(
             .zip(y.iter())
             .filter(|(_, v)| v.is_finite())
             .map(|(a, b)| (*a, *b));
-        chart
-            .draw_series(LineSeries::new(pts, colour.stroke_width(2)))?
-            .label(name.clone())
-            .legend(move |(x, y)| {
+        let drawn = chart.draw_series(LineSeries::new(pts, colour.stroke_width(2)))?;
+        // an unnamed series (one of many alike) stays out of the legend
+        if !name.is_empty() {
+            drawn.label(name.clone()).legend(move |(x, y)| {
                 PathElement::new(vec![(x, y), (x + 24, y)], colour.stroke_width(3))
             });
+        }
     }
     legend(&mut chart, SeriesLabelPosition::LowerRight)?;
     Ok(())

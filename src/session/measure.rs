@@ -258,6 +258,8 @@ fn manifest(
         files,
         measurement: rec,
         problems,
+        kind: None,
+        inputs: Vec::new(),
     }
 }
 

@@ -1,6 +1,7 @@
 //! The session layer: turns inputs into a measurement folder on disk.
 //! All file I/O of an analysis happens here; the stages it calls are pure.
 
+pub mod compare;
 pub mod folder;
 pub mod measure;
 pub mod records;
@@ -365,6 +366,8 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<V
         files,
         measurement: job.measurement.clone(),
         problems: Vec::new(),
+        kind: None,
+        inputs: Vec::new(),
     };
     folder.write_derived("manifest.json", &to_json(&manifest)?)?;
     Ok(std::iter::once("manifest.json".to_string())
@@ -477,6 +480,14 @@ pub fn distortion_csv(
 /// bands.csv: one row per band (octave, then one-third octave, then
 /// broadband) with every parameter; empty cells where not measured.
 pub fn bands_csv(r: &crate::analysis::room::Room) -> Result<Vec<u8>> {
+    bands_table_csv(&r.bands, Some(&r.broadband))
+}
+
+/// bands.csv of any list of bands (a measurement's or an average's).
+pub fn bands_table_csv(
+    bands: &[crate::analysis::room::BandResult],
+    broadband: Option<&crate::analysis::room::BandResult>,
+) -> Result<Vec<u8>> {
     let mut w = csv::Writer::from_writer(Vec::new());
     let err = |e: csv::Error| Error::input(format!("could not encode CSV: {e}"));
     w.write_record([
@@ -495,7 +506,7 @@ pub fn bands_csv(r: &crate::analysis::room::Room) -> Result<Vec<u8>> {
     ])
     .map_err(err)?;
     let cell = |v: Option<f64>, digits: usize| v.map_or(String::new(), |x| format!("{x:.digits$}"));
-    for b in r.bands.iter().chain(std::iter::once(&r.broadband)) {
+    for b in bands.iter().chain(broadband) {
         w.write_record([
             format!("{}", (b.center_hz * 10.0).round() / 10.0),
             b.fraction.clone(),
@@ -527,11 +538,11 @@ pub fn results_record(a: &Analysis) -> Results {
                 .into(),
         peak_dbfs: a.peak_dbfs,
         peak_to_noise_db: a.peak_to_noise_db,
-        impulse: ImpulseRecord {
+        impulse: Some(ImpulseRecord {
             file: "impulse.wav".into(),
             start_s: a.impulse.start_s,
             samples: a.impulse.samples.len(),
-        },
+        }),
         response: ResponseRecord {
             smoothing: a.response.smoothing.clone(),
             magnitude_reference: "0 dB = the recording equals the sweep as written (a wire)".into(),
@@ -558,6 +569,7 @@ pub fn results_record(a: &Analysis) -> Results {
         bands: a.room.as_ref().map(|r| r.bands.clone()).unwrap_or_default(),
         broadband: a.room.as_ref().map(|r| r.broadband.clone()),
         warnings: a.warnings.clone(),
+        average: None,
     }
 }
 
@@ -590,7 +602,10 @@ pub fn response_csv(r: &ResponseRecord) -> Result<Vec<u8>> {
         let mut row = vec![
             format!("{:.4}", r.frequency_hz[i]),
             format!("{:.4}", r.magnitude_db[i]),
-            format!("{:.3}", r.phase_deg[i]),
+            // an average has no phase: the cell stays empty
+            r.phase_deg
+                .get(i)
+                .map_or(String::new(), |p| format!("{p:.3}")),
         ];
         row.extend(extra.iter().map(|e| format!("{:.4}", e.1[i])));
         w.write_record(&row).map_err(err)?;

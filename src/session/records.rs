@@ -26,8 +26,10 @@ pub struct Results {
     pub peak_dbfs: f64,
     /// Peak of the impulse response above its noise, dB.
     pub peak_to_noise_db: f64,
-    /// Where the impulse response is and how it is placed in time.
-    pub impulse: ImpulseRecord,
+    /// Where the impulse response is and how it is placed in time
+    /// (absent in an average, which has none).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub impulse: Option<ImpulseRecord>,
     /// The frequency response.
     pub response: ResponseRecord,
     /// The harmonic distortion orders and THD (`null` with --harmonics 1).
@@ -42,6 +44,37 @@ pub struct Results {
     pub broadband: Option<BandResult>,
     /// Warnings, in plain words.
     pub warnings: Vec<String>,
+    /// For an average over positions: what was averaged.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub average: Option<AverageRecord>,
+}
+
+/// What an average over positions was made of.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AverageRecord {
+    /// Source–microphone combinations averaged (one folder each).
+    pub positions: usize,
+    /// Source positions among them (as given with --sources).
+    pub sources: usize,
+    /// The ISO 3382-2 precision grade that many positions reach.
+    pub grade: String,
+    /// How the response was averaged.
+    pub response_method: String,
+    /// The input folders in order, with their hashes.
+    pub inputs: Vec<InputRecord>,
+}
+
+/// An input folder of an average or a comparison.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct InputRecord {
+    /// The folder as given.
+    pub folder: String,
+    /// A short label for plots and tables.
+    pub label: String,
+    /// SHA-256 of its manifest.json (which lists the hash of every file).
+    pub sha256: String,
+    /// SHA-256 of its results.json.
+    pub results_sha256: String,
 }
 
 /// The impulse response file.
@@ -160,6 +193,12 @@ pub struct Manifest {
     /// What went wrong; an incomplete folder says why here.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub problems: Vec<String>,
+    /// "average" for an average over positions (absent for a measurement).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub kind: Option<String>,
+    /// The input folders of an average, with their hashes.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub inputs: Vec<InputRecord>,
 }
 
 /// How `gliss measure` played and recorded.

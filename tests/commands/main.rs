@@ -5,6 +5,7 @@ mod cookbook;
 mod util;
 
 mod bad_input;
+mod compare;
 mod demo;
 mod device_under_test;
 mod distortion;

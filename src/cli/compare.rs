@@ -1,0 +1,115 @@
+//! `gliss compare`: before and after, band by band.
+
+use std::path::PathBuf;
+
+use clap::Args as ClapArgs;
+
+use crate::analysis::Smoothing;
+use crate::cli::common;
+use crate::error::{Error, Result};
+use crate::session::compare::{self, CompareJob};
+
+/// Options of `gliss compare`.
+#[derive(Debug, ClapArgs)]
+#[command(
+    after_help = "The first folder is the reference (before); every other one is compared \
+with it. A change counts as audible when it exceeds the just-noticeable difference of \
+ISO 3382-1 Annex A (EDT and T 5 %, C80 1 dB, D50 0.05, Ts 10 ms), and as real when it \
+exceeds twice the combined standard uncertainty of the two values (the spread over \
+positions for an average made with gliss average, ISO 3382-2's formula for T20 and T30 of \
+a single measurement). With --volume, the change of equivalent absorption area per band \
+follows from the Sabine relation as ISO 354 writes it, A = 55.3·V/(c·T). Writes \
+comparison.json, comparison.csv and plots/compare-*.png."
+)]
+pub struct Args {
+    /// The folders: the reference (before) first, then the others
+    /// (measurements or averages).
+    #[arg(value_name = "DIR", required = true, num_args = 2..)]
+    pub inputs: Vec<PathBuf>,
+    /// The new comparison folder.
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+    /// Labels, comma-separated, in order [default: the folder names].
+    #[arg(long, value_name = "A,B,...", value_delimiter = ',')]
+    pub labels: Vec<String>,
+    /// Smooth the responses further for the overlay, e.g. 1/3 [default: as
+    /// the folders are].
+    #[arg(long, value_name = "1/N")]
+    pub smooth: Option<String>,
+    /// The room's volume in m³: adds the change of equivalent absorption
+    /// area per band.
+    #[arg(long, value_name = "M3", allow_hyphen_values = true)]
+    pub volume: Option<f64>,
+    /// The air temperature in °C, for the speed of sound (c = 331 + 0.6·t).
+    #[arg(
+        long,
+        value_name = "C",
+        default_value_t = 20.0,
+        allow_hyphen_values = true
+    )]
+    pub temperature: f64,
+    /// Skip the PNG plots.
+    #[arg(long)]
+    pub no_plots: bool,
+    /// Replace the derived files of an existing comparison.
+    #[arg(long)]
+    pub overwrite: bool,
+}
+
+/// Runs `gliss compare`.
+pub fn run(a: Args) -> Result<()> {
+    let smoothing = match a.smooth.as_deref() {
+        None => None,
+        Some(s) => match Smoothing::parse(s)? {
+            Smoothing::None => {
+                return Err(Error::parameter(
+                    "--smooth none cannot undo the folders' smoothing; give a fraction such as 1/3, or leave it out",
+                ));
+            }
+            f => Some(f),
+        },
+    };
+    let (cmp, written) = compare::compare(&CompareJob {
+        out: a.out.clone(),
+        overwrite: a.overwrite,
+        inputs: a.inputs.clone(),
+        labels: a.labels.clone(),
+        smoothing,
+        volume_m3: a.volume,
+        temperature_c: a.temperature,
+        plots: !a.no_plots,
+        command_line: std::env::args().collect(),
+    })?;
+    println!("wrote the comparison {}:", common::show(&a.out));
+    for f in &written.files {
+        println!("  {f}");
+    }
+    // the octave-band verdict on the decay time, in a few lines
+    for k in 1..cmp.inputs.len() {
+        println!("{} against {}:", cmp.inputs[k].label, cmp.inputs[0].label);
+        for r in cmp
+            .bands
+            .iter()
+            .filter(|r| r.fraction == "1/1" && r.parameter == "t30_s")
+        {
+            let (Some(a0), Some(ak)) = (r.values[0], r.values[k]) else {
+                continue;
+            };
+            let verdict = match (r.exceeds_jnd[k], r.exceeds_uncertainty[k]) {
+                (Some(true), Some(true)) => "audible and beyond the uncertainty",
+                (Some(true), _) => "larger than the JND",
+                (_, Some(true)) => "measurable, below the JND",
+                _ => "no significant change",
+            };
+            println!(
+                "  {:>6} Hz  T30 {a0:.2} s -> {ak:.2} s ({:+.0} %): {verdict}",
+                crate::plot::format_hz(r.center_hz),
+                100.0 * r.relative_change[k].unwrap_or(0.0)
+            );
+        }
+    }
+    for w in &written.warnings {
+        println!("warning: {w}");
+    }
+    Ok(())
+}
