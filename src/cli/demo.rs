@@ -7,21 +7,36 @@ use clap::Args as ClapArgs;
 use crate::audio::virtual_system::VirtualSystem;
 use crate::audio::{NoSink, PlayRecord, Playback};
 use crate::cli::common::{self, OutputArgs, SweepArgs};
-use crate::error::Result;
+use crate::error::{Error, Result};
+use crate::session::compare::{self, AverageJob, CompareJob};
 use crate::session::{self, Job, Outcome, records::Source};
-use crate::signal::wav::{SampleEncoding, WavData, encode_wav};
+use crate::signal::wav::{SampleEncoding, decode_wav, encode_wav};
 
 /// Options of `gliss demo`.
 #[derive(Debug, ClapArgs)]
 #[command(
-    after_help = "Everything in the demo is simulated: the Kestrel 5 monitor and \
-the rehearsal room are the project's own inventions, rendered in software, and no \
-sound is played."
+    after_help = "The story (the default): the Kestrel 5 monitor plays in a bare 4.6 × 3.8 × \
+2.6 m rehearsal room, measured at three microphone positions (1.2, 1.8 and 2.4 m); the \
+room is then treated (panels at the first reflection points and on the rear wall, two \
+corner bass traps) and measured again at the same positions. gliss averages each \
+condition, compares them with the room's volume, and writes the report. DIR gets \
+before-1..3, after-1..3 (measurements), before and after (averages), comparison and \
+report.html. With --single, DIR is one measurement of the bare room at 1.2 m.
+
+Everything in the demo is simulated: the Kestrel 5 monitor and the rehearsal room are the \
+project's own inventions, rendered in software, and no sound is played."
 )]
 pub struct Args {
-    /// The measurement folder to write.
+    /// The folder to write (the story's folders go inside it).
     #[arg(long, value_name = "DIR", default_value = "gliss-demo")]
     pub out: PathBuf,
+    /// One measurement (the bare room at 1.2 m) instead of the story.
+    #[arg(long)]
+    pub single: bool,
+    /// Sample format of the simulated raw recordings: 16, 24 (integer) or
+    /// 32 (float).
+    #[arg(long, value_name = "16|24|32", default_value_t = 32)]
+    pub bits: u16,
     #[command(flatten)]
     pub sweep: SweepArgs,
     #[command(flatten)]
@@ -30,6 +45,9 @@ pub struct Args {
     #[arg(long, default_value_t = 2026)]
     pub seed: u64,
 }
+
+/// Volume of the demo room, m³ (4.6 × 3.8 × 2.6 m).
+pub const ROOM_VOLUME_M3: f64 = 4.6 * 3.8 * 2.6;
 
 /// `x` rounded to `decimals`, with −0 shown as 0.
 fn no_negative_zero(x: f64, decimals: i32) -> f64 {
@@ -59,19 +77,24 @@ pub fn print_summary(out: &str, o: &Outcome) {
     }
 }
 
-/// Runs `gliss demo`.
-pub fn run(a: Args) -> Result<()> {
+/// One simulated measurement of `system` into `out`.
+fn measure_one(
+    a: &Args,
+    system: &mut VirtualSystem,
+    out: &std::path::Path,
+    title: &str,
+) -> Result<Outcome> {
     let mut config = a.output.config()?;
     let drive = a.output.drive()?;
     let mic = a.output.mic_correction()?;
     config.mic_correction = mic.as_ref().map(|m| m.0.clone());
     let design = a.sweep.design()?;
-    let mut system = VirtualSystem {
-        seed: a.seed,
-        ..VirtualSystem::default()
-    };
-    println!("SIMULATED: {}", system.describe());
-    println!("(no sound is played; the recording is computed)");
+    let encoding = SampleEncoding::from_bits(a.bits).map_err(|_| {
+        Error::parameter(format!(
+            "--bits {} is not a WAV format gliss writes; use 16, 24 or 32 (float)",
+            a.bits
+        ))
+    })?;
     let stimulus = design.generate();
     let stop = std::sync::atomic::AtomicBool::new(false);
     let take = system.play_record(
@@ -84,32 +107,21 @@ pub fn run(a: Args) -> Result<()> {
         &mut NoSink,
         &mut |_| {},
     )?;
-    let stimulus_bytes = encode_wav(
-        &[&stimulus],
-        design.params.sample_rate_hz,
-        SampleEncoding::Float,
-    );
+    let stimulus_bytes = encode_wav(&[&stimulus], design.params.sample_rate_hz, encoding);
     let refs: Vec<&[f64]> = take.channels.iter().map(Vec::as_slice).collect();
-    let recording_bytes = encode_wav(&refs, take.sample_rate_hz, SampleEncoding::Float);
+    let recording_bytes = encode_wav(&refs, take.sample_rate_hz, encoding);
     // analyse what was written, exactly as `analyze` would read it
-    let f32_round = |x: &[f64]| x.iter().map(|&v| f64::from(v as f32)).collect::<Vec<_>>();
+    let decode =
+        |b: &[u8]| decode_wav(b).map_err(|e| Error::input(format!("the simulated file {e}")));
     let job = Job {
-        out: a.out.clone(),
+        out: out.to_path_buf(),
         overwrite: a.output.overwrite,
         plots: !a.output.no_plots,
+        recording: decode(&recording_bytes)?,
         recording_bytes,
-        recording: WavData {
-            sample_rate_hz: take.sample_rate_hz,
-            encoding: SampleEncoding::Float,
-            channels: take.channels.iter().map(|c| f32_round(c)).collect(),
-        },
         channel: 0,
+        stimulus: decode(&stimulus_bytes)?,
         stimulus_bytes,
-        stimulus: WavData {
-            sample_rate_hz: design.params.sample_rate_hz,
-            encoding: SampleEncoding::Float,
-            channels: vec![f32_round(&stimulus)],
-        },
         design,
         config,
         source: Source {
@@ -118,7 +130,7 @@ pub fn run(a: Args) -> Result<()> {
             recording_path: None,
             sweep_path: None,
         },
-        title: "Kestrel 5 in the rehearsal room (simulated)".into(),
+        title: title.into(),
         command_line: std::env::args().collect(),
         mic_correction: mic.map(|m| m.1),
         calibration: a.output.calibration()?,
@@ -126,7 +138,133 @@ pub fn run(a: Args) -> Result<()> {
         measurement: None,
         drive,
     };
-    let outcome = session::run(&job)?;
-    print_summary(&common::show(&a.out), &outcome);
+    session::run(&job)
+}
+
+/// Runs `gliss demo`.
+pub fn run(a: Args) -> Result<()> {
+    let bare = VirtualSystem {
+        seed: a.seed,
+        ..VirtualSystem::default()
+    };
+    if a.single {
+        let mut system = bare;
+        println!("SIMULATED: {}", system.describe());
+        println!("(no sound is played; the recording is computed)");
+        let outcome = measure_one(
+            &a,
+            &mut system,
+            &a.out,
+            "Kestrel 5 in the rehearsal room (simulated)",
+        )?;
+        print_summary(&common::show(&a.out), &outcome);
+        return Ok(());
+    }
+    story(&a, &bare)
+}
+
+/// The whole story: positions before and after treatment, averaged,
+/// compared and reported.
+fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
+    println!(
+        "SIMULATED: the Kestrel 5 monitor (virtual) in a bare 4.6 × 3.8 × 2.6 m rehearsal room (virtual), three microphone positions, before and after treatment"
+    );
+    println!("(no sound is played; the recordings are computed)");
+    let positions = [1.2, 1.8, 2.4];
+    let mut written = Vec::new();
+    for (condition, system) in [("before", bare.clone()), ("after", bare.treated())] {
+        let mut dirs = Vec::new();
+        for (k, d) in positions.iter().enumerate() {
+            let mut s = VirtualSystem {
+                distance_m: *d,
+                seed: bare
+                    .seed
+                    .wrapping_add(k as u64 + if condition == "after" { 10 } else { 0 }),
+                ..system.clone()
+            };
+            let name = format!("{condition}-{}", k + 1);
+            let out = a.out.join(&name);
+            let title = format!(
+                "rehearsal room {}, position {} at {d} m (simulated)",
+                if condition == "before" {
+                    "bare"
+                } else {
+                    "treated"
+                },
+                k + 1
+            );
+            let o = measure_one(a, &mut s, &out, &title)?;
+            println!(
+                "measured {name}: impulse response {:.0} dB above its noise, {} warning{}",
+                o.analysis.peak_to_noise_db,
+                o.analysis.warnings.len(),
+                if o.analysis.warnings.len() == 1 {
+                    ""
+                } else {
+                    "s"
+                }
+            );
+            dirs.push(out);
+            written.push(name);
+        }
+        let avg = a.out.join(condition);
+        compare::average(&AverageJob {
+            out: avg.clone(),
+            overwrite: a.output.overwrite,
+            inputs: dirs,
+            labels: (1..=positions.len())
+                .map(|k| format!("position {k}"))
+                .collect(),
+            sources: 1,
+            plots: !a.output.no_plots,
+            command_line: std::env::args().collect(),
+        })?;
+        println!(
+            "averaged the {} positions {condition} treatment into {condition}",
+            positions.len()
+        );
+        written.push(condition.to_string());
+    }
+    let (cmp, _) = compare::compare(&CompareJob {
+        out: a.out.join("comparison"),
+        overwrite: a.output.overwrite,
+        inputs: vec![a.out.join("before"), a.out.join("after")],
+        labels: vec!["before treatment".into(), "after treatment".into()],
+        smoothing: None,
+        volume_m3: Some(ROOM_VOLUME_M3),
+        temperature_c: 20.0,
+        plots: !a.output.no_plots,
+        command_line: std::env::args().collect(),
+    })?;
+    written.push("comparison".into());
+    println!("compared before and after treatment (room volume {ROOM_VOLUME_M3:.1} m³):");
+    for r in cmp
+        .bands
+        .iter()
+        .filter(|r| r.fraction == "1/1" && r.parameter == "t30_s")
+    {
+        let (Some(t0), Some(t1)) = (r.values[0], r.values[1]) else {
+            continue;
+        };
+        let area = cmp
+            .absorption
+            .iter()
+            .find(|x| x.fraction == "1/1" && (x.center_hz - r.center_hz).abs() < 1e-6)
+            .and_then(|x| x.delta_area_m2[1]);
+        println!(
+            "  {:>6} Hz  T30 {t0:.2} s -> {t1:.2} s{}{}",
+            crate::plot::format_hz(r.center_hz),
+            area.map_or(String::new(), |x| format!(", {x:+.1} m² absorption")),
+            if r.exceeds_jnd[1] == Some(true) {
+                ", audible"
+            } else {
+                ""
+            }
+        );
+    }
+    println!("wrote {}:", common::show(&a.out));
+    for w in &written {
+        println!("  {w}/");
+    }
     Ok(())
 }

@@ -259,6 +259,7 @@ fn folders_of_different_sweeps_are_compared_on_their_common_band_with_a_warning(
         d,
         &[
             "demo",
+            "--single",
             "--out",
             "wide",
             "--length",
@@ -272,6 +273,7 @@ fn folders_of_different_sweeps_are_compared_on_their_common_band_with_a_warning(
         d,
         &[
             "demo",
+            "--single",
             "--out",
             "narrow",
             "--length",
@@ -307,6 +309,7 @@ fn what_is_not_a_complete_measurement_is_refused() {
         d,
         &[
             "demo",
+            "--single",
             "--out",
             "m",
             "--length",

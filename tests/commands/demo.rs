@@ -9,7 +9,9 @@ fn the_demo_writes_a_complete_measurement_folder() {
     let t = tempfile::tempdir().unwrap();
     let out = ok(
         t.path(),
-        &["demo", "--out", "room", "--length", "2", "--tail", "1"],
+        &[
+            "demo", "--single", "--out", "room", "--length", "2", "--tail", "1",
+        ],
     );
     assert!(
         out.contains("SIMULATED"),
@@ -111,6 +113,7 @@ fn the_demo_recording_reanalyses_to_the_same_result() {
         t.path(),
         &[
             "demo",
+            "--single",
             "--out",
             "d",
             "--length",
@@ -146,6 +149,7 @@ fn the_demo_refuses_to_overwrite_a_measurement() {
         t.path(),
         &[
             "demo",
+            "--single",
             "--out",
             "d",
             "--length",
@@ -158,7 +162,9 @@ fn the_demo_refuses_to_overwrite_a_measurement() {
     let before = snapshot(t.path());
     refused(
         t.path(),
-        &["demo", "--out", "d", "--length", "1", "--tail", "0.5"],
+        &[
+            "demo", "--single", "--out", "d", "--length", "1", "--tail", "0.5",
+        ],
     );
     assert_eq!(snapshot(t.path()), before);
 }
@@ -170,7 +176,7 @@ fn the_virtual_woofer_distorts_more_at_low_frequencies() {
     // 150 Hz than at 1 kHz (where it may be below the noise altogether).
     // The room's modes make the low end uneven, so take its maximum.
     let t = tempfile::tempdir().unwrap();
-    ok(t.path(), &["demo", "--out", "d", "--no-plots"]);
+    ok(t.path(), &["demo", "--single", "--out", "d", "--no-plots"]);
     let r = json(&t.path().join("d/results.json"));
     let o = &r["distortion"]["orders"][0];
     assert_eq!(o["order"], 2);
@@ -200,7 +206,15 @@ fn the_demo_room_decays_longer_at_low_frequencies() {
     let t = tempfile::tempdir().unwrap();
     ok(
         t.path(),
-        &["demo", "--out", "d", "--no-plots", "--harmonics", "1"],
+        &[
+            "demo",
+            "--single",
+            "--out",
+            "d",
+            "--no-plots",
+            "--harmonics",
+            "1",
+        ],
     );
     let r = json(&t.path().join("d/results.json"));
     let bands = r["bands"].as_array().unwrap();
@@ -253,6 +267,7 @@ fn the_demo_room_decays_longer_at_low_frequencies() {
         t.path(),
         &[
             "demo",
+            "--single",
             "--out",
             "e",
             "--no-plots",
@@ -274,6 +289,7 @@ fn the_speaker_profile_picks_its_defaults_and_each_can_be_overridden() {
     let run = |out: &str, extra: &[&str]| {
         let mut args = vec![
             "demo",
+            "--single",
             "--out",
             out,
             "--no-plots",
@@ -303,13 +319,13 @@ fn the_speaker_profile_picks_its_defaults_and_each_can_be_overridden() {
 fn the_spectrogram_is_drawn_without_a_gate_and_the_decay_spectrum_with_one() {
     let t = tempfile::tempdir().unwrap();
     let short = ["--length", "1", "--tail", "0.5", "--harmonics", "1"];
-    let mut args = vec!["demo", "--out", "s", "--profile", "speaker"];
+    let mut args = vec!["demo", "--single", "--out", "s", "--profile", "speaker"];
     args.extend_from_slice(&short);
     ok(t.path(), &args);
     let s = t.path().join("s/plots");
     assert!(s.join("decay-spectrum.png").is_file());
     assert!(!s.join("spectrogram.png").exists());
-    let mut args = vec!["demo", "--out", "r", "--no-bands"];
+    let mut args = vec!["demo", "--single", "--out", "r", "--no-bands"];
     args.extend_from_slice(&short);
     ok(t.path(), &args);
     let r = t.path().join("r/plots");
@@ -324,4 +340,55 @@ fn the_spectrogram_is_drawn_without_a_gate_and_the_decay_spectrum_with_one() {
             .iter()
             .any(|f| f["name"] == "plots/spectrogram.png" && f["role"] == "derived")
     );
+}
+
+#[test]
+fn the_demo_story_measures_averages_compares_and_finds_the_treatment() {
+    let t = tempfile::tempdir().unwrap();
+    let out = ok(
+        t.path(),
+        &[
+            "demo",
+            "--out",
+            "story",
+            "--length",
+            "2",
+            "--tail",
+            "1.5",
+            "--no-plots",
+        ],
+    );
+    assert!(out.contains("SIMULATED"), "{out}");
+    let d = t.path().join("story");
+    for f in [
+        "before-1", "before-2", "before-3", "after-1", "after-2", "after-3",
+    ] {
+        assert_eq!(
+            json(&d.join(f).join("manifest.json"))["complete"],
+            true,
+            "{f}"
+        );
+    }
+    for f in ["before", "after"] {
+        let m = json(&d.join(f).join("manifest.json"));
+        assert_eq!(m["kind"], "average", "{f}");
+        assert_eq!(m["inputs"].as_array().unwrap().len(), 3);
+    }
+    let c = json(&d.join("comparison/comparison.json"));
+    // the treated room was made to decay faster from 250 Hz to 4 kHz (its
+    // invented reverberation times): the comparison must find it, audibly,
+    // with more absorption in every one of those octaves
+    for r in c["bands"].as_array().unwrap() {
+        let f = r["center_hz"].as_f64().unwrap();
+        if r["fraction"] == "1/1" && r["parameter"] == "t30_s" && (250.0..=4000.0).contains(&f) {
+            assert!(r["relative_change"][1].as_f64().unwrap() < -0.2, "{r}");
+            assert_eq!(r["exceeds_jnd"][1], true, "{r}");
+        }
+    }
+    for a in c["absorption"].as_array().unwrap() {
+        let f = a["center_hz"].as_f64().unwrap();
+        if a["fraction"] == "1/1" && (250.0..=4000.0).contains(&f) {
+            assert!(a["delta_area_m2"][1].as_f64().unwrap() > 3.0, "{a}");
+        }
+    }
 }
