@@ -7,6 +7,7 @@ mod common;
 mod demo;
 mod devices;
 mod measure;
+mod report;
 mod sweep;
 
 use std::process::ExitCode;
@@ -46,6 +47,8 @@ enum Command {
     Demo(demo::Args),
     /// Turn a recording of a sound calibrator's tone into a calibration file for --calibration.
     Calibrate(calibrate::Args),
+    /// Write one self-contained HTML report (plots embedded, prints on A4) of measurement folders.
+    Report(report::Args),
 }
 
 /// Parses the command line, runs the command, prints any error once.
@@ -65,6 +68,7 @@ pub fn main() -> ExitCode {
         Command::Analyze(a) => analyze::run(a),
         Command::Demo(a) => demo::run(a),
         Command::Calibrate(a) => calibrate::run(a),
+        Command::Report(a) => report::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
