@@ -796,7 +796,7 @@ fn comparison_section(
     );
     key(
         out,
-        "No audible change",
+        "No clear audible change",
         &other.to_string(),
         "within the just-noticeable difference or the measurement's uncertainty",
     );
