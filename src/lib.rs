@@ -3,9 +3,10 @@
 //! The pipeline as plain functions over slices: a synchronised exponential
 //! sweep ([`signal::sweep`]), deconvolution by regularised spectral
 //! division ([`deconv`]), the impulse and frequency response
-//! ([`analysis`]), PNG plots ([`plot`]) and the measurement folder
-//! ([`session`]). The virtual system ([`audio::virtual_system`]) stands in
-//! for a sound card, a loudspeaker and a room.
+//! ([`analysis`]), PNG plots ([`plot`]), the measurement folder
+//! ([`session`]) and the self-contained HTML report ([`report`]). The
+//! virtual system ([`audio::virtual_system`]) stands in for a sound card,
+//! a loudspeaker and a room.
 #![warn(missing_docs)]
 
 pub mod analysis;
@@ -14,6 +15,7 @@ pub mod cli;
 pub mod deconv;
 pub mod error;
 pub mod plot;
+pub mod report;
 pub mod session;
 pub mod signal;
 

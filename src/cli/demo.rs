@@ -262,9 +262,20 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
             }
         );
     }
+    let report = a.out.join("report.html");
+    super::report::run(super::report::Args {
+        dirs: vec![
+            a.out.join("comparison"),
+            a.out.join("before"),
+            a.out.join("after"),
+        ],
+        out: report,
+        overwrite: a.output.overwrite,
+    })?;
     println!("wrote {}:", common::show(&a.out));
     for w in &written {
         println!("  {w}/");
     }
+    println!("  report.html  (open it in a browser: the comparison, then each average)");
     Ok(())
 }

@@ -9,6 +9,7 @@ mod compare;
 mod demo;
 mod devices;
 mod measure;
+mod report;
 mod sweep;
 
 use std::process::ExitCode;
@@ -52,6 +53,8 @@ enum Command {
     Compare(compare::Args),
     /// Turn a recording of a sound calibrator's tone into a calibration file for --calibration.
     Calibrate(calibrate::Args),
+    /// Write one self-contained HTML report (plots embedded, prints on A4) of measurement folders.
+    Report(report::Args),
 }
 
 /// Parses the command line, runs the command, prints any error once.
@@ -73,6 +76,7 @@ pub fn main() -> ExitCode {
         Command::Calibrate(a) => calibrate::run(a),
         Command::Average(a) => average::run(a),
         Command::Compare(a) => compare::run(a),
+        Command::Report(a) => report::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

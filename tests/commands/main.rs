@@ -10,6 +10,7 @@ mod demo;
 mod device_under_test;
 mod distortion;
 mod measure;
+mod report;
 mod sensitivity;
 mod sound_server;
 mod sweep;

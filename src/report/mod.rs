@@ -1,0 +1,973 @@
+//! The self-contained HTML report of one or more measurement folders.
+//!
+//! [`render`] is pure: it takes folders already read (by `gliss report`)
+//! and returns one HTML document with its style sheet inline and every
+//! plot embedded as a base64 PNG data URI. It makes no requests of any
+//! kind and needs no JavaScript. All text from the folders is escaped.
+
+pub mod advice;
+pub mod comparison;
+pub mod html;
+
+use std::fmt::Write;
+
+use base64::Engine;
+
+use crate::analysis::room::BandResult;
+use crate::session::records::{Manifest, Results};
+use comparison::Comparison;
+use html::{esc, hz, num, trim};
+
+/// A plot of a folder.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Plot {
+    /// Its path inside the folder ("plots/response.png").
+    pub file: String,
+    /// The PNG's bytes.
+    pub png: Vec<u8>,
+}
+
+/// What became of a file the manifest lists, when its SHA-256 was checked.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum FileState {
+    /// Its bytes have the SHA-256 the manifest records.
+    Matches,
+    /// Its bytes differ from what the manifest records.
+    Differs,
+    /// It is not in the folder.
+    Missing,
+}
+
+/// A file the manifest lists, checked against its recorded SHA-256.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FileCheck {
+    /// Path inside the folder.
+    pub name: String,
+    /// "raw", "derived", "input", …
+    pub role: String,
+    /// The SHA-256 the manifest records.
+    pub sha256: String,
+    /// What the check found.
+    pub state: FileState,
+}
+
+/// What a folder holds.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Content {
+    /// One measurement: its manifest and results.json.
+    Measurement {
+        /// manifest.json.
+        manifest: Box<Manifest>,
+        /// results.json.
+        results: Box<Results>,
+    },
+    /// A comparison of measurements: its manifest (read loosely: its
+    /// layout belongs to the compare command) and comparison.json.
+    Comparison {
+        /// manifest.json as JSON.
+        manifest: serde_json::Value,
+        /// comparison.json.
+        comparison: Box<Comparison>,
+    },
+}
+
+/// One folder of the report, read.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Folder {
+    /// The folder as given on the command line.
+    pub name: String,
+    /// What it holds.
+    pub content: Content,
+    /// Its plots/*.png.
+    pub plots: Vec<Plot>,
+    /// The files its manifest lists, checked.
+    pub files: Vec<FileCheck>,
+    /// What reading it found wrong that is not an error (a damaged plot).
+    pub notes: Vec<String>,
+}
+
+/// The order plots are shown in; others follow in name order.
+const PLOT_ORDER: [&str; 12] = [
+    "compare-response",
+    "compare-difference",
+    "compare-reverberation",
+    "response",
+    "phase",
+    "group-delay",
+    "distortion",
+    "decay",
+    "reverberation",
+    "decay-spectrum",
+    "spectrogram",
+    "impulse",
+];
+
+/// Rank of a plot file in the report's order (comparison plots, response, phase,
+/// group delay, distortion, decay, reverberation, decay spectrum, spectrogram,
+/// impulse; others after).
+pub fn plot_rank(file: &str) -> usize {
+    let stem = plot_stem(file);
+    PLOT_ORDER
+        .iter()
+        .position(|p| *p == stem)
+        .unwrap_or(PLOT_ORDER.len())
+}
+
+fn plot_stem(file: &str) -> &str {
+    let name = file.rsplit('/').next().unwrap_or(file);
+    name.strip_suffix(".png").unwrap_or(name)
+}
+
+/// Width and height of a PNG from its header, if it is one.
+pub fn png_size(png: &[u8]) -> Option<(u32, u32)> {
+    const SIGNATURE: [u8; 8] = [0x89, b'P', b'N', b'G', 0x0d, 0x0a, 0x1a, 0x0a];
+    if png.len() < 24 || png[..8] != SIGNATURE || &png[12..16] != b"IHDR" {
+        return None;
+    }
+    let w = u32::from_be_bytes([png[16], png[17], png[18], png[19]]);
+    let h = u32::from_be_bytes([png[20], png[21], png[22], png[23]]);
+    Some((w, h))
+}
+
+/// Figure and table numbers, counted through the whole report.
+#[derive(Debug, Default)]
+struct Counters {
+    figure: usize,
+    table: usize,
+}
+
+/// The report of `folders`, in the order given. `written_utc` is the time
+/// to print as the report's date.
+pub fn render(folders: &[Folder], written_utc: &str) -> String {
+    let mut out = String::with_capacity(1 << 20);
+    let title = match folders {
+        [one] => format!("Measurement report: {}", one.name),
+        _ => format!("Measurement report: {} folders", folders.len()),
+    };
+    let _ = write!(
+        out,
+        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n<meta name=\"generator\" content=\"gliss {}\">\n<title>{}</title>\n<style>\n{}</style>\n</head>\n<body>\n",
+        env!("CARGO_PKG_VERSION"),
+        esc(&title),
+        STYLE
+    );
+    let _ = write!(
+        out,
+        "<header class=\"report\"><p class=\"kicker\">gliss measurement report</p><h1>{}</h1><p class=\"muted\">Written {} by gliss {} from the measurement folders below; every number comes from their results, every plot from their plots folder.</p>",
+        esc(&title),
+        esc(written_utc),
+        env!("CARGO_PKG_VERSION")
+    );
+    out.push_str("<nav class=\"contents\"><h2>Contents</h2><ol>");
+    for (i, f) in folders.iter().enumerate() {
+        let (kind, what, nwarn) = match &f.content {
+            Content::Measurement { manifest, results } => (
+                "measurement",
+                manifest.source.description.clone(),
+                results.warnings.len()
+                    + results
+                        .bands
+                        .iter()
+                        .map(|b| b.warnings.len())
+                        .sum::<usize>(),
+            ),
+            Content::Comparison {
+                manifest,
+                comparison,
+            } => (
+                "comparison",
+                comparison_title(manifest, comparison),
+                comparison.warnings.len(),
+            ),
+        };
+        let _ = write!(
+            out,
+            "<li><a href=\"#m{}\"><span class=\"folder\">{}</span></a> <span class=\"tag\">{kind}</span> <span class=\"muted\">{}</span>{}</li>",
+            i + 1,
+            esc(&f.name),
+            esc(&what),
+            match nwarn {
+                0 => String::new(),
+                1 => " <span class=\"warn-count\">1 warning</span>".to_string(),
+                n => format!(" <span class=\"warn-count\">{n} warnings</span>"),
+            }
+        );
+    }
+    out.push_str("</ol></nav></header>\n");
+    let mut counters = Counters::default();
+    for (i, f) in folders.iter().enumerate() {
+        let _ = write!(
+            out,
+            "<section class=\"measurement\" id=\"m{}\"><h2><span class=\"num-label\">{}.</span> <span class=\"folder\">{}</span></h2>",
+            i + 1,
+            i + 1,
+            esc(&f.name)
+        );
+        match &f.content {
+            Content::Measurement { manifest, results } => {
+                measurement(&mut out, f, manifest, results, &mut counters)
+            }
+            Content::Comparison {
+                manifest,
+                comparison,
+            } => comparison_section(&mut out, f, manifest, comparison, &mut counters),
+        }
+        out.push_str("</section>\n");
+    }
+    let _ = write!(
+        out,
+        "<footer><p>Made with gliss {}. Values that could not be measured honestly are shown as — with the reason beside them, never estimated.</p></footer>\n</body>\n</html>\n",
+        env!("CARGO_PKG_VERSION")
+    );
+    out
+}
+
+/// A comparison's one-line description.
+fn comparison_title(manifest: &serde_json::Value, c: &Comparison) -> String {
+    let from_manifest = manifest.get("title").and_then(|v| v.as_str()).or_else(|| {
+        manifest
+            .get("source")
+            .and_then(|s| s.get("description"))
+            .and_then(|v| v.as_str())
+    });
+    match from_manifest {
+        Some(t) => t.to_string(),
+        None => format!(
+            "comparison of {}",
+            c.inputs
+                .iter()
+                .map(|i| i.name().to_string())
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+    }
+}
+
+/// A key number: label, value, note.
+fn key(out: &mut String, label: &str, value: &str, note: &str) {
+    let _ = write!(
+        out,
+        "<div class=\"key\"><dt>{}</dt><dd><span class=\"value\">{}</span>{}</dd></div>",
+        esc(label),
+        esc(value),
+        if note.is_empty() {
+            String::new()
+        } else {
+            format!("<span class=\"note\">{}</span>", esc(note))
+        }
+    );
+}
+
+/// The section of one measurement.
+fn measurement(out: &mut String, f: &Folder, m: &Manifest, r: &Results, n: &mut Counters) {
+    let _ = write!(out, "<p class=\"lede\">{}</p>", esc(&m.source.description));
+    // key numbers
+    out.push_str("<h3>Key numbers</h3><dl class=\"keys\">");
+    let fs = f64::from(r.sample_rate_hz);
+    key(
+        out,
+        "Delay",
+        &format!("{} ms", num(r.delay_s * 1e3, 3)),
+        &format!(
+            "{} samples; from the {}",
+            num(r.delay_s * fs, 2),
+            r.delay_reference
+                .split(';')
+                .next()
+                .unwrap_or(&r.delay_reference)
+        ),
+    );
+    key(
+        out,
+        "Recording peak",
+        &format!("{} dBFS", num(r.peak_dbfs, 1)),
+        "0 dBFS = a full-scale sine",
+    );
+    key(
+        out,
+        "Peak to noise",
+        &format!("{} dB", num(r.peak_to_noise_db, 0)),
+        "impulse response peak over its noise",
+    );
+    if let Some(b) = &r.broadband {
+        let band = format!(
+            "over the whole sweep, {}–{}",
+            hz(m.sweep.params.start_hz),
+            hz(m.sweep.params.end_hz)
+        );
+        for (label, v, unit, dec, scale) in [
+            ("T30", b.t30_s, "s", 2, 1.0),
+            ("EDT", b.edt_s, "s", 2, 1.0),
+            ("C80", b.c80_db, "dB", 1, 1.0),
+        ] {
+            match v {
+                Some(v) => key(
+                    out,
+                    label,
+                    &format!("{} {unit}", num(v * scale, dec)),
+                    &band,
+                ),
+                None => key(
+                    out,
+                    label,
+                    "—",
+                    advice::reason_for(&b.warnings, label)
+                        .map(advice::without_label)
+                        .unwrap_or("not measured"),
+                ),
+            }
+        }
+    }
+    match &r.response.gate {
+        Some(g) => key(
+            out,
+            "Gate",
+            &format!(
+                "{} to {} ms",
+                num(g.start_s * 1e3, 2),
+                num(g.end_s * 1e3, 2)
+            ),
+            &format!(
+                "{}around the impulse peak; the response holds from {} to {}",
+                if g.auto {
+                    "found automatically before the first reflection, "
+                } else {
+                    ""
+                },
+                hz(g.resolution_hz),
+                hz(g.resolved_to_hz)
+            ),
+        ),
+        None => key(
+            out,
+            "Gate",
+            "none",
+            "the whole impulse response, room included",
+        ),
+    }
+    key(
+        out,
+        "Smoothing",
+        &if r.response.smoothing == "none" {
+            "none".to_string()
+        } else {
+            format!("{} octave", r.response.smoothing)
+        },
+        "of the frequency response",
+    );
+    out.push_str("</dl>");
+
+    warnings(out, &r.warnings, &r.bands, f);
+
+    // bands
+    if r.bands.is_empty() {
+        out.push_str("<h3>Bands</h3><p class=\"muted\">No band parameters: this measurement was analysed without bands (the speaker profile's default, or --no-bands).</p>");
+    } else {
+        out.push_str("<h3>Reverberation and energy parameters per band</h3><p class=\"muted\">ISO 3382-1 parameters from the impulse response. EDT, T20 and T30 are decay times extrapolated to 60 dB; C50 and C80 the early-to-late energy ratios; D50 the share of energy in the first 50 ms; Ts the centre time; INR the decay's start above the noise. — marks a value that could not be measured; the note says why.</p>");
+        for (fraction, name) in [("1/1", "octave"), ("1/3", "one-third-octave")] {
+            let rows: Vec<&BandResult> =
+                r.bands.iter().filter(|b| b.fraction == fraction).collect();
+            if !rows.is_empty() {
+                band_table(out, &rows, fraction, name, n);
+            }
+        }
+    }
+
+    // plots
+    if f.plots.is_empty() {
+        out.push_str(
+            "<h3>Plots</h3><p class=\"muted\">This folder has no plots (it was analysed with --no-plots).</p>",
+        );
+    } else {
+        out.push_str("<h3>Plots</h3>");
+        for p in &f.plots {
+            figure(out, p, &caption(p, m, r), n);
+        }
+    }
+
+    about(out, f, m);
+}
+
+/// Warnings in plain words, grouped, with what to do.
+fn warnings(out: &mut String, general: &[String], bands: &[BandResult], f: &Folder) {
+    let mut all: Vec<String> = general.to_vec();
+    all.extend(f.notes.iter().cloned());
+    for c in &f.files {
+        match c.state {
+            FileState::Matches => {}
+            FileState::Differs => all.push(format!(
+                "{} differs from the file the analysis wrote or read (its SHA-256 does not match the manifest)",
+                c.name
+            )),
+            FileState::Missing => all.push(format!(
+                "{} is missing from the folder though the manifest lists it",
+                c.name
+            )),
+        }
+    }
+    let groups = advice::group(&all, bands);
+    out.push_str("<h3>Warnings</h3>");
+    if groups.is_empty() {
+        out.push_str("<p class=\"ok\">No warnings: every check of the analysis passed.</p>");
+        return;
+    }
+    for g in groups {
+        let _ = write!(out, "<div class=\"warning\"><h4>{}</h4><ul>", esc(g.title));
+        for w in &g.items {
+            let _ = write!(out, "<li>{}</li>", esc(&plain(w)));
+        }
+        out.push_str("</ul>");
+        if !g.advice.is_empty() {
+            let _ = write!(
+                out,
+                "<p class=\"todo\"><strong>What to do:</strong> {}</p>",
+                esc(g.advice)
+            );
+        }
+        out.push_str("</div>");
+    }
+}
+
+/// A warning with the pointers into results.json put in words.
+fn plain(w: &str) -> String {
+    w.replace("; see bands[].warnings", "; the bands are listed here")
+        .replace(
+            "bands[].warnings says which and why",
+            "the band tables say which and why",
+        )
+        .replace("results.json marks it", "the results mark it")
+}
+
+/// A figure with its caption.
+fn figure(out: &mut String, p: &Plot, caption: &str, n: &mut Counters) {
+    n.figure += 1;
+    let data = base64::engine::general_purpose::STANDARD.encode(&p.png);
+    let size = png_size(&p.png)
+        .map(|(w, h)| format!(" width=\"{w}\" height=\"{h}\""))
+        .unwrap_or_default();
+    let _ = write!(
+        out,
+        "<figure><img src=\"data:image/png;base64,{data}\"{size} alt=\"{}\"><figcaption><span class=\"fig\">Figure {}.</span> {} <span class=\"file\">{}</span></figcaption></figure>",
+        esc(caption),
+        n.figure,
+        esc(caption),
+        esc(&p.file)
+    );
+}
+
+/// What a measurement's plot shows, in words.
+fn caption(p: &Plot, m: &Manifest, r: &Results) -> String {
+    let smoothing = if r.response.smoothing == "none" {
+        "no smoothing".to_string()
+    } else {
+        format!("{}-octave smoothing", r.response.smoothing)
+    };
+    let gate = r.response.gate.map_or(String::new(), |g| {
+        format!(
+            " The gate resolves the response from {} to {}; outside that range it is greyed out.",
+            hz(g.resolution_hz),
+            hz(g.resolved_to_hz)
+        )
+    });
+    let delay = format!("{} ms", num(r.delay_s * 1e3, 3));
+    match plot_stem(&p.file) {
+        "response" => format!(
+            "Frequency response: level against frequency with {smoothing}; {}.{gate}",
+            r.response.magnitude_reference
+        ),
+        "phase" => format!(
+            "Phase against frequency with the delay of {delay} removed, beside the minimum phase that the magnitude implies.{gate}"
+        ),
+        "group-delay" => format!(
+            "Group delay against frequency, relative to the arrival at {delay}, with the excess group delay beyond minimum phase.{gate}"
+        ),
+        "distortion" => format!(
+            "Harmonic distortion: each order from the 2nd to the {} relative to the fundamental, and the total (THD), against the excitation frequency; an order is drawn only where it stands clear of its own noise floor (dashed).",
+            ordinal(m.settings.harmonics)
+        ),
+        "decay" => "Decay curves per octave band (Schroeder backward integration) with the fitted lines of EDT, T20 and T30.".to_string(),
+        "reverberation" => "Reverberation time per band: EDT, T20 and T30 against frequency; missing points are bands where the value could not be measured.".to_string(),
+        "decay-spectrum" => "Decay spectrum: the gated response as the window's start moves later, showing which frequencies ring on.".to_string(),
+        "spectrogram" => "Spectrogram of the decay: level in time and frequency after the direct sound, showing how each part of the spectrum dies away.".to_string(),
+        "impulse" => format!(
+            "Impulse response against time, peak at {delay} after the recording's start."
+        ),
+        other => format!("The plot {other}."),
+    }
+}
+
+fn ordinal(n: u32) -> String {
+    match n {
+        2 => "2nd".into(),
+        3 => "3rd".into(),
+        n => format!("{n}th"),
+    }
+}
+
+/// A band parameter as shown: (results.json name, label, unit, scale,
+/// decimals, value).
+type Column = (
+    &'static str,
+    &'static str,
+    &'static str,
+    f64,
+    usize,
+    fn(&BandResult) -> Option<f64>,
+);
+
+/// The band table's columns.
+pub const BAND_COLUMNS: [Column; 8] = [
+    ("edt_s", "EDT", "s", 1.0, 2, |b| b.edt_s),
+    ("t20_s", "T20", "s", 1.0, 2, |b| b.t20_s),
+    ("t30_s", "T30", "s", 1.0, 2, |b| b.t30_s),
+    ("c50_db", "C50", "dB", 1.0, 1, |b| b.c50_db),
+    ("c80_db", "C80", "dB", 1.0, 1, |b| b.c80_db),
+    ("d50", "D50", "", 1.0, 2, |b| b.d50),
+    ("ts_s", "Ts", "ms", 1000.0, 0, |b| b.ts_s),
+    ("inr_db", "INR", "dB", 1.0, 0, |b| b.inr_db),
+];
+
+/// One table of bands with notes for missing and doubtful values.
+fn band_table(
+    out: &mut String,
+    rows: &[&BandResult],
+    fraction: &str,
+    name: &str,
+    n: &mut Counters,
+) {
+    n.table += 1;
+    let mut notes: Vec<String> = Vec::new();
+    let mut note = |text: &str| -> usize {
+        match notes.iter().position(|t| t == text) {
+            Some(i) => i + 1,
+            None => {
+                notes.push(text.to_string());
+                notes.len()
+            }
+        }
+    };
+    let _ = write!(
+        out,
+        "<table class=\"bands\" data-fraction=\"{}\"><caption>Table {}. Per {name} band</caption><thead><tr><th scope=\"col\">Band</th>",
+        esc(fraction),
+        n.table
+    );
+    for (_, label, unit, ..) in BAND_COLUMNS {
+        let _ = write!(
+            out,
+            "<th scope=\"col\" class=\"num\">{label}{}</th>",
+            if unit.is_empty() {
+                String::new()
+            } else {
+                format!(" <span class=\"unit\">({unit})</span>")
+            }
+        );
+    }
+    out.push_str("</tr></thead><tbody>");
+    for b in rows {
+        let mut cells = String::new();
+        let mut used: Vec<&str> = Vec::new();
+        for (keyname, label, _, scale, dec, get) in BAND_COLUMNS {
+            match get(b) {
+                Some(v) => {
+                    let _ = write!(
+                        cells,
+                        "<td class=\"num\" data-key=\"{keyname}\">{}</td>",
+                        num(v * scale, dec)
+                    );
+                }
+                None => {
+                    let reason = advice::reason_for(&b.warnings, label);
+                    if let Some(r) = reason {
+                        used.push(r);
+                    }
+                    let k = note(reason.map_or("not measured (no reason recorded)", |r| {
+                        advice::without_label(r)
+                    }));
+                    let _ = write!(
+                        cells,
+                        "<td class=\"num missing\" data-key=\"{keyname}\">—<sup>{k}</sup></td>"
+                    );
+                }
+            }
+        }
+        // warnings that withheld nothing (a curved decay) mark the band
+        let marks: Vec<String> = b
+            .warnings
+            .iter()
+            .filter(|w| !used.contains(&w.as_str()))
+            .map(|w| note(advice::without_label(w)).to_string())
+            .collect();
+        let _ = write!(
+            out,
+            "<tr data-center-hz=\"{}\" data-fraction=\"{}\"><th scope=\"row\">{}{}</th>{cells}</tr>",
+            b.center_hz,
+            esc(&b.fraction),
+            esc(&hz(b.center_hz)),
+            if marks.is_empty() {
+                String::new()
+            } else {
+                format!("<sup>{}</sup>", marks.join(","))
+            }
+        );
+    }
+    out.push_str("</tbody></table>");
+    if !notes.is_empty() {
+        out.push_str("<ol class=\"notes\">");
+        for t in &notes {
+            let _ = write!(out, "<li>{}</li>", esc(t));
+        }
+        out.push_str("</ol>");
+    }
+}
+
+/// What was measured, where and how; the raw files and their hashes.
+fn about(out: &mut String, f: &Folder, m: &Manifest) {
+    out.push_str("<h3>What was measured, and how</h3><table class=\"facts\"><tbody>");
+    let mut row = |k: &str, v: &str| {
+        let _ = write!(
+            out,
+            "<tr><th scope=\"row\">{}</th><td>{}</td></tr>",
+            esc(k),
+            esc(v)
+        );
+    };
+    row("Folder", &f.name);
+    row(
+        "Source",
+        &format!("{} ({})", m.source.description, source_kind(&m.source.kind)),
+    );
+    if let Some(p) = &m.source.recording_path {
+        row("Recording given", p);
+    }
+    if let Some(p) = &m.source.sweep_path {
+        row("Sweep given", p);
+    }
+    if let Some(d) = &m.measurement {
+        row("Device", &d.device);
+        row("Streams", &d.stream);
+        row(
+            "Output channels",
+            &d.output_channels
+                .iter()
+                .map(|c| c.to_string())
+                .collect::<Vec<_>>()
+                .join(", "),
+        );
+        if let Some(r) = d.reference_channel {
+            row("Loopback reference", &format!("input {r}"));
+        }
+        row(
+            "Sweeps averaged",
+            &format!("{} (gap {} s)", d.repeat, trim(d.gap_s, 3)),
+        );
+        row(
+            "Lost frames",
+            &if d.lost_frames == 0 {
+                "none".to_string()
+            } else {
+                format!("{} (the measurement is not valid)", d.lost_frames)
+            },
+        );
+    }
+    row("Measured", &m.created_utc);
+    let s = &m.sweep;
+    row(
+        "Sweep",
+        &format!(
+            "exponential, {}–{}, {} s (asked {} s) then {} s of silence, peak {} dBFS",
+            hz(s.params.start_hz),
+            hz(s.params.end_hz),
+            num(s.length_s, 3),
+            trim(s.params.requested_length_s, 3),
+            trim(s.params.tail_s, 3),
+            trim(s.params.level_dbfs, 1)
+        ),
+    );
+    row("Sample rate", &format!("{} Hz", m.sample_rate_hz));
+    row(
+        "Channel",
+        &format!(
+            "{} of {} ({})",
+            m.channel, m.recording_channels, m.recording_encoding
+        ),
+    );
+    let st = &m.settings;
+    let mut settings = vec![
+        format!("smoothing {}", st.smoothing),
+        if st.harmonics > 1 {
+            format!("harmonics 2 to {}", st.harmonics)
+        } else {
+            "no harmonics".to_string()
+        },
+        if st.bands { "bands" } else { "no bands" }.to_string(),
+        if st.plots { "plots" } else { "no plots" }.to_string(),
+    ];
+    if let Some(v) = st.volts_per_fs {
+        settings.push(format!("{} V RMS at full scale", trim(v, 4)));
+    }
+    if let Some(d) = st.distance_m {
+        settings.push(format!("microphone at {} m", trim(d, 3)));
+    }
+    row("Settings", &settings.join(", "));
+    if let Some(c) = &st.calibration {
+        row("Calibration", &format!("{} (SHA-256 {})", c.name, c.sha256));
+    }
+    if let Some(c) = &st.mic_correction {
+        row(
+            "Microphone correction",
+            &format!("{} (SHA-256 {})", c.name, c.sha256),
+        );
+    }
+    row("Tool", &format!("{} {}", m.tool, m.tool_version));
+    row("Command", &m.command_line.join(" "));
+    for p in &m.problems {
+        row("Problem", p);
+    }
+    out.push_str("</tbody></table>");
+    files_table(out, f, "raw");
+}
+
+fn source_kind(k: &str) -> &str {
+    match k {
+        "virtual" => "simulated by gliss demo, not a real measurement",
+        "file" => "a recording analysed with gliss analyze",
+        "device" => "measured through a sound card with gliss measure",
+        other => other,
+    }
+}
+
+/// The files of `role` with their SHA-256 and whether they still match.
+fn files_table(out: &mut String, f: &Folder, role: &str) {
+    let files: Vec<&FileCheck> = f.files.iter().filter(|c| c.role == role).collect();
+    if files.is_empty() {
+        return;
+    }
+    let _ = write!(
+        out,
+        "<table class=\"files\"><caption>The {} files and their SHA-256</caption><thead><tr><th scope=\"col\">File</th><th scope=\"col\">SHA-256 (manifest)</th><th scope=\"col\">Check</th></tr></thead><tbody>",
+        if role == "raw" { "raw" } else { "input" }
+    );
+    for c in files {
+        let (class, words) = match c.state {
+            FileState::Matches => ("ok", "matches"),
+            FileState::Differs => ("bad", "differs"),
+            FileState::Missing => ("bad", "missing"),
+        };
+        let _ = write!(
+            out,
+            "<tr><td class=\"file\">{}</td><td class=\"hash\">{}</td><td class=\"{class}\">{words}</td></tr>",
+            esc(&c.name),
+            esc(&c.sha256)
+        );
+    }
+    out.push_str("</tbody></table>");
+}
+
+/// The section of a comparison folder.
+fn comparison_section(
+    out: &mut String,
+    f: &Folder,
+    manifest: &serde_json::Value,
+    c: &Comparison,
+    n: &mut Counters,
+) {
+    let _ = write!(
+        out,
+        "<p class=\"lede\">{}</p>",
+        esc(&comparison_title(manifest, c))
+    );
+    out.push_str("<h3>Key numbers</h3><dl class=\"keys\">");
+    key(
+        out,
+        "Compared",
+        &format!("{} measurements", c.inputs.len()),
+        &format!(
+            "reference: {}",
+            c.inputs.first().map_or("none", comparison::Input::name)
+        ),
+    );
+    let (audible, other, missing) = comparison::tally(c);
+    key(
+        out,
+        "Audible changes",
+        &audible.to_string(),
+        "band values whose change exceeds the just-noticeable difference",
+    );
+    key(
+        out,
+        "No clear audible change",
+        &other.to_string(),
+        "within the just-noticeable difference or the measurement's uncertainty",
+    );
+    if missing > 0 {
+        key(
+            out,
+            "Not compared",
+            &missing.to_string(),
+            "band values missing in one of the measurements",
+        );
+    }
+    out.push_str("</dl>");
+    // the inputs
+    out.push_str("<table class=\"files\"><caption>The compared measurements</caption><thead><tr><th scope=\"col\">#</th><th scope=\"col\">Label</th><th scope=\"col\">Folder</th><th scope=\"col\">SHA-256 (as recorded)</th></tr></thead><tbody>");
+    for (i, input) in c.inputs.iter().enumerate() {
+        let _ = write!(
+            out,
+            "<tr><td>{}</td><td>{}{}</td><td class=\"file\">{}</td><td class=\"hash\">{}</td></tr>",
+            i + 1,
+            esc(input.label.as_deref().unwrap_or("")),
+            if i == 0 {
+                " <span class=\"muted\">(reference)</span>"
+            } else {
+                ""
+            },
+            esc(&input.folder),
+            esc(input.sha256.as_deref().unwrap_or("—"))
+        );
+    }
+    out.push_str("</tbody></table>");
+    warnings(out, &c.warnings, &[], f);
+    if c.bands.is_empty() {
+        out.push_str(
+            "<h3>Band by band</h3><p class=\"muted\">The comparison holds no band parameters.</p>",
+        );
+    } else {
+        out.push_str("<h3>Band by band</h3><p class=\"muted\">Each change against the reference, judged against the just-noticeable difference of ISO 3382-1 Annex A and against the measurement's own uncertainty. \"Audible change\" means it exceeds both (or the difference alone where no uncertainty was estimated).</p>");
+        comparison::tables(out, c, &mut n.table);
+    }
+    comparison::absorption(out, c, &mut n.table);
+    if !f.plots.is_empty() {
+        out.push_str("<h3>Plots</h3>");
+        for p in &f.plots {
+            let names = c
+                .inputs
+                .iter()
+                .map(|i| i.name().to_string())
+                .collect::<Vec<_>>()
+                .join(", ");
+            let text = match plot_stem(&p.file) {
+                "compare-response" => format!("The frequency responses of {names} overlaid."),
+                "compare-difference" => format!(
+                    "The difference of each response from the reference, {}, in dB against frequency.",
+                    c.inputs
+                        .first()
+                        .map_or("the first", comparison::Input::name)
+                ),
+                "compare-reverberation" => format!("Reverberation time per band of {names}."),
+                other => format!("The plot {other}."),
+            };
+            figure(out, p, &text, n);
+        }
+    }
+    // what was done
+    out.push_str("<h3>How the comparison was made</h3><table class=\"facts\"><tbody>");
+    let mut row = |k: &str, v: &str| {
+        let _ = write!(
+            out,
+            "<tr><th scope=\"row\">{}</th><td>{}</td></tr>",
+            esc(k),
+            esc(v)
+        );
+    };
+    row("Folder", &f.name);
+    let text = |k: &str| manifest.get(k).and_then(|v| v.as_str()).map(str::to_string);
+    if let Some(t) = text("created_utc") {
+        row("Made", &t);
+    }
+    if let Some(v) = text("tool_version") {
+        row(
+            "Tool",
+            &format!("{} {v}", text("tool").unwrap_or_else(|| "gliss".into())),
+        );
+    }
+    if let Some(cl) = manifest.get("command_line").and_then(|v| v.as_array()) {
+        row(
+            "Command",
+            &cl.iter()
+                .filter_map(|v| v.as_str())
+                .collect::<Vec<_>>()
+                .join(" "),
+        );
+    }
+    out.push_str("</tbody></table>");
+}
+
+/// The style sheet: screen and print.
+const STYLE: &str = r#":root {
+  --ink: #1e2428; --muted: #5d666d; --rule: #d5dadd; --panel: #f4f6f7;
+  --accent: #1d4f7a; --warn: #8a5300; --warn-bg: #fbf4e6; --bad: #9b2c2c; --good: #2f6b3a;
+}
+* { box-sizing: border-box; }
+html { font-size: 15px; }
+body { margin: 0 auto; max-width: 64rem; padding: 2rem 2.2rem 3rem; color: var(--ink); background: #fff;
+  font-family: "DejaVu Sans", "Noto Sans", "Liberation Sans", system-ui, sans-serif; line-height: 1.45; }
+h1, h2, h3, h4 { line-height: 1.2; font-weight: 600; }
+h1 { font-size: 1.75rem; margin: 0.2rem 0 0.6rem; }
+h2 { font-size: 1.4rem; margin: 2.6rem 0 0.4rem; padding-bottom: 0.3rem; border-bottom: 2px solid var(--accent); }
+h3 { font-size: 1.1rem; margin: 1.8rem 0 0.6rem; color: var(--accent); }
+h4 { font-size: 1rem; margin: 1.2rem 0 0.4rem; }
+p { margin: 0.4rem 0 0.8rem; }
+a { color: var(--accent); }
+.kicker { margin: 0; text-transform: uppercase; letter-spacing: 0.12em; font-size: 0.75rem; color: var(--muted); }
+.muted, .note, .unit { color: var(--muted); }
+.lede { font-size: 1.05rem; margin-top: 0.2rem; }
+.folder, .file, .hash { font-family: "DejaVu Sans Mono", "Noto Sans Mono", monospace; }
+.folder { font-size: 0.95em; }
+.num-label { color: var(--muted); font-weight: 400; }
+nav.contents { margin-top: 1.2rem; padding: 0.8rem 1.2rem; background: var(--panel); border-left: 3px solid var(--accent); }
+nav.contents h2 { font-size: 1rem; margin: 0 0 0.4rem; border: 0; padding: 0; }
+nav.contents ol { margin: 0; padding-left: 1.4rem; }
+nav.contents li { margin: 0.2rem 0; }
+.tag { font-size: 0.75rem; padding: 0.05rem 0.4rem; border: 1px solid var(--rule); border-radius: 3px; color: var(--muted); }
+.warn-count { font-size: 0.8rem; color: var(--warn); }
+dl.keys { display: grid; grid-template-columns: repeat(auto-fit, minmax(12rem, 1fr)); gap: 0.6rem; margin: 0; }
+.key { border: 1px solid var(--rule); border-radius: 4px; padding: 0.5rem 0.7rem; break-inside: avoid; }
+.key dt { font-size: 0.78rem; text-transform: uppercase; letter-spacing: 0.06em; color: var(--muted); }
+.key dd { margin: 0.1rem 0 0; }
+.key .value { display: block; font-size: 1.3rem; font-weight: 600; font-variant-numeric: tabular-nums; }
+.key .note { display: block; font-size: 0.78rem; line-height: 1.3; }
+.warning { border-left: 3px solid var(--warn); background: var(--warn-bg); padding: 0.4rem 1rem 0.5rem; margin: 0.7rem 0; break-inside: avoid; }
+.warning h4 { margin: 0.3rem 0; color: var(--warn); }
+.warning ul { margin: 0.2rem 0; padding-left: 1.2rem; font-size: 0.9rem; }
+.warning .todo { margin: 0.4rem 0 0.2rem; font-size: 0.9rem; }
+p.ok { color: var(--good); }
+figure { margin: 1.2rem 0 1.6rem; break-inside: avoid; }
+figure img { display: block; width: 100%; height: auto; border: 1px solid var(--rule); }
+figcaption { font-size: 0.88rem; margin-top: 0.4rem; color: var(--ink); }
+figcaption .fig { font-weight: 600; }
+figcaption .file { color: var(--muted); font-size: 0.8rem; margin-left: 0.3rem; }
+table { border-collapse: collapse; width: 100%; margin: 0.6rem 0 1.2rem; font-size: 0.88rem; break-inside: avoid; }
+caption { text-align: left; font-weight: 600; padding: 0 0 0.4rem; }
+th, td { padding: 0.22rem 0.5rem; border-bottom: 1px solid var(--rule); text-align: left; vertical-align: top; }
+thead th { border-bottom: 2px solid var(--ink); font-weight: 600; white-space: nowrap; }
+tbody th { font-weight: 600; white-space: nowrap; }
+td.nowrap { white-space: nowrap; }
+.num { text-align: right; font-variant-numeric: tabular-nums; }
+table.bands tbody tr:nth-child(even) { background: var(--panel); }
+td.missing { color: var(--muted); }
+sup { font-size: 0.7em; color: var(--warn); margin-left: 0.1em; }
+ol.notes { font-size: 0.82rem; color: var(--muted); margin: -0.6rem 0 1.4rem; padding-left: 1.6rem; break-inside: avoid; }
+table.facts th { width: 12rem; color: var(--muted); font-weight: 400; }
+table.files td.hash { font-size: 0.78rem; word-break: break-all; }
+td.ok { color: var(--good); } td.bad { color: var(--bad); font-weight: 600; }
+td.verdict { font-size: 0.85rem; }
+td.verdict.audible { color: var(--bad); font-weight: 600; }
+td.verdict.unsure, td.verdict.small { color: var(--warn); }
+td.verdict.none, td.verdict.na { color: var(--muted); }
+footer { margin-top: 3rem; padding-top: 0.6rem; border-top: 1px solid var(--rule); font-size: 0.8rem; color: var(--muted); }
+@media print {
+  @page { size: A4; margin: 16mm 15mm 18mm; }
+  html { font-size: 10pt; }
+  body { max-width: none; padding: 0; }
+  section.measurement + section.measurement { break-before: page; }
+  h2, h3, h4 { break-after: avoid; }
+  figure, table, .warning, .key, ol.notes { break-inside: avoid; }
+  figure img { max-height: 105mm; width: auto; max-width: 100%; margin: 0 auto; }
+  figure { margin: 0.6rem 0 1rem; }
+  a { color: inherit; text-decoration: none; }
+  nav.contents { background: none; border: 1px solid var(--rule); }
+  thead { display: table-header-group; }
+  tbody tr:nth-child(even) { background: none; }
+}
+"#;
