@@ -51,6 +51,9 @@ pub fn print_summary(out: &str, o: &Outcome) {
         a.peak_dbfs,
         a.peak_to_noise_db
     );
+    if let Some(t) = &o.target {
+        println!("{}", session::target_summary(t));
+    }
     if a.warnings.is_empty() {
         println!("no warnings");
     }
@@ -66,6 +69,9 @@ pub fn run(a: Args) -> Result<()> {
     let mic = a.output.mic_correction()?;
     config.mic_correction = mic.as_ref().map(|m| m.0.clone());
     let design = a.sweep.design()?;
+    let target = a
+        .output
+        .target((design.params.start_hz, design.params.end_hz))?;
     let mut system = VirtualSystem {
         seed: a.seed,
         ..VirtualSystem::default()
@@ -125,6 +131,7 @@ pub fn run(a: Args) -> Result<()> {
         reference: None,
         measurement: None,
         drive,
+        target,
     };
     let outcome = session::run(&job)?;
     print_summary(&common::show(&a.out), &outcome);

@@ -6,6 +6,7 @@ mod calibrate;
 mod common;
 mod demo;
 mod devices;
+mod export;
 mod measure;
 mod sweep;
 
@@ -46,6 +47,8 @@ enum Command {
     Demo(demo::Args),
     /// Turn a recording of a sound calibrator's tone into a calibration file for --calibration.
     Calibrate(calibrate::Args),
+    /// Write one curve of a measurement folder (response, distortion, bands, impulse) as CSV or JSON.
+    Export(export::Args),
 }
 
 /// Parses the command line, runs the command, prints any error once.
@@ -65,6 +68,7 @@ pub fn main() -> ExitCode {
         Command::Analyze(a) => analyze::run(a),
         Command::Demo(a) => demo::run(a),
         Command::Calibrate(a) => calibrate::run(a),
+        Command::Export(a) => export::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
