@@ -17,48 +17,23 @@ pub struct Correction {
 impl Correction {
     /// Parses the text of a correction file; an error names the line.
     pub fn parse(text: &str) -> std::result::Result<Correction, String> {
-        let mut points = Vec::new();
-        let mut lines = Vec::new();
-        for (i, raw) in text.lines().enumerate() {
-            let n = i + 1;
-            let line = raw.trim();
-            if line.is_empty() || line.starts_with(['#', ';', '*']) {
-                continue;
-            }
-            let fields: Vec<&str> = line
-                .split(|c: char| c.is_whitespace() || c == ',')
-                .filter(|s| !s.is_empty())
-                .collect();
-            let nums: Option<Vec<f64>> = fields.iter().map(|s| s.parse::<f64>().ok()).collect();
-            let nums = match nums {
-                Some(v) if (2..=3).contains(&v.len()) && v.iter().all(|x| x.is_finite()) => v,
-                _ => {
-                    return Err(format!(
-                        "line {n} is not \"frequency dB\" or \"frequency dB phase\" (read {line:?}); mark comments with #"
-                    ));
-                }
-            };
-            if nums[0] <= 0.0 {
-                return Err(format!(
-                    "line {n}: the frequency {} Hz must be above 0",
-                    nums[0]
-                ));
-            }
-            if let Some(&(prev, _, _)) = points.last() {
-                if nums[0] <= prev {
-                    return Err(format!(
-                        "line {n}: the frequency {} Hz does not increase (the line before has {prev} Hz); sort the file by frequency",
-                        nums[0]
-                    ));
-                }
-            }
-            points.push((nums[0], nums[1], nums.get(2).copied().unwrap_or(0.0)));
-            lines.push(n);
-        }
-        if points.len() < 2 {
-            return Err("holds fewer than two frequency–dB lines; it needs at least two".into());
-        }
-        Ok(Correction { points, lines })
+        let rows = super::curve_file::parse(
+            text,
+            super::curve_file::Layout {
+                columns: (2, 3),
+                expect: "\"frequency dB\" or \"frequency dB phase\"",
+                header: false,
+                same_columns: false,
+            },
+        )?;
+        Ok(Correction {
+            points: rows
+                .rows
+                .iter()
+                .map(|v| (v[0], v[1], v.get(2).copied().unwrap_or(0.0)))
+                .collect(),
+            lines: rows.lines,
+        })
     }
 
     /// (dB, degrees) at f, interpolated on log f; end values held outside.
@@ -73,7 +48,7 @@ impl Correction {
         }
         let k = p.partition_point(|q| q.0 <= f);
         let (a, b) = (p[k - 1], p[k]);
-        let u = (f / a.0).ln() / (b.0 / a.0).ln();
+        let u = super::curve_file::log_fraction(f, a.0, b.0);
         (a.1 + u * (b.1 - a.1), a.2 + u * (b.2 - a.2))
     }
 

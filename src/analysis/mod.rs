@@ -12,6 +12,7 @@ pub mod calibration;
 pub mod compare;
 pub mod correction;
 pub mod csd;
+pub mod curve_file;
 pub mod decay;
 pub mod delay;
 pub mod distortion;
@@ -22,6 +23,7 @@ pub mod response;
 pub mod room;
 pub mod smoothing;
 pub mod spectrogram;
+pub mod target;
 
 use crate::deconv;
 use crate::error::{Error, Result};
@@ -196,7 +198,7 @@ pub fn analyze(
     // The linear response window: from `pre` before the peak (at most half
     // the gap to the 2nd harmonic, at most 100 ms) to the end of the
     // recorded tail, never reaching round to the harmonics.
-    let pre = ((0.5 * h2_gap as f64).min(0.1 * fs)).round() as usize;
+    let pre = linear_pre(design);
     let start = ipeak as isize - pre as isize;
     let tail_end = recording.len().saturating_sub(design.sweep_samples);
     let min_end = ipeak + (0.05 * fs) as usize;
@@ -225,13 +227,9 @@ pub fn analyze(
     }
 
     let max_order = config.harmonics.min(distortion::MAX_ORDER);
-    let windows = distortion::harmonic_windows(design, ipeak, pre, max_order);
-    let longest = windows.iter().map(|w| w.len).fold(len, usize::max);
-    let fft_len = response::spectrum_len(longest, fs, f1);
+    let fft_len = linear_fft_len(design, ipeak, len, max_order);
     let grid = smoothing::log_grid(f1, f2);
-    let (mut spec, df) =
-        response::delay_free_spectrum(&ir, start as f64, delay_samples, fs, fft_len);
-    deconv::remove_low_edge(&mut spec, df, f1);
+    let (spec, df) = linear_spectrum(&ir, start as f64, delay_samples, fs, fft_len, f1);
     // with a gate, the response and its phase come from the gated part
     // alone; distortion and bands keep the whole linear response
     let (gated, gate_info) = match config.gate {
@@ -240,9 +238,7 @@ pub fn analyze(
             // a gate longer than the analysed response adds nothing
             let glen = glen.min(fft_len);
             let cut = deconv::cut(&h, gs, glen, fade_in.min(glen), fade_out.min(glen));
-            let (mut gspec, _) =
-                response::delay_free_spectrum(&cut, gs as f64, delay_samples, fs, fft_len);
-            deconv::remove_low_edge(&mut gspec, df, f1);
+            let (gspec, _) = linear_spectrum(&cut, gs as f64, delay_samples, fs, fft_len, f1);
             (Some(gspec), Some(info))
         }
         None => (None, None),
@@ -251,13 +247,7 @@ pub fn analyze(
     if let Some(c) = &config.mic_correction {
         // the microphone's own deviation out of the response and its phase
         // (distortion and bands keep the uncorrected response)
-        for (k, v) in resp_spec.iter_mut().enumerate().skip(1) {
-            let (db, deg) = c.at(k as f64 * df);
-            *v *= rustfft::num_complex::Complex::from_polar(
-                10f64.powf(-db / 20.0),
-                -deg.to_radians(),
-            );
-        }
+        remove_correction(&mut resp_spec, df, c);
         if let Some(w) = c.coverage_warning(f1, f2) {
             warnings.push(w);
         }
@@ -371,6 +361,136 @@ pub fn analyze(
         peak_to_noise_db,
         warnings,
     })
+}
+
+/// Samples the linear impulse response window starts before its peak: half
+/// the gap to the 2nd harmonic response, at most 100 ms.
+pub fn linear_pre(design: &SweepDesign) -> usize {
+    let fs = design.fs();
+    let h2_gap = (design.harmonic_offset_s(2) * fs).round() as usize;
+    ((0.5 * h2_gap as f64).min(0.1 * fs)).round() as usize
+}
+
+/// FFT length of the spectra of an analysis: long enough for the linear
+/// response of `linear_len` samples (peak at `ipeak` of the circular
+/// response) and every harmonic window up to `max_order`, with bins as
+/// dense as the log grid at the sweep's start.
+pub fn linear_fft_len(
+    design: &SweepDesign,
+    ipeak: usize,
+    linear_len: usize,
+    max_order: u32,
+) -> usize {
+    let windows = distortion::harmonic_windows(design, ipeak, linear_pre(design), max_order);
+    let longest = windows.iter().map(|w| w.len).fold(linear_len, usize::max);
+    response::spectrum_len(longest, design.fs(), design.params.start_hz)
+}
+
+/// The spectrum of an impulse response as the analysis takes it: on the
+/// bins of an `fft_len`-point FFT, with the phase referred to `delay`
+/// (samples; `ir[0]` lies at `start` samples) and the deconvolution's low
+/// band limit at `f1` divided out ([`deconv::remove_low_edge`]). Returns
+/// the bins and their spacing in Hz.
+pub fn linear_spectrum(
+    ir: &[f64],
+    start: f64,
+    delay: f64,
+    fs: f64,
+    fft_len: usize,
+    f1: f64,
+) -> (Vec<rustfft::num_complex::Complex<f64>>, f64) {
+    let (mut spec, df) = response::delay_free_spectrum(ir, start, delay, fs, fft_len);
+    deconv::remove_low_edge(&mut spec, df, f1);
+    (spec, df)
+}
+
+/// Where a linear impulse response lies and how the analysis that made it
+/// was set up: what [`response_from_impulse`] needs to take the response
+/// again from it (all of it is in a measurement folder's results.json and
+/// manifest.json).
+#[derive(Debug, Clone, Copy)]
+pub struct ImpulsePlacement<'a> {
+    /// The sweep.
+    pub design: &'a SweepDesign,
+    /// Time of the first sample after the recording's start, s.
+    pub start_s: f64,
+    /// Arrival of the peak after the recording's start, s (`delay_s`).
+    pub delay_s: f64,
+    /// Highest harmonic order the analysis separated (it sets the FFT length).
+    pub harmonics: u32,
+    /// The gate the response was taken through, if any.
+    pub gate: Option<gate::GateInfo>,
+}
+
+/// The frequency response from the linear impulse response `ir` (as
+/// written to impulse.wav) by the stages [`analyze`] uses —
+/// [`linear_fft_len`], [`linear_spectrum`], the gate, a microphone
+/// correction, [`response::on_grid`] — at any smoothing. With the
+/// analysis's own smoothing it gives the analysis's response again (to
+/// the rounding of impulse.wav to 32-bit float). Fails when a gate reaches
+/// into the tapered ends of `ir`.
+pub fn response_from_impulse(
+    ir: &[f64],
+    at: ImpulsePlacement<'_>,
+    correction: Option<&correction::Correction>,
+    smoothing: Smoothing,
+) -> Result<FrequencyResponse> {
+    let design = at.design;
+    let fs = design.fs();
+    let (f1, f2) = (design.params.start_hz, design.params.end_hz);
+    if ir.is_empty() {
+        return Err(Error::input(
+            "the impulse response is empty; analyse the recording again",
+        ));
+    }
+    let start = (at.start_s * fs).round() as isize;
+    let pre = linear_pre(design);
+    let ipeak = (start + pre as isize).max(0) as usize;
+    let delay_samples = at.delay_s * fs;
+    let max_order = at.harmonics.clamp(1, distortion::MAX_ORDER);
+    let fft_len = linear_fft_len(design, ipeak, ir.len(), max_order);
+    let (mut spec, df) = match at.gate {
+        None => linear_spectrum(ir, start as f64, delay_samples, fs, fft_len, f1),
+        Some(g) => {
+            let fixed = gate::Gate::Fixed {
+                start_s: g.start_s,
+                end_s: g.end_s,
+            };
+            // the gate as the analysis cut it, in the coordinates of `ir`
+            // (whose peak is `pre` samples in)
+            let (gs, glen, fade_in, fade_out, _) = gate::window(ir, pre, fs, f2, fixed);
+            let glen = glen.min(fft_len);
+            let taper_in = pre / 2;
+            let taper_out = (ir.len() / 20).max(8).min(ir.len());
+            if gs < taper_in as isize || gs as usize + glen > ir.len() - taper_out {
+                return Err(Error::input(format!(
+                    "the gate ({:.2} to {:.2} ms) reaches into the tapered ends of the impulse response, so the gated response cannot be taken again from it; analyse the recording again with the smoothing you need",
+                    g.start_s * 1e3,
+                    g.end_s * 1e3
+                )));
+            }
+            let cut = deconv::cut(ir, gs, glen, fade_in.min(glen), fade_out.min(glen));
+            linear_spectrum(&cut, (start + gs) as f64, delay_samples, fs, fft_len, f1)
+        }
+    };
+    if let Some(c) = correction {
+        remove_correction(&mut spec, df, c);
+    }
+    let grid = smoothing::log_grid(f1, f2);
+    Ok(response::on_grid(&spec, df, &grid, smoothing, (f1, f2)))
+}
+
+/// Removes a microphone correction's deviation (dB and degrees) from a
+/// spectrum on bins `df` apart.
+pub fn remove_correction(
+    spec: &mut [rustfft::num_complex::Complex<f64>],
+    df: f64,
+    c: &correction::Correction,
+) {
+    for (k, v) in spec.iter_mut().enumerate().skip(1) {
+        let (db, deg) = c.at(k as f64 * df);
+        *v *= rustfft::num_complex::Complex::from_polar(10f64.powf(-db / 20.0), -deg.to_radians());
+    }
 }
 
 /// Peak energy of h over the mean energy between the end of the linear

@@ -58,6 +58,9 @@ pub fn run(a: Args) -> Result<()> {
         ));
     }
     let design = sweep_file::load_design(&a.sweep)?;
+    let target = a
+        .output
+        .target((design.params.start_hz, design.params.end_hz))?;
     let (stimulus_bytes, stimulus) = read(&a.sweep, "the sweep")?;
     let (recording_bytes, recording) = read(&a.recording, "the recording")?;
     let title = a
@@ -100,6 +103,7 @@ pub fn run(a: Args) -> Result<()> {
         },
         measurement: None,
         drive,
+        target,
     };
     let outcome = session::run(&job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);

@@ -7,8 +7,10 @@ use clap::Args as ClapArgs;
 use crate::analysis::calibration::{Calibration, Drive};
 use crate::analysis::correction::Correction;
 use crate::analysis::gate::Gate;
+use crate::analysis::target::Target;
 use crate::analysis::{AnalysisConfig, Smoothing, distortion};
 use crate::error::{Error, Result};
+use crate::session::TargetJob;
 use crate::session::folder::sha256_hex;
 use crate::session::records::FileEntry;
 use crate::signal::sweep::{SweepDesign, SweepParams};
@@ -138,6 +140,27 @@ pub struct OutputArgs {
     /// Needs --calibration and --volts-per-fs.
     #[arg(long, value_name = "M", allow_hyphen_values = true)]
     pub distance: Option<String>,
+    /// A target curve to compare the response with: lines of
+    /// `frequency_hz target_db [lower_db [upper_db]]` (CSV or spaces, #
+    /// comments, an optional header line), the tolerances in dB below and
+    /// above the target (one column: ±). Interpolated linearly in dB
+    /// against log frequency. By default the response is level-aligned to
+    /// the target first (its level re the sweep is arbitrary): the mean
+    /// difference over the range is taken out and reported as
+    /// level_offset_db. results.json gets `target` (max and mean
+    /// deviation, share within tolerance, worst frequency); the response
+    /// plot draws the target and its tolerance band.
+    #[arg(long, value_name = "FILE.csv")]
+    pub target: Option<std::path::PathBuf>,
+    /// The range compared with the target, LO,HI in Hz, e.g. 50,10000
+    /// [default: where both the target and the sweep are]. Needs --target.
+    #[arg(long, value_name = "LO,HI")]
+    pub target_range: Option<String>,
+    /// Compare the levels with the target as they are, without aligning
+    /// (for a target in dB SPL with --calibration, or in dB re the sweep).
+    /// Needs --target.
+    #[arg(long)]
+    pub target_absolute: bool,
     /// Skip the reverberation and energy parameters per octave and
     /// one-third-octave band (the speaker profile's default).
     #[arg(long, conflicts_with = "bands")]
@@ -262,6 +285,56 @@ impl OutputArgs {
             Error::input(format!("the microphone correction {}: {m}", path.display()))
         })?;
         Ok(Some((c, entry)))
+    }
+}
+
+impl OutputArgs {
+    /// The target curve, parsed and checked against the sweep band
+    /// `band` (Hz), with its path and SHA-256 for the manifest.
+    pub fn target(&self, band: (f64, f64)) -> Result<Option<TargetJob>> {
+        let Some(path) = &self.target else {
+            if self.target_range.is_some() || self.target_absolute {
+                let which = if self.target_range.is_some() {
+                    "--target-range"
+                } else {
+                    "--target-absolute"
+                };
+                return Err(Error::parameter(format!(
+                    "{which} needs --target FILE.csv: the target curve to compare the response with"
+                )));
+            }
+            return Ok(None);
+        };
+        let range = self
+            .target_range
+            .as_deref()
+            .map(|r| {
+                let parts: Vec<&str> = r.split(',').map(str::trim).collect();
+                let nums: Option<Vec<f64>> = (parts.len() == 2)
+                    .then(|| parts.iter().map(|p| p.parse::<f64>().ok()).collect())
+                    .flatten();
+                match nums.as_deref() {
+                    Some(&[lo, hi]) if lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo => {
+                        Ok((lo, hi))
+                    }
+                    _ => Err(Error::parameter(format!(
+                        "--target-range {r:?} is not LO,HI in Hz with 0 < LO < HI; give e.g. --target-range 50,10000"
+                    ))),
+                }
+            })
+            .transpose()?;
+        let (bytes, file) = read_input(path)?;
+        let text = String::from_utf8_lossy(&bytes);
+        let target = Target::parse(&text)
+            .map_err(|m| Error::input(format!("the target {}: {m}", path.display())))?;
+        let job = TargetJob {
+            target,
+            file,
+            range,
+            absolute: self.target_absolute,
+        };
+        job.resolve_range(band)?;
+        Ok(Some(job))
     }
 }
 

@@ -69,6 +69,9 @@ pub fn print_summary(out: &str, o: &Outcome) {
         a.peak_dbfs,
         a.peak_to_noise_db
     );
+    if let Some(t) = &o.target {
+        println!("{}", session::target_summary(t));
+    }
     if a.warnings.is_empty() {
         println!("no warnings");
     }
@@ -95,6 +98,9 @@ fn measure_one(
             a.bits
         ))
     })?;
+    let target = a
+        .output
+        .target((design.params.start_hz, design.params.end_hz))?;
     let stimulus = design.generate();
     let stop = std::sync::atomic::AtomicBool::new(false);
     let take = system.play_record(
@@ -137,6 +143,7 @@ fn measure_one(
         reference: None,
         measurement: None,
         drive,
+        target,
     };
     session::run(&job)
 }

@@ -194,6 +194,9 @@ pub fn run(a: Args) -> Result<()> {
     let calibration = a.output.calibration()?;
     let drive = a.output.drive()?;
     let design = a.sweep.design()?;
+    let target = a
+        .output
+        .target((design.params.start_hz, design.params.end_hz))?;
     let channel = one_based(a.channel, "--channel")?;
     let reference = a
         .reference
@@ -260,6 +263,7 @@ pub fn run(a: Args) -> Result<()> {
         calibration,
         drive,
         source_kind: if is_virtual { "virtual" } else { "soundcard" }.into(),
+        target,
     };
     measure::check(&job, device.as_ref())?;
     // Ctrl-C stops the measurement instead of killing the process, so that

@@ -8,6 +8,7 @@ mod common;
 mod compare;
 mod demo;
 mod devices;
+mod export;
 mod measure;
 mod report;
 mod sweep;
@@ -55,6 +56,8 @@ enum Command {
     Calibrate(calibrate::Args),
     /// Write one self-contained HTML report (plots embedded, prints on A4) of measurement folders.
     Report(report::Args),
+    /// Write one curve of a measurement folder (response, distortion, bands, impulse) as CSV or JSON.
+    Export(export::Args),
 }
 
 /// Parses the command line, runs the command, prints any error once.
@@ -77,6 +80,7 @@ pub fn main() -> ExitCode {
         Command::Average(a) => average::run(a),
         Command::Compare(a) => compare::run(a),
         Command::Report(a) => report::run(a),
+        Command::Export(a) => export::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -70,6 +70,7 @@ pub fn overlay_png(
         true,
         None,
         &series,
+        None,
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
@@ -117,6 +118,7 @@ pub fn difference_png(
         true,
         None,
         &series,
+        None,
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
@@ -275,6 +277,7 @@ pub fn average_response_png(
         true,
         None,
         &series,
+        None,
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;

@@ -185,7 +185,90 @@ fn db_range(values: &[f64], step: f64, min_span: f64) -> (f64, f64) {
     (bottom, top)
 }
 
-/// Draws the frequency response (magnitude above, phase below) to a PNG.
+/// Colour of a target curve and its tolerance band.
+pub const TARGET: RGBColor = RGBColor(40, 40, 40);
+/// Fill of a target's tolerance band.
+pub const TOLERANCE: RGBColor = RGBColor(110, 170, 110);
+
+/// A target curve to draw over a response, in the plotted curve's units,
+/// with its legend entry.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TargetOverlay {
+    /// The target and its tolerance band on the response's grid.
+    pub curve: crate::analysis::target::TargetCurve,
+    /// Legend entry of the target line (the band's is "tolerance").
+    pub label: String,
+}
+
+/// Draws a target on `chart` (x in Hz, y in dB): its tolerance band as a
+/// light fill behind, the target as a dark dashed line, each with a legend
+/// entry ("tolerance"; the overlay's label). Any chart with those axes
+/// can call it (the response plot; an overlay of several responses).
+pub fn draw_target<'a, DB, X, Y>(
+    chart: &mut ChartContext<'a, DB, Cartesian2d<X, Y>>,
+    t: &TargetOverlay,
+) -> std::result::Result<(), DrawingAreaErrorKind<DB::ErrorType>>
+where
+    DB: DrawingBackend + 'a,
+    X: Ranged<ValueType = f64>,
+    Y: Ranged<ValueType = f64>,
+{
+    let c = &t.curve;
+    if let Some((lower, upper)) = &c.band_db {
+        let outline: Vec<(f64, f64)> = c
+            .frequency_hz
+            .iter()
+            .zip(upper)
+            .map(|(f, v)| (*f, *v))
+            .chain(
+                c.frequency_hz
+                    .iter()
+                    .zip(lower)
+                    .rev()
+                    .map(|(f, v)| (*f, *v)),
+            )
+            .collect();
+        chart
+            .draw_series(std::iter::once(Polygon::new(
+                outline,
+                TOLERANCE.mix(0.22).filled(),
+            )))?
+            .label("tolerance")
+            .legend(|(x, y)| {
+                Rectangle::new([(x, y - 5), (x + 24, y + 5)], TOLERANCE.mix(0.35).filled())
+            });
+        for edge in [lower, upper] {
+            chart.draw_series(LineSeries::new(
+                c.frequency_hz.iter().zip(edge).map(|(f, v)| (*f, *v)),
+                TOLERANCE.mix(0.6).stroke_width(1),
+            ))?;
+        }
+    }
+    chart
+        .draw_series(DashedLineSeries::new(
+            c.frequency_hz
+                .iter()
+                .zip(&c.target_db)
+                .map(|(f, v)| (*f, *v)),
+            10,
+            6,
+            TARGET.stroke_width(2),
+        ))?
+        .label(t.label.clone())
+        .legend(|(x, y)| {
+            plotters::element::DashedPathElement::new(
+                vec![(x, y), (x + 24, y)],
+                7,
+                4,
+                TARGET.stroke_width(2),
+            )
+        });
+    Ok(())
+}
+
+/// Draws the frequency response (magnitude above, phase below) to a PNG,
+/// with a target and its tolerance band over the magnitude if given.
+#[allow(clippy::too_many_arguments)]
 pub fn response_png(
     path: &Path,
     title: &str,
@@ -194,13 +277,22 @@ pub fn response_png(
     phase_deg: &[f64],
     smoothing: &str,
     resolved: Option<(f64, f64)>,
+    target: Option<&TargetOverlay>,
 ) -> Result<()> {
     let err = plot_error(path);
     let (root, body) = canvas(path, &format!("Frequency response — {title}"))?;
     let (top, bottom) = body.split_vertically((body.dim_in_pixel().1 as f64 * 0.64) as u32);
     let f1 = frequency_hz.first().copied().unwrap_or(20.0);
     let f2 = frequency_hz.last().copied().unwrap_or(20_000.0);
-    let (lo, hi) = db_range(magnitude_db, 10.0, 40.0);
+    let mut levels = magnitude_db.to_vec();
+    if let Some(t) = target {
+        levels.extend(&t.curve.target_db);
+        if let Some((lo, hi)) = &t.curve.band_db {
+            levels.extend(lo);
+            levels.extend(hi);
+        }
+    }
+    let (lo, hi) = db_range(&levels, 10.0, 40.0);
     let smoothing_label = if smoothing == "none" {
         "no smoothing".to_string()
     } else {
@@ -219,6 +311,7 @@ pub fn response_png(
             BLUE,
             format!("magnitude, {smoothing_label}"),
         )],
+        target,
     )
     .map_err(plot_error(path))?;
     draw_log_panel(
@@ -229,6 +322,7 @@ pub fn response_png(
         true,
         resolved,
         &[(frequency_hz, phase_deg, ORANGE, "phase".to_string())],
+        None,
     )
     .map_err(plot_error(path))?;
     root.present().map_err(err)?;
@@ -237,7 +331,8 @@ pub fn response_png(
 
 type Series<'a> = (&'a [f64], &'a [f64], RGBColor, String);
 
-/// One panel with a log-frequency x axis.
+/// One panel with a log-frequency x axis (and a target over it, if given).
+#[allow(clippy::too_many_arguments)]
 fn draw_log_panel(
     area: &DrawingArea<BitMapBackend<'_>, Shift>,
     (f1, f2): (f64, f64),
@@ -246,6 +341,7 @@ fn draw_log_panel(
     x_desc: bool,
     resolved: Option<(f64, f64)>,
     series: &[Series<'_>],
+    target: Option<&TargetOverlay>,
 ) -> std::result::Result<(), Box<dyn std::error::Error>> {
     let mut chart = chart_builder(area, if x_desc { 55 } else { 30 }).build_cartesian_2d(
         (f1..f2)
@@ -289,6 +385,9 @@ fn draw_log_panel(
                 labelled = true;
             }
         }
+    }
+    if let Some(t) = target {
+        draw_target(&mut chart, t)?;
     }
     for (x, y, colour, name) in series {
         let pts = x
@@ -893,6 +992,7 @@ pub fn phase_png(
                 "minimum phase from the magnitude".to_string(),
             ),
         ],
+        None,
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
@@ -950,6 +1050,7 @@ pub fn group_delay_png(
                 "excess group delay (delay included)".to_string(),
             ),
         ],
+        None,
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
@@ -1005,6 +1106,7 @@ pub fn decay_spectrum_png(
         true,
         None,
         &series,
+        None,
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;

@@ -413,6 +413,7 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
         bands,
         broadband,
         warnings: warnings.clone(),
+        target: None,
         average: Some(AverageRecord {
             positions: n,
             sources: job.sources,
@@ -506,6 +507,9 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
             mic_correction: None,
             volts_per_fs: None,
             distance_m: None,
+            target: None,
+            target_range_hz: None,
+            target_absolute: false,
         },
         files,
         measurement: None,

@@ -152,6 +152,8 @@ pub struct MeasureJob {
     pub drive: Option<crate::analysis::calibration::Drive>,
     /// "soundcard" or "virtual".
     pub source_kind: String,
+    /// A target curve to compare the response with.
+    pub target: Option<super::TargetJob>,
 }
 
 /// The signal played: `repeat` sweeps (each with its tail) with `gap`
@@ -254,6 +256,9 @@ fn manifest(
             calibration: m.calibration.as_ref().map(|c| c.1.clone()),
             volts_per_fs: m.drive.map(|d| d.volts_per_fs),
             distance_m: m.drive.and_then(|d| d.distance_m),
+            target: m.target.as_ref().map(|t| t.file.clone()),
+            target_range_hz: m.target.as_ref().and_then(|t| t.range.map(|r| [r.0, r.1])),
+            target_absolute: m.target.as_ref().is_some_and(|t| t.absolute),
         },
         files,
         measurement: rec,
@@ -310,6 +315,9 @@ pub fn check(m: &MeasureJob, device: &dyn PlayRecord) -> Result<()> {
     }
     if m.repeat == 0 {
         return Err(Error::parameter("--repeat must be at least 1"));
+    }
+    if let Some(t) = &m.target {
+        t.resolve_range((m.design.params.start_hz, m.design.params.end_hz))?;
     }
     MeasurementFolder::check(&m.out, false, &[])?;
     Ok(())
@@ -525,6 +533,7 @@ pub fn measure(
         reference: m.reference,
         measurement: Some(record),
         drive: m.drive,
+        target: m.target.clone(),
     };
     let mut outcome = analyse_into(&job, &folder)?;
     // clipping on any input used, by name (the analysis looks at the

@@ -2,6 +2,7 @@
 //! All file I/O of an analysis happens here; the stages it calls are pure.
 
 pub mod compare;
+pub mod export;
 pub mod folder;
 pub mod measure;
 pub mod records;
@@ -9,6 +10,7 @@ pub mod sweep_file;
 
 use std::path::{Path, PathBuf};
 
+use crate::analysis::target::{self, Target};
 use crate::analysis::{self, Analysis, AnalysisConfig, Distortion};
 use crate::error::{Error, Result};
 use crate::plot;
@@ -18,7 +20,7 @@ use crate::signal::wav::{self, SampleEncoding, WavData};
 use folder::MeasurementFolder;
 use records::{
     FileEntry, ImpulseRecord, Manifest, ResponseRecord, Results, SCHEMA_VERSION, SensitivityRecord,
-    Settings, Source,
+    Settings, Source, TargetRecord,
 };
 
 /// Everything needed to analyse one recording into a folder.
@@ -62,6 +64,37 @@ pub struct Job {
     /// The drive voltage and microphone distance for a sensitivity (only
     /// with a calibration).
     pub drive: Option<crate::analysis::calibration::Drive>,
+    /// A target curve to compare the response with.
+    pub target: Option<TargetJob>,
+}
+
+/// A target curve to compare the response with (`--target`).
+#[derive(Debug, Clone)]
+pub struct TargetJob {
+    /// The parsed curve.
+    pub target: Target,
+    /// Its file (path as given, SHA-256).
+    pub file: FileEntry,
+    /// --target-range [low, high] Hz; `None`: the overlap of the target
+    /// and the sweep band.
+    pub range: Option<(f64, f64)>,
+    /// --target-absolute: compare the levels without aligning them.
+    pub absolute: bool,
+}
+
+impl TargetJob {
+    /// The compared range for a sweep band, checked: a range given by the
+    /// user that does not fit is a usage error.
+    pub fn resolve_range(&self, band: (f64, f64)) -> Result<(f64, f64)> {
+        self.target.range(band, self.range).map_err(|m| {
+            let m = format!("the target {}: {m}", self.file.name);
+            if self.range.is_some() {
+                Error::parameter(m)
+            } else {
+                Error::input(m)
+            }
+        })
+    }
 }
 
 /// What a finished job wrote.
@@ -71,6 +104,8 @@ pub struct Outcome {
     pub analysis: Analysis,
     /// Files written, relative to the folder.
     pub files: Vec<String>,
+    /// The deviation from the target curve, with --target.
+    pub target: Option<TargetRecord>,
 }
 
 /// Checks the inputs of a job before any file is written: sample rates,
@@ -103,6 +138,9 @@ pub fn check_inputs(job: &Job) -> Result<Vec<String>> {
                 "the sensitivity holds at the microphone's distance, not at 1 m: give --distance M to refer it to 1 m".to_string(),
             );
         }
+    }
+    if let Some(t) = &job.target {
+        t.resolve_range((job.design.params.start_hz, job.design.params.end_hz))?;
     }
     if job.channel >= rec.channels.len() {
         return Err(Error::input(format!(
@@ -201,12 +239,74 @@ pub fn analyse_into(job: &Job, folder: &MeasurementFolder) -> Result<Outcome> {
     }
     extra.append(&mut analysis.warnings);
     analysis.warnings = extra;
-    let files = write_folder(job, folder, &analysis)?;
-    Ok(Outcome { analysis, files })
+    let target = compare_target(job, &analysis)?;
+    let files = write_folder(job, folder, &analysis, target.as_ref())?;
+    Ok(Outcome {
+        analysis,
+        files,
+        target: target.map(|t| t.0),
+    })
+}
+
+/// The dB to add to `magnitude_db` for the curve a target is compared
+/// with, and that curve's name: 0 and "magnitude_db"; with a calibration,
+/// "spl_db"; with a drive voltage too, "sensitivity_db_spl".
+fn compared_curve(job: &Job) -> (f64, &'static str) {
+    let level = job.design.params.level_dbfs;
+    match (&job.calibration, &job.drive) {
+        (Some((c, _)), Some(d)) => (
+            c.spl_db(0.0, level) + d.sensitivity_offset_db(level),
+            "sensitivity_db_spl",
+        ),
+        (Some((c, _)), None) => (c.spl_db(0.0, level), "spl_db"),
+        _ => (0.0, "magnitude_db"),
+    }
+}
+
+/// The deviation of the response from the job's target (before anything
+/// is written), and the shift that draws the target over `magnitude_db`.
+fn compare_target(job: &Job, a: &Analysis) -> Result<Option<(TargetRecord, f64)>> {
+    let Some(t) = &job.target else {
+        return Ok(None);
+    };
+    let range = t.resolve_range((job.design.params.start_hz, job.design.params.end_hz))?;
+    let (shift, compared) = compared_curve(job);
+    let curve: Vec<f64> = a.response.magnitude_db.iter().map(|m| m + shift).collect();
+    let report = target::deviation(
+        &a.response.frequency_hz,
+        &curve,
+        &t.target,
+        range,
+        !t.absolute,
+    )
+    .map_err(|m| Error::input(format!("the target {}: {m}", t.file.name)))?;
+    let alignment = if t.absolute {
+        format!("absolute: {compared} compared with the target as it is (--target-absolute)")
+    } else {
+        format!(
+            "level-aligned: level_offset_db, the mean of target − {compared} over range_hz (weighted by log frequency), is added to {compared} before comparing; its level re the sweep is arbitrary"
+        )
+    };
+    let record = TargetRecord {
+        file: t.file.name.clone(),
+        sha256: t.file.sha256.clone(),
+        compared: compared.into(),
+        alignment,
+        tolerance: t.target.has_tolerance(),
+        report,
+    };
+    // aligned: magnitude + shift + offset ≈ target, so the target sits at
+    // target − shift − offset over magnitude_db
+    Ok(Some((record, -shift - report.level_offset_db)))
 }
 
 /// Writes the folder; returns the files written, manifest first.
-fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<Vec<String>> {
+fn write_folder(
+    job: &Job,
+    folder: &MeasurementFolder,
+    a: &Analysis,
+    target: Option<&(TargetRecord, f64)>,
+) -> Result<Vec<String>> {
     folder.create()?;
     let mut files = Vec::new();
     // raw files first: they are the measurement
@@ -262,6 +362,7 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<V
                 results.response.spl_db.iter().map(|s| s + offset).collect();
         }
     }
+    results.target = target.map(|t| t.0.clone());
     derived("results.json", to_json(&results)?)?;
     derived("response.csv", response_csv(&results.response)?)?;
     if let Some(d) = &a.distortion {
@@ -312,6 +413,13 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<V
                     plot::distortion_png(&tmp, &job.title, &a.response, d)?;
                 }
             } else if rel.ends_with("response.png") {
+                let overlay = job.target.as_ref().zip(target).map(|(t, (r, shift))| {
+                    let range = (r.report.range_hz[0], r.report.range_hz[1]);
+                    plot::TargetOverlay {
+                        curve: t.target.curve(&a.response.frequency_hz, range, *shift),
+                        label: target_label(r),
+                    }
+                });
                 plot::response_png(
                     &tmp,
                     &job.title,
@@ -320,6 +428,7 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<V
                     &a.response.phase_deg,
                     &a.response.smoothing,
                     a.gate.map(|g| (g.resolution_hz, g.resolved_to_hz)),
+                    overlay.as_ref(),
                 )?;
             } else {
                 plot::impulse_png(
@@ -362,6 +471,12 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<V
             calibration: job.calibration.as_ref().map(|c| c.1.clone()),
             volts_per_fs: job.drive.map(|d| d.volts_per_fs),
             distance_m: job.drive.and_then(|d| d.distance_m),
+            target: job.target.as_ref().map(|t| t.file.clone()),
+            target_range_hz: job
+                .target
+                .as_ref()
+                .and_then(|t| t.range.map(|r| [r.0, r.1])),
+            target_absolute: job.target.as_ref().is_some_and(|t| t.absolute),
         },
         files,
         measurement: job.measurement.clone(),
@@ -373,6 +488,42 @@ fn write_folder(job: &Job, folder: &MeasurementFolder, a: &Analysis) -> Result<V
     Ok(std::iter::once("manifest.json".to_string())
         .chain(manifest.files.into_iter().map(|f| f.name))
         .collect())
+}
+
+/// The legend entry of the target on the response plot.
+fn target_label(r: &TargetRecord) -> String {
+    let name = std::path::Path::new(&r.file)
+        .file_name()
+        .map_or_else(|| r.file.clone(), |n| n.to_string_lossy().into_owned());
+    if r.report.aligned {
+        format!(
+            "target {name}, level-aligned to the response ({:+.1} dB)",
+            -r.report.level_offset_db
+        )
+    } else {
+        format!("target {name}")
+    }
+}
+
+/// One line on the deviation from the target, for the terminal.
+pub fn target_summary(r: &TargetRecord) -> String {
+    let inside = r.report.inside_share.map_or(String::new(), |s| {
+        format!(", {:.0} % of the band within tolerance", 100.0 * s)
+    });
+    let how = if r.report.aligned {
+        format!("level-aligned by {:+.2} dB", r.report.level_offset_db)
+    } else {
+        "absolute levels".to_string()
+    };
+    format!(
+        "target {}: {} to {} Hz ({how}): max deviation {:.2} dB at {} Hz, mean {:.2} dB{inside}",
+        r.file,
+        plot::format_hz(r.report.range_hz[0]),
+        plot::format_hz(r.report.range_hz[1]),
+        r.report.max_abs_db,
+        plot::format_hz(r.report.worst_hz.round()),
+        r.report.mean_abs_db,
+    )
 }
 
 /// What the sensitivity of a sweep of peak `level_dbfs` driven by `d` is
@@ -570,6 +721,7 @@ pub fn results_record(a: &Analysis) -> Results {
         broadband: a.room.as_ref().map(|r| r.broadband.clone()),
         warnings: a.warnings.clone(),
         average: None,
+        target: None,
     }
 }
 

@@ -47,6 +47,9 @@ pub struct Results {
     /// For an average over positions: what was averaged.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub average: Option<AverageRecord>,
+    /// With --target: the response's deviation from the target curve.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub target: Option<TargetRecord>,
 }
 
 /// What an average over positions was made of.
@@ -75,6 +78,25 @@ pub struct InputRecord {
     pub sha256: String,
     /// SHA-256 of its results.json.
     pub results_sha256: String,
+}
+
+/// The deviation of the response from a target curve (`--target`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TargetRecord {
+    /// The target file as given.
+    pub file: String,
+    /// SHA-256 of its bytes.
+    pub sha256: String,
+    /// The response curve compared: "magnitude_db", or with a calibration
+    /// "spl_db", with a drive voltage too "sensitivity_db_spl".
+    pub compared: String,
+    /// How the levels were aligned, in words.
+    pub alignment: String,
+    /// Whether the target gives a tolerance band.
+    pub tolerance: bool,
+    /// The deviation numbers.
+    #[serde(flatten)]
+    pub report: crate::analysis::target::TargetReport,
 }
 
 /// The impulse response file.
@@ -275,6 +297,15 @@ pub struct Settings {
     /// --distance: the microphone's distance, m.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub distance_m: Option<f64>,
+    /// --target: the target curve compared with, with its hash.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub target: Option<FileEntry>,
+    /// --target-range: the compared range [low, high], Hz, when given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub target_range_hz: Option<[f64; 2]>,
+    /// --target-absolute: the levels were compared without aligning.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub target_absolute: bool,
 }
 
 /// One file of the folder.

@@ -261,6 +261,7 @@ fn job(out: &Path) -> MeasureJob {
         calibration: None,
         drive: None,
         source_kind: "virtual".into(),
+        target: None,
     }
 }
 
