@@ -33,6 +33,10 @@ pub struct Args {
     /// One measurement (the bare room at 1.2 m) instead of the story.
     #[arg(long)]
     pub single: bool,
+    /// In the story, draw plots only for the averages and the comparison
+    /// (smaller folders; the positions keep their numbers and CSVs).
+    #[arg(long)]
+    pub no_position_plots: bool,
     /// Sample format of the simulated raw recordings: 16, 24 (integer) or
     /// 32 (float).
     #[arg(long, value_name = "16|24|32", default_value_t = 32)]
@@ -86,6 +90,7 @@ fn measure_one(
     system: &mut VirtualSystem,
     out: &std::path::Path,
     title: &str,
+    plots: bool,
 ) -> Result<Outcome> {
     let mut config = a.output.config()?;
     let drive = a.output.drive()?;
@@ -122,7 +127,7 @@ fn measure_one(
     let job = Job {
         out: out.to_path_buf(),
         overwrite: a.output.overwrite,
-        plots: !a.output.no_plots,
+        plots,
         recording: decode(&recording_bytes)?,
         recording_bytes,
         channel: 0,
@@ -163,6 +168,7 @@ pub fn run(a: Args) -> Result<()> {
             &mut system,
             &a.out,
             "Kestrel 5 in the rehearsal room (simulated)",
+            !a.output.no_plots,
         )?;
         print_summary(&common::show(&a.out), &outcome);
         return Ok(());
@@ -200,7 +206,8 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
                 },
                 k + 1
             );
-            let o = measure_one(a, &mut s, &out, &title)?;
+            let plots = !a.output.no_plots && !a.no_position_plots;
+            let o = measure_one(a, &mut s, &out, &title, plots)?;
             println!(
                 "measured {name}: impulse response {:.0} dB above its noise, {} warning{}",
                 o.analysis.peak_to_noise_db,

@@ -9,6 +9,7 @@ mod compare;
 mod demo;
 mod device_under_test;
 mod distortion;
+mod examples;
 mod export;
 mod measure;
 mod report;
