@@ -140,27 +140,8 @@ pub struct OutputArgs {
     /// Needs --calibration and --volts-per-fs.
     #[arg(long, value_name = "M", allow_hyphen_values = true)]
     pub distance: Option<String>,
-    /// A target curve to compare the response with: lines of
-    /// `frequency_hz target_db [lower_db [upper_db]]` (CSV or spaces, #
-    /// comments, an optional header line), the tolerances in dB below and
-    /// above the target (one column: ±). Interpolated linearly in dB
-    /// against log frequency. By default the response is level-aligned to
-    /// the target first (its level re the sweep is arbitrary): the mean
-    /// difference over the range is taken out and reported as
-    /// level_offset_db. results.json gets `target` (max and mean
-    /// deviation, share within tolerance, worst frequency); the response
-    /// plot draws the target and its tolerance band.
-    #[arg(long, value_name = "FILE.csv")]
-    pub target: Option<std::path::PathBuf>,
-    /// The range compared with the target, LO,HI in Hz, e.g. 50,10000
-    /// [default: where both the target and the sweep are]. Needs --target.
-    #[arg(long, value_name = "LO,HI")]
-    pub target_range: Option<String>,
-    /// Compare the levels with the target as they are, without aligning
-    /// (for a target in dB SPL with --calibration, or in dB re the sweep).
-    /// Needs --target.
-    #[arg(long)]
-    pub target_absolute: bool,
+    #[command(flatten)]
+    pub targets: TargetArgs,
     /// Skip the reverberation and energy parameters per octave and
     /// one-third-octave band (the speaker profile's default).
     #[arg(long, conflicts_with = "bands")]
@@ -286,9 +267,54 @@ impl OutputArgs {
         })?;
         Ok(Some((c, entry)))
     }
+
+    /// The target curve of --target, checked against the sweep band.
+    pub fn target(&self, band: (f64, f64)) -> Result<Option<TargetJob>> {
+        self.targets.target(band)
+    }
 }
 
-impl OutputArgs {
+/// Parses `value` of `option` as a positive finite number; `what` says
+/// what to give instead.
+fn positive(option: &str, value: &str, what: &str) -> Result<f64> {
+    match value.trim().parse::<f64>() {
+        Ok(v) if v.is_finite() && v > 0.0 => Ok(v),
+        Ok(_) => Err(Error::parameter(format!(
+            "{option} {value} must be a positive finite number: {what}"
+        ))),
+        Err(_) => Err(Error::parameter(format!(
+            "{option} {value:?} is not a number: give {what}"
+        ))),
+    }
+}
+
+/// The target-curve options of analyze, measure, demo and compare.
+#[derive(Debug, Clone, ClapArgs)]
+pub struct TargetArgs {
+    /// A target curve to compare the response with: lines of
+    /// `frequency_hz target_db [lower_db [upper_db]]` (CSV or spaces, #
+    /// comments, an optional header line), the tolerances in dB below and
+    /// above the target (one column: ±). Interpolated linearly in dB
+    /// against log frequency. By default the response is level-aligned to
+    /// the target first (its level re the sweep is arbitrary): the mean
+    /// difference over the range is taken out and reported as
+    /// level_offset_db. results.json gets `target` (max and mean
+    /// deviation, share within tolerance, worst frequency); the response
+    /// plot draws the target and its tolerance band.
+    #[arg(long, value_name = "FILE.csv")]
+    pub target: Option<std::path::PathBuf>,
+    /// The range compared with the target, LO,HI in Hz, e.g. 50,10000
+    /// [default: where both the target and the sweep are]. Needs --target.
+    #[arg(long, value_name = "LO,HI")]
+    pub target_range: Option<String>,
+    /// Compare the levels with the target as they are, without aligning
+    /// (for a target in dB SPL with --calibration, or in dB re the sweep).
+    /// Needs --target.
+    #[arg(long)]
+    pub target_absolute: bool,
+}
+
+impl TargetArgs {
     /// The target curve, parsed and checked against the sweep band
     /// `band` (Hz), with its path and SHA-256 for the manifest.
     pub fn target(&self, band: (f64, f64)) -> Result<Option<TargetJob>> {
@@ -335,20 +361,6 @@ impl OutputArgs {
         };
         job.resolve_range(band)?;
         Ok(Some(job))
-    }
-}
-
-/// Parses `value` of `option` as a positive finite number; `what` says
-/// what to give instead.
-fn positive(option: &str, value: &str, what: &str) -> Result<f64> {
-    match value.trim().parse::<f64>() {
-        Ok(v) if v.is_finite() && v > 0.0 => Ok(v),
-        Ok(_) => Err(Error::parameter(format!(
-            "{option} {value} must be a positive finite number: {what}"
-        ))),
-        Err(_) => Err(Error::parameter(format!(
-            "{option} {value:?} is not a number: give {what}"
-        ))),
     }
 }
 

@@ -54,6 +54,8 @@ pub struct Args {
     /// Replace the derived files of an existing comparison.
     #[arg(long)]
     pub overwrite: bool,
+    #[command(flatten)]
+    pub targets: common::TargetArgs,
 }
 
 /// Runs `gliss compare`.
@@ -79,6 +81,7 @@ pub fn run(a: Args) -> Result<()> {
         temperature_c: a.temperature,
         plots: !a.no_plots,
         command_line: std::env::args().collect(),
+        target: a.targets.target((1.0, 1e6))?,
     })?;
     println!("wrote the comparison {}:", common::show(&a.out));
     for f in &written.files {
@@ -106,6 +109,25 @@ pub fn run(a: Args) -> Result<()> {
                 crate::plot::format_hz(r.center_hz),
                 100.0 * r.relative_change[k].unwrap_or(0.0)
             );
+        }
+    }
+    if let Some(t) = &cmp.target {
+        for (i, r) in cmp.inputs.iter().zip(&t.per_input) {
+            match r {
+                Some(r) => println!(
+                    "target {}: {} deviates at most {:.1} dB (mean {:.1} dB) over {}–{} Hz{}",
+                    t.file,
+                    i.label,
+                    r.max_abs_db,
+                    r.mean_abs_db,
+                    crate::plot::format_hz(r.range_hz[0].round()),
+                    crate::plot::format_hz(r.range_hz[1].round()),
+                    r.inside_share
+                        .map(|s| format!(", {:.0} % within tolerance", 100.0 * s))
+                        .unwrap_or_default()
+                ),
+                None => println!("target {}: {} does not cover its range", t.file, i.label),
+            }
         }
     }
     for w in &written.warnings {

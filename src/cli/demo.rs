@@ -249,6 +249,7 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
         temperature_c: 20.0,
         plots: !a.output.no_plots,
         command_line: std::env::args().collect(),
+        target: None,
     })?;
     written.push("comparison".into());
     println!("compared before and after treatment (room volume {ROOM_VOLUME_M3:.1} m³):");

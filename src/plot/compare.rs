@@ -40,6 +40,7 @@ pub fn overlay_png(
     frequency_hz: &[f64],
     curves: &[(String, Vec<f64>)],
     smoothing: &str,
+    target: Option<&super::TargetOverlay>,
 ) -> Result<()> {
     let (root, body) = canvas(path, &format!("Frequency responses — {title}"))?;
     let f1 = frequency_hz.first().copied().unwrap_or(20.0);
@@ -70,7 +71,7 @@ pub fn overlay_png(
         true,
         None,
         &series,
-        None,
+        target,
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;

@@ -563,6 +563,9 @@ pub struct Comparison {
     pub temperature_c: Option<f64>,
     /// The speed of sound used, m/s (with --volume).
     pub speed_of_sound_m_s: Option<f64>,
+    /// With --target: each response against the target curve.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub target: Option<CompareTarget>,
     /// How a change is judged, in words.
     pub criteria: Vec<String>,
     /// Warnings, in plain words.
@@ -645,6 +648,22 @@ pub struct CompareJob {
     pub plots: bool,
     /// The command line, for the manifest.
     pub command_line: Vec<String>,
+    /// A target curve to judge every response against (`--target`).
+    pub target: Option<crate::session::TargetJob>,
+}
+
+/// Every response of a comparison against a target curve.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CompareTarget {
+    /// The target file as given.
+    pub file: String,
+    /// SHA-256 of its bytes.
+    pub sha256: String,
+    /// Whether each response was level-aligned to the target first.
+    pub aligned: bool,
+    /// Per input, the deviation from the target (`null` where the
+    /// response does not cover the range).
+    pub per_input: Vec<Option<crate::analysis::target::TargetReport>>,
 }
 
 /// The smoothing label of the inputs' responses, or their mix.
@@ -846,6 +865,30 @@ pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
             });
         }
     }
+    // the target: every response judged against it on the common grid
+    let target = match &job.target {
+        None => None,
+        Some(t) => {
+            let range = t.resolve_range((grid[0], *grid.last().unwrap_or(&grid[0])))?;
+            let per_input = mags
+                .iter()
+                .map(|m| {
+                    let (f, v): (Vec<f64>, Vec<f64>) = grid
+                        .iter()
+                        .zip(m)
+                        .filter_map(|(f, v)| v.map(|v| (*f, v)))
+                        .unzip();
+                    crate::analysis::target::deviation(&f, &v, &t.target, range, !t.absolute).ok()
+                })
+                .collect();
+            Some(CompareTarget {
+                file: t.file.name.clone(),
+                sha256: t.file.sha256.clone(),
+                aligned: !t.absolute,
+                per_input,
+            })
+        }
+    };
     let comparison = Comparison {
         schema_version: SCHEMA_VERSION,
         kind: "comparison".into(),
@@ -862,6 +905,7 @@ pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
         volume_m3: job.volume_m3,
         temperature_c: job.volume_m3.map(|_| job.temperature_c),
         speed_of_sound_m_s: job.volume_m3.map(|_| c_sound),
+        target,
         criteria: vec![
             "exceeds_jnd: the change is larger than the just-noticeable difference of ISO 3382-1 Annex A (EDT and T 5 %, C80 1 dB, D50 0.05, Ts 10 ms; C50 1 dB by analogy with C80)".into(),
             "exceeds_uncertainty: the change is larger than twice the combined standard uncertainty of the two values (the spread over positions for an average, ISO 3382-2's formula for T20 and T30 of one measurement; unknown otherwise)".into(),
@@ -940,13 +984,32 @@ fn write_comparison(
         ] {
             let tmp = folder.temp_path(rel);
             match which {
-                0 => plot::compare::overlay_png(
-                    &tmp,
-                    &title,
-                    &cmp.response.frequency_hz,
-                    &curves,
-                    &cmp.response.smoothing,
-                )?,
+                0 => {
+                    // the target drawn level-aligned to the first response
+                    let overlay =
+                        job.target
+                            .as_ref()
+                            .zip(cmp.target.as_ref())
+                            .and_then(|(t, ct)| {
+                                let r = ct.per_input.first()?.as_ref()?;
+                                Some(plot::TargetOverlay {
+                                    curve: t.target.curve(
+                                        &cmp.response.frequency_hz,
+                                        (r.range_hz[0], r.range_hz[1]),
+                                        -r.level_offset_db,
+                                    ),
+                                    label: format!("target ({})", t.file.name),
+                                })
+                            });
+                    plot::compare::overlay_png(
+                        &tmp,
+                        &title,
+                        &cmp.response.frequency_hz,
+                        &curves,
+                        &cmp.response.smoothing,
+                        overlay.as_ref(),
+                    )?
+                }
                 1 => plot::compare::difference_png(
                     &tmp,
                     &title,

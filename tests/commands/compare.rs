@@ -367,3 +367,44 @@ fn what_is_not_a_complete_measurement_is_refused() {
     }
     assert!(!d.join("x").exists());
 }
+
+#[test]
+fn compare_judges_every_response_against_a_target() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    let a = measure_room(d, "a", &room(0.5, 5), 1.0);
+    measure_room(d, "b", &room(0.5, 5), 0.5);
+    // the target is a's own response between 100 Hz and 10 kHz, ±1 dB
+    let f = numbers(&a["response"]["frequency_hz"]);
+    let m = numbers(&a["response"]["magnitude_db"]);
+    let mut text = String::from("# frequency_hz target_db tolerance_db\n");
+    for (f, m) in f.iter().zip(&m) {
+        if (100.0..=10_000.0).contains(f) {
+            text.push_str(&format!("{f} {m} 1\n"));
+        }
+    }
+    std::fs::write(d.join("target.txt"), text).unwrap();
+    let c = compare_json(d, "aligned", &["a", "b", "--target", "target.txt"]);
+    // level-aligned, b (a at half the amplitude) matches the target as a
+    // does: the offset is taken out and reported (20·lg 2 = 6.02 dB)
+    for k in 0..2 {
+        let r = &c["target"]["per_input"][k];
+        assert!(r["max_abs_db"].as_f64().unwrap() < 0.02, "{r}");
+        assert_eq!(r["inside_share"].as_f64().unwrap(), 1.0, "{r}");
+    }
+    let off = c["target"]["per_input"][1]["level_offset_db"]
+        .as_f64()
+        .unwrap();
+    assert!((off - 20.0 * 2f64.log10()).abs() < 0.02, "{off}");
+    let c = compare_json(
+        d,
+        "absolute",
+        &["a", "b", "--target", "target.txt", "--target-absolute"],
+    );
+    let r = &c["target"]["per_input"][1];
+    assert!(
+        (r["mean_abs_db"].as_f64().unwrap() - 20.0 * 2f64.log10()).abs() < 0.02,
+        "{r}"
+    );
+    assert_eq!(r["inside_share"].as_f64().unwrap(), 0.0, "{r}");
+}
