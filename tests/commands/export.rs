@@ -282,7 +282,7 @@ fn smoothing_again_reproduces_the_folder_and_smooths_more_when_wider() {
     );
     assert!(w < 0.1 * n, "1/1 {w} vs 1/24 {n}");
     // a gated folder too: the committed speaker example (auto gate, 1/12)
-    let gated = Path::new(env!("CARGO_MANIFEST_DIR")).join("measurements/kestrel5-gated");
+    let gated = Path::new(env!("CARGO_MANIFEST_DIR")).join("measurements/kestrel5-speaker");
     let r = json(&gated.join("results.json"));
     assert!(r["response"]["gate"].is_object());
     let g = gated.display().to_string();
