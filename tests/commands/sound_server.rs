@@ -250,3 +250,47 @@ fn devices_lists_the_sound_server_with_its_rates() {
     );
     assert!(list.iter().any(|d| d["default_output"] == true));
 }
+
+#[test]
+fn calibrate_records_a_calibrator_tone_from_the_sound_card() {
+    let _one = SINK.lock().unwrap_or_else(|e| e.into_inner());
+    if !sound_server() {
+        return;
+    }
+    let t = tempfile::tempdir().unwrap();
+    // a "calibrator": a 1 kHz sine of peak 0.1 played into the null sink
+    // by the server's own player while gliss records its monitor
+    let tone: Vec<f64> = (0..48_000 * 8)
+        .map(|i| 0.1 * (std::f64::consts::TAU * 1000.0 * f64::from(i) / 48_000.0).sin())
+        .collect();
+    write_wav_int(&t.path().join("tone.wav"), 48_000, 16, &[tone]);
+    let mut player = Command::new("paplay")
+        .arg(t.path().join("tone.wav"))
+        .spawn()
+        .expect("paplay (pulseaudio-utils) plays the tone");
+    std::thread::sleep(Duration::from_millis(500));
+    let out = ok(
+        t.path(),
+        &[
+            "calibrate",
+            "--record",
+            "3",
+            "--level",
+            "94",
+            "--out",
+            "mic.json",
+        ],
+    );
+    let _ = player.kill();
+    let _ = player.wait();
+    let c = json(&t.path().join("mic.json"));
+    // a sine of peak 0.1 at 94 dB SPL: a full-scale sine (peak 1) is 20 dB
+    // louder, 114 dB SPL (closed form: 20·lg(1/0.1)); 16-bit, within 0.1 dB
+    let fs = c["full_scale_db_spl"].as_f64().unwrap();
+    assert!((fs - 114.0).abs() < 0.1, "{fs} dB SPL; {out}");
+    assert!((c["tone_hz"].as_f64().unwrap() - 1000.0).abs() < 1.0);
+    // the tone is kept beside the calibration, as recorded
+    let (rate, rec) = read_wav(&t.path().join("mic.wav"));
+    assert_eq!(rate, 48_000);
+    assert!(rec[0].len() >= 3 * 48_000);
+}
