@@ -6,7 +6,7 @@ use clap::Args as ClapArgs;
 
 use crate::analysis::Smoothing;
 use crate::cli::common;
-use crate::error::{Error, Result};
+use crate::error::Result;
 use crate::session::compare::{self, CompareJob};
 
 /// Options of `gliss compare`.
@@ -32,8 +32,9 @@ pub struct Args {
     /// Labels, comma-separated, in order [default: the folder names].
     #[arg(long, value_name = "A,B,...", value_delimiter = ',')]
     pub labels: Vec<String>,
-    /// Smooth the responses further for the overlay, e.g. 1/3 [default: as
-    /// the folders are].
+    /// Smooth the responses for the overlay, e.g. 1/3 or none: each is
+    /// taken again from its impulse.wav (an average, which has none, can
+    /// only be smoothed further) [default: as the folders are].
     #[arg(long, value_name = "1/N")]
     pub smooth: Option<String>,
     /// The room's volume in m³: adds the change of equivalent absorption
@@ -60,17 +61,7 @@ pub struct Args {
 
 /// Runs `gliss compare`.
 pub fn run(a: Args) -> Result<()> {
-    let smoothing = match a.smooth.as_deref() {
-        None => None,
-        Some(s) => match Smoothing::parse(s)? {
-            Smoothing::None => {
-                return Err(Error::parameter(
-                    "--smooth none cannot undo the folders' smoothing; give a fraction such as 1/3, or leave it out",
-                ));
-            }
-            f => Some(f),
-        },
-    };
+    let smoothing = a.smooth.as_deref().map(Smoothing::parse).transpose()?;
     let (cmp, written) = compare::compare(&CompareJob {
         out: a.out.clone(),
         overwrite: a.overwrite,

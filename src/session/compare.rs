@@ -737,19 +737,43 @@ pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
     let grid = common_grid(&inputs, &mut warnings)?;
     let mut mags = on_grid(&inputs, &grid, |r| &r.magnitude_db);
     let mut smoothing = smoothing_of(&inputs);
-    if let Some(crate::analysis::Smoothing::Fraction(n)) = job.smoothing {
-        let widest = inputs
-            .iter()
-            .map(|i| octaves(&i.results.response.smoothing))
-            .fold(0.0, f64::max);
-        if 1.0 / f64::from(n) < widest - 1e-9 {
-            return Err(Error::parameter(format!(
-                "--smooth 1/{n} is finer than the folders' own smoothing ({smoothing}); compare can smooth further but not undo it: re-analyse the folders with a finer --smooth, or choose a coarser one"
-            )));
-        }
-        if 1.0 / f64::from(n) > widest + 1e-9 {
-            mags = mags.iter().map(|m| smooth_on_log_grid(m, n)).collect();
-            smoothing = format!("1/{n} of {smoothing}");
+    if let Some(want) = job.smoothing {
+        let label = want.label();
+        if inputs.iter().all(|i| i.results.impulse.is_some()) {
+            // every input keeps its impulse response: smooth each again from
+            // it with the analysis's own stages (exact, finer or coarser)
+            mags = inputs
+                .iter()
+                .map(|i| {
+                    let m = crate::session::export::open(&i.dir)?;
+                    let fresh = crate::session::export::fresh_response(&m, want)?;
+                    Ok(calc::interpolate_log(
+                        &fresh.frequency_hz,
+                        &fresh.magnitude_db,
+                        &grid,
+                    ))
+                })
+                .collect::<Result<Vec<_>>>()?;
+            smoothing = label;
+        } else if want == crate::analysis::Smoothing::None {
+            return Err(Error::parameter(
+                "--smooth none needs every folder's impulse response, and an average has none; leave --smooth out, or give a fraction such as 1/3",
+            ));
+        } else if let crate::analysis::Smoothing::Fraction(n) = want {
+            // an average has no impulse response: smooth its curve further
+            let widest = inputs
+                .iter()
+                .map(|i| octaves(&i.results.response.smoothing))
+                .fold(0.0, f64::max);
+            if 1.0 / f64::from(n) < widest - 1e-9 {
+                return Err(Error::parameter(format!(
+                    "--smooth 1/{n} is finer than the folders' own smoothing ({smoothing}), and an average has no impulse response to smooth again from: choose a coarser one, or average positions analysed with a finer --smooth"
+                )));
+            }
+            if 1.0 / f64::from(n) > widest + 1e-9 {
+                mags = mags.iter().map(|m| smooth_on_log_grid(m, n)).collect();
+                smoothing = format!("1/{n} of {smoothing}");
+            }
         }
     }
     let diffs: Vec<Vec<Option<f64>>> = mags

@@ -418,6 +418,29 @@ fn correction(m: &Measurement) -> Result<Option<Correction>> {
         .map_err(|e| Error::input(format!("the microphone correction {}: {e}", entry.name)))
 }
 
+/// The folder's response taken again from its impulse.wav with the
+/// analysis's own stages, at smoothing `s` (on the folder's grid).
+pub fn fresh_response(m: &Measurement, s: Smoothing) -> Result<analysis::FrequencyResponse> {
+    let rec = &m.results.response;
+    let ir = read_impulse(m)?;
+    let placement = ImpulsePlacement {
+        design: &m.manifest.sweep,
+        start_s: impulse_record(m)?.start_s,
+        delay_s: m.results.delay_s,
+        harmonics: m.manifest.settings.harmonics.max(1),
+        gate: rec.gate,
+    };
+    let c = correction(m)?;
+    let fresh = analysis::response_from_impulse(&ir, placement, c.as_ref(), s)?;
+    if fresh.frequency_hz.len() != rec.frequency_hz.len() {
+        return Err(Error::input(format!(
+            "the response of {} is on another grid than its sweep gives; analyse the recording again",
+            m.dir.display()
+        )));
+    }
+    Ok(fresh)
+}
+
 fn response_table(m: &Measurement, smooth: Option<Smoothing>) -> Result<Table> {
     let rec = &m.results.response;
     let mut magnitude = rec.magnitude_db.clone();
@@ -425,22 +448,7 @@ fn response_table(m: &Measurement, smooth: Option<Smoothing>) -> Result<Table> {
     let mut smoothing = rec.smoothing.clone();
     let resmoothed = smooth.is_some();
     if let Some(s) = smooth {
-        let ir = read_impulse(m)?;
-        let placement = ImpulsePlacement {
-            design: &m.manifest.sweep,
-            start_s: impulse_record(m)?.start_s,
-            delay_s: m.results.delay_s,
-            harmonics: m.manifest.settings.harmonics.max(1),
-            gate: rec.gate,
-        };
-        let c = correction(m)?;
-        let fresh = analysis::response_from_impulse(&ir, placement, c.as_ref(), s)?;
-        if fresh.frequency_hz.len() != rec.frequency_hz.len() {
-            return Err(Error::input(format!(
-                "the response of {} is on another grid than its sweep gives; analyse the recording again",
-                m.dir.display()
-            )));
-        }
+        let fresh = fresh_response(m, s)?;
         magnitude = fresh.magnitude_db;
         phase = fresh.phase_deg;
         smoothing = fresh.smoothing;

@@ -350,8 +350,8 @@ fn what_is_not_a_complete_measurement_is_refused() {
             "--volume",
         ),
         (
-            vec!["compare", "m", "m", "--out", "x", "--smooth", "1/24"],
-            "finer",
+            vec!["compare", "m", "m", "--out", "x", "--smooth", "1/9"],
+            "--smooth",
         ),
         (
             vec!["average", "m", "m", "--out", "x", "--sources", "3"],
@@ -407,4 +407,42 @@ fn compare_judges_every_response_against_a_target() {
         "{r}"
     );
     assert_eq!(r["inside_share"].as_f64().unwrap(), 0.0, "{r}");
+}
+
+#[test]
+fn compare_smooths_measurements_again_from_their_impulse_responses() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    measure_room(d, "a", &room(0.5, 9), 1.0);
+    measure_room(d, "b", &room(0.5, 9), 0.5);
+    // finer than the folders' 1/6: exact, the same as export gives
+    let c = compare_json(d, "c", &["a", "b", "--smooth", "1/24", "--no-plots"]);
+    assert_eq!(c["response"]["smoothing"], "1/24");
+    let e: Value = serde_json::from_str(&ok(
+        d,
+        &[
+            "export", "a", "--what", "response", "--smooth", "1/24", "--format", "json", "--out",
+            "-",
+        ],
+    ))
+    .unwrap();
+    let want = numbers(&e["data"]["magnitude_db"]);
+    let got: Vec<f64> = c["response"]["magnitude_db"][0]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    assert_eq!(want.len(), got.len());
+    for (w, g) in want.iter().zip(&got) {
+        assert!((w - g).abs() < 1e-6, "{w} vs {g}");
+    }
+    // the difference of a copy at half the amplitude stays -6.02 dB
+    for v in c["response"]["difference_db"][1].as_array().unwrap() {
+        assert!((v.as_f64().unwrap() + 20.0 * 2f64.log10()).abs() < 1e-6);
+    }
+    // an average has no impulse response: finer than its own is refused
+    ok(d, &["average", "a", "b", "--out", "ab", "--no-plots"]);
+    let line = refused(d, &["compare", "ab", "a", "--out", "x", "--smooth", "1/24"]);
+    assert!(line.contains("finer"), "{line}");
 }
