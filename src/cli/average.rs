@@ -23,7 +23,7 @@ report take it like any other."
 )]
 pub struct Args {
     /// The position folders (complete measurements of one condition).
-    #[arg(value_name = "DIR", required = true, num_args = 2..)]
+    #[arg(value_name = "DIR", required = true)]
     pub inputs: Vec<PathBuf>,
     /// The new folder.
     #[arg(long, value_name = "DIR")]

@@ -24,7 +24,7 @@ comparison.json, comparison.csv and plots/compare-*.png."
 pub struct Args {
     /// The folders: the reference (before) first, then the others
     /// (measurements or averages).
-    #[arg(value_name = "DIR", required = true, num_args = 2..)]
+    #[arg(value_name = "DIR", required = true)]
     pub inputs: Vec<PathBuf>,
     /// The new comparison folder.
     #[arg(long, value_name = "DIR")]

@@ -52,7 +52,7 @@ enum Command {
     Average(average::Args),
     /// Compare measurements before and after: responses, band parameters, absorption.
     Compare(compare::Args),
-    /// Turn a recording of a sound calibrator's tone into a calibration file for --calibration.
+    /// Turn a sound calibrator's tone (a WAV, or recorded now) into a calibration file.
     Calibrate(calibrate::Args),
     /// Write one self-contained HTML report (plots embedded, prints on A4) of measurement folders.
     Report(report::Args),

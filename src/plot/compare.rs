@@ -6,8 +6,7 @@ use std::path::Path;
 use plotters::prelude::*;
 
 use super::{
-    BLUE, ORANGE, canvas, chart_builder, db_range, draw_log_panel, legend, log_label, log_ticks,
-    order_colour, plot_error, styled_mesh,
+    BLUE, ORANGE, band_chart, canvas, db_range, draw_log_panel, legend, order_colour, plot_error,
 };
 use crate::analysis::room::BandResult;
 use crate::error::Result;
@@ -171,22 +170,14 @@ pub fn reverberation_png(
         .fold(0.1f64, |m, v| m.max(*v))
         * 1.3;
     let y_max = (y_max * 10.0).ceil() / 10.0;
-    let (bold, light) = log_ticks(f_lo, f_hi);
     let draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
-        let mut chart = chart_builder(&body, 55).build_cartesian_2d(
-            (f_lo..f_hi)
-                .log_scale()
-                .with_key_points(bold)
-                .with_light_points(light),
-            0.0..y_max,
+        let mut chart = band_chart(
+            &body,
+            (f_lo, f_hi),
+            y_max,
+            "Octave band centre frequency (Hz)",
+            "Decay time (s): T30, or T20 where T30 is missing",
         )?;
-        styled_mesh(&mut chart)
-            .x_labels(40)
-            .x_label_formatter(&log_label)
-            .y_label_formatter(&|v: &f64| format!("{v:.1}"))
-            .x_desc("Octave band centre frequency (Hz)")
-            .y_desc("Decay time (s): T30, or T20 where T30 is missing")
-            .draw()?;
         for (k, label) in labels.iter().enumerate() {
             let colour = input_colour(k);
             let pts: Vec<(f64, f64)> = per_band
@@ -315,22 +306,14 @@ pub fn average_reverberation_png(path: &Path, title: &str, bands: &[BandResult])
         .fold(0.1f64, f64::max)
         * 1.25;
     let y_max = (y_max * 10.0).ceil() / 10.0;
-    let (bold, light) = log_ticks(f_lo, f_hi);
     let draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
-        let mut chart = chart_builder(&body, 55).build_cartesian_2d(
-            (f_lo..f_hi)
-                .log_scale()
-                .with_key_points(bold)
-                .with_light_points(light),
-            0.0..y_max,
+        let mut chart = band_chart(
+            &body,
+            (f_lo, f_hi),
+            y_max,
+            "Band centre frequency (Hz)",
+            "T30 (s), mean over positions",
         )?;
-        styled_mesh(&mut chart)
-            .x_labels(40)
-            .x_label_formatter(&log_label)
-            .y_label_formatter(&|v: &f64| format!("{v:.1}"))
-            .x_desc("Band centre frequency (Hz)")
-            .y_desc("T30 (s), mean over positions")
-            .draw()?;
         let grey = RGBColor(150, 150, 150);
         chart
             .draw_series(LineSeries::new(

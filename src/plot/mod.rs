@@ -329,6 +329,44 @@ pub fn response_png(
     Ok(())
 }
 
+/// A chart over band centre frequencies (log axis from `f_lo` to `f_hi`)
+/// and a decay time from 0 to `y_max` s, its mesh drawn in the house
+/// style with `x_desc` and `y_desc`: what every plot of values per band
+/// starts from.
+type BandChart<'a, 'b> = ChartContext<
+    'a,
+    BitMapBackend<'b>,
+    Cartesian2d<
+        plotters::coord::combinators::WithKeyPoints<plotters::coord::combinators::LogCoord<f64>>,
+        plotters::coord::types::RangedCoordf64,
+    >,
+>;
+
+fn band_chart<'a, 'b>(
+    area: &'a Area<'b>,
+    (f_lo, f_hi): (f64, f64),
+    y_max: f64,
+    x_desc: &str,
+    y_desc: &str,
+) -> std::result::Result<BandChart<'a, 'b>, Box<dyn std::error::Error>> {
+    let (bold, light) = log_ticks(f_lo, f_hi);
+    let mut chart = chart_builder(area, 55).build_cartesian_2d(
+        (f_lo..f_hi)
+            .log_scale()
+            .with_key_points(bold)
+            .with_light_points(light),
+        0.0..y_max,
+    )?;
+    styled_mesh(&mut chart)
+        .x_labels(40)
+        .x_label_formatter(&log_label)
+        .y_label_formatter(&|v: &f64| format!("{v:.1}"))
+        .x_desc(x_desc)
+        .y_desc(y_desc)
+        .draw()?;
+    Ok(chart)
+}
+
 type Series<'a> = (&'a [f64], &'a [f64], RGBColor, String);
 
 /// One panel with a log-frequency x axis (and a target over it, if given).
@@ -904,22 +942,14 @@ pub fn reverberation_png(
         .min(31.5)
         / 1.3;
     let f_hi = freqs.iter().cloned().fold(0.0f64, f64::max).max(1000.0) * 1.3;
-    let (bold, light) = log_ticks(f_lo, f_hi);
     let draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
-        let mut chart = chart_builder(&body, 55).build_cartesian_2d(
-            (f_lo..f_hi)
-                .log_scale()
-                .with_key_points(bold)
-                .with_light_points(light),
-            0.0..y_max,
+        let mut chart = band_chart(
+            &body,
+            (f_lo, f_hi),
+            y_max,
+            "Band centre frequency (Hz)",
+            "Decay time (s)",
         )?;
-        styled_mesh(&mut chart)
-            .x_labels(40)
-            .x_label_formatter(&log_label)
-            .y_label_formatter(&|v: &f64| format!("{v:.1}"))
-            .x_desc("Band centre frequency (Hz)")
-            .y_desc("Decay time (s)")
-            .draw()?;
         let grey = RGBColor(150, 150, 150);
         chart
             .draw_series(LineSeries::new(third.iter().copied(), grey.stroke_width(1)))?
