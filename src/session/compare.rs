@@ -427,22 +427,13 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
 
     folder.create()?;
     let mut files: Vec<FileEntry> = Vec::new();
-    let mut derived = |name: &str, bytes: Vec<u8>| -> Result<()> {
-        folder.write_derived(name, &bytes)?;
-        files.push(FileEntry {
-            name: name.into(),
-            role: "derived".into(),
-            sha256: sha256_hex(&bytes),
-        });
-        Ok(())
-    };
-    derived("results.json", to_json(&results)?)?;
-    derived("response.csv", response_csv(&results.response)?)?;
+    files.push(folder.derived_entry("results.json", &to_json(&results)?)?);
+    files.push(folder.derived_entry("response.csv", &response_csv(&results.response)?)?);
     if !results.bands.is_empty() {
-        derived(
+        files.push(folder.derived_entry(
             "bands.csv",
-            bands_table_csv(&results.bands, results.broadband.as_ref())?,
-        )?;
+            &bands_table_csv(&results.bands, results.broadband.as_ref())?,
+        )?);
     }
     if job.plots {
         let title = format!("average of {n} positions");
@@ -465,11 +456,11 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
             &avg,
             &results.response.smoothing,
         )?;
-        commit_plot(&folder, &tmp, "plots/response.png", &mut files)?;
+        files.push(folder.commit_entry(&tmp, "plots/response.png")?);
         if !results.bands.is_empty() {
             let tmp = folder.temp_path("plots/reverberation.png");
             plot::compare::average_reverberation_png(&tmp, &title, &results.bands)?;
-            commit_plot(&folder, &tmp, "plots/reverberation.png", &mut files)?;
+            files.push(folder.commit_entry(&tmp, "plots/reverberation.png")?);
         }
     }
     let m0 = &inputs[0].manifest;
@@ -522,22 +513,6 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
         .chain(manifest.files.iter().map(|f| f.name.clone()))
         .collect();
     Ok((results, Written { files, warnings }))
-}
-
-fn commit_plot(
-    folder: &MeasurementFolder,
-    tmp: &Path,
-    rel: &str,
-    files: &mut Vec<FileEntry>,
-) -> Result<()> {
-    let bytes = std::fs::read(tmp).map_err(|e| Error::io("read", tmp, &e))?;
-    folder.commit(tmp, rel)?;
-    files.push(FileEntry {
-        name: rel.into(),
-        role: "derived".into(),
-        sha256: sha256_hex(&bytes),
-    });
-    Ok(())
 }
 
 /// comparison.json.
@@ -974,17 +949,8 @@ fn write_comparison(
 ) -> Result<Vec<String>> {
     folder.create()?;
     let mut files = Vec::new();
-    let mut derived = |name: &str, bytes: Vec<u8>| -> Result<()> {
-        folder.write_derived(name, &bytes)?;
-        files.push(FileEntry {
-            name: name.into(),
-            role: "derived".into(),
-            sha256: sha256_hex(&bytes),
-        });
-        Ok(())
-    };
-    derived("comparison.json", to_json(cmp)?)?;
-    derived("comparison.csv", comparison_csv(cmp)?)?;
+    files.push(folder.derived_entry("comparison.json", &to_json(cmp)?)?);
+    files.push(folder.derived_entry("comparison.csv", &comparison_csv(cmp)?)?);
     if job.plots {
         let labels: Vec<String> = inputs.iter().map(|i| i.record.label.clone()).collect();
         let nan =
@@ -1048,7 +1014,7 @@ fn write_comparison(
                     plot::compare::reverberation_png(&tmp, &title, &labels, &cmp.bands)?
                 }
             }
-            commit_plot(folder, &tmp, rel, &mut files)?;
+            files.push(folder.commit_entry(&tmp, rel)?);
         }
     }
     let manifest = ComparisonManifest {

@@ -8,6 +8,7 @@ use std::path::{Path, PathBuf};
 use sha2::{Digest, Sha256};
 
 use crate::error::{Error, ErrorKind, Result};
+use crate::session::records::FileEntry;
 
 /// Names of the raw files of a measurement folder.
 pub const RAW_FILES: [&str; 2] = ["stimulus.wav", "recording.wav"];
@@ -16,6 +17,15 @@ pub const RAW_FILES: [&str; 2] = ["stimulus.wav", "recording.wav"];
 pub fn sha256_hex(bytes: &[u8]) -> String {
     let digest = Sha256::digest(bytes);
     digest.iter().map(|b| format!("{b:02x}")).collect()
+}
+
+/// The manifest entry of a derived file.
+fn derived(rel: &str, bytes: &[u8]) -> FileEntry {
+    FileEntry {
+        name: rel.into(),
+        role: "derived".into(),
+        sha256: sha256_hex(bytes),
+    }
 }
 
 /// A measurement folder about to be written.
@@ -149,6 +159,20 @@ impl MeasurementFolder {
         let tmp = self.temp_path(rel);
         fs::write(&tmp, bytes).map_err(|e| Error::io("write", &tmp, &e))?;
         self.commit(&tmp, rel)
+    }
+
+    /// Writes the derived file `rel` and returns its manifest entry.
+    pub fn derived_entry(&self, rel: &str, bytes: &[u8]) -> Result<FileEntry> {
+        self.write_derived(rel, bytes)?;
+        Ok(derived(rel, bytes))
+    }
+
+    /// Moves a finished temporary derived file (a plot its writer drew to
+    /// `temp`) into place as `rel` and returns its manifest entry.
+    pub fn commit_entry(&self, temp: &Path, rel: &str) -> Result<FileEntry> {
+        let bytes = fs::read(temp).map_err(|e| Error::io("read", temp, &e))?;
+        self.commit(temp, rel)?;
+        Ok(derived(rel, &bytes))
     }
 }
 

@@ -321,23 +321,14 @@ fn write_folder(
             sha256,
         });
     }
-    let mut derived = |name: &str, bytes: Vec<u8>| -> Result<()> {
-        folder.write_derived(name, &bytes)?;
-        files.push(FileEntry {
-            name: name.into(),
-            role: "derived".into(),
-            sha256: folder::sha256_hex(&bytes),
-        });
-        Ok(())
-    };
-    derived(
+    files.push(folder.derived_entry(
         "impulse.wav",
-        wav::encode_wav(
+        &wav::encode_wav(
             &[&a.impulse.samples],
             a.sample_rate_hz,
             SampleEncoding::Float,
         ),
-    )?;
+    )?);
     let mut results = results_record(a);
     if job.reference.is_some() {
         results.delay_reference =
@@ -363,13 +354,13 @@ fn write_folder(
         }
     }
     results.target = target.map(|t| t.0.clone());
-    derived("results.json", to_json(&results)?)?;
-    derived("response.csv", response_csv(&results.response)?)?;
+    files.push(folder.derived_entry("results.json", &to_json(&results)?)?);
+    files.push(folder.derived_entry("response.csv", &response_csv(&results.response)?)?);
     if let Some(d) = &a.distortion {
-        derived("distortion.csv", distortion_csv(d, &a.response)?)?;
+        files.push(folder.derived_entry("distortion.csv", &distortion_csv(d, &a.response)?)?);
     }
     if let Some(r) = &a.room {
-        derived("bands.csv", bands_csv(r)?)?;
+        files.push(folder.derived_entry("bands.csv", &bands_csv(r)?)?);
     }
     if job.plots {
         for rel in plot_files(a) {
@@ -440,13 +431,7 @@ fn write_folder(
                     a.sample_rate_hz,
                 )?;
             }
-            let bytes = std::fs::read(&tmp).map_err(|e| Error::io("read", &tmp, &e))?;
-            folder.commit(&tmp, rel)?;
-            files.push(FileEntry {
-                name: rel.into(),
-                role: "derived".into(),
-                sha256: folder::sha256_hex(&bytes),
-            });
+            files.push(folder.commit_entry(&tmp, rel)?);
         }
     }
     let manifest = Manifest {
