@@ -23,32 +23,29 @@ pub fn power_average_db(curves: &[Vec<Option<f64>>]) -> Vec<Option<f64>> {
 }
 
 /// `values` at `at`, interpolated linearly in dB against log frequency
-/// (common practice); `None` outside `frequency_hz`.
+/// (common practice; the same rule as the correction and target files,
+/// `curve_file::log_fraction`); `None` outside `frequency_hz`, with a
+/// millionth of an octave of slack for grids that agree.
 pub fn interpolate_log(frequency_hz: &[f64], values: &[f64], at: &[f64]) -> Vec<Option<f64>> {
+    let n = frequency_hz.len().min(values.len());
+    let slack = 2f64.powf(1e-6);
     at.iter()
         .map(|&f| {
-            let n = frequency_hz.len().min(values.len());
             if n == 0 || f.is_nan() || f <= 0.0 {
                 return None;
             }
-            // a tolerance of a millionth of an octave for grids that agree
-            let eps = 1e-6;
-            let lf = f.log2();
-            let first = frequency_hz[0].log2();
-            let last = frequency_hz[n - 1].log2();
-            if lf < first - eps || lf > last + eps {
+            if f < frequency_hz[0] / slack || f > frequency_hz[n - 1] * slack {
                 return None;
             }
-            let k = frequency_hz[..n].partition_point(|&x| x.log2() < lf);
+            let k = frequency_hz[..n].partition_point(|&x| x < f);
             if k == 0 {
                 return Some(values[0]);
             }
             if k >= n {
                 return Some(values[n - 1]);
             }
-            let (a, b) = (frequency_hz[k - 1].log2(), frequency_hz[k].log2());
-            let t = if b > a { (lf - a) / (b - a) } else { 0.0 };
-            Some(values[k - 1] + t * (values[k] - values[k - 1]))
+            let u = super::curve_file::log_fraction(f, frequency_hz[k - 1], frequency_hz[k]);
+            Some(values[k - 1] + u * (values[k] - values[k - 1]))
         })
         .collect()
 }
