@@ -14,6 +14,8 @@ pub mod audio;
 pub mod cli;
 pub mod deconv;
 pub mod error;
+pub mod folder;
+pub mod model;
 pub mod plot;
 pub mod report;
 pub mod session;

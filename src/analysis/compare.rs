@@ -6,6 +6,8 @@
 
 use serde::{Deserialize, Serialize};
 
+use crate::model::Parameter;
+
 /// Power average of curves in dB, point by point:
 /// 10·lg(mean 10^(L/10)). A point missing (`None`) in any curve is
 /// missing in the average.
@@ -83,48 +85,13 @@ pub fn grade(combinations: usize, sources: usize) -> &'static str {
     }
 }
 
-/// The band parameters gliss compares, by their results.json names.
-pub const PARAMETERS: [&str; 7] = ["edt_s", "t20_s", "t30_s", "c50_db", "c80_db", "d50", "ts_s"];
-
-/// A just-noticeable difference.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-pub enum Jnd {
-    /// A share of the first value (0.05 = 5 %).
-    Relative(f64),
-    /// An absolute difference in the parameter's unit.
-    Absolute(f64),
-}
-
-/// The just-noticeable difference of a parameter, ISO 3382-1:2009 Annex A
-/// Table A.1 (seen through a secondary source): EDT and T 5 %, C80 1 dB,
-/// D50 0.05, Ts 10 ms. C50 has no entry there; gliss uses C80's 1 dB for
-/// it, which is our choice, not the standard's.
-pub fn jnd(parameter: &str) -> Option<Jnd> {
-    match parameter {
-        "edt_s" | "t20_s" | "t30_s" => Some(Jnd::Relative(0.05)),
-        "c50_db" | "c80_db" => Some(Jnd::Absolute(1.0)),
-        "d50" => Some(Jnd::Absolute(0.05)),
-        "ts_s" => Some(Jnd::Absolute(0.010)),
-        _ => None,
-    }
-}
-
-/// Whether going from `before` to `after` exceeds the JND of `parameter`.
-pub fn exceeds_jnd(parameter: &str, before: f64, after: f64) -> Option<bool> {
-    Some(match jnd(parameter)? {
-        Jnd::Relative(r) => (after - before).abs() > r * before.abs(),
-        Jnd::Absolute(a) => (after - before).abs() > a,
-    })
-}
-
-/// The effective bandwidth ISO 3382-2 puts in its uncertainty formula, Hz:
-/// about 0.71·fc for octaves and 0.23·fc for one-third octaves.
-pub fn bandwidth_hz(center_hz: f64, fraction: &str) -> Option<f64> {
-    match fraction {
-        "1/1" => Some(0.71 * center_hz),
-        "1/3" => Some(0.23 * center_hz),
-        _ => None,
-    }
+/// Whether going from `before` to `after` exceeds the just-noticeable
+/// difference of `parameter` (ISO 3382-1:2009 Annex A Table A.1, seen
+/// through a secondary source: EDT and T 5 %, C80 1 dB, D50 0.05, Ts
+/// 10 ms; C50 takes C80's 1 dB, which is our choice, not the standard's);
+/// `None` for a parameter without one.
+pub fn exceeds_jnd(parameter: Parameter, before: f64, after: f64) -> Option<bool> {
+    Some(parameter.jnd()?.exceeded(before, after))
 }
 
 /// Standard uncertainty of T20 or T30 measured with the integrated impulse
@@ -132,15 +99,15 @@ pub fn bandwidth_hz(center_hz: f64, fraction: &str) -> Option<f64> {
 /// σ(T20) = 0.88·T·√((1 + 1.90/n)/(N·B·T)), σ(T30) = 0.55·T·√((1 +
 /// 1.52/n)/(N·B·T)), with n decays averaged per position and N positions.
 pub fn t_uncertainty(
-    parameter: &str,
+    parameter: Parameter,
     t_s: f64,
     bandwidth_hz: f64,
     decays: usize,
     positions: usize,
 ) -> Option<f64> {
     let (k, a) = match parameter {
-        "t20_s" => (0.88, 1.90),
-        "t30_s" => (0.55, 1.52),
+        Parameter::T20 => (0.88, 1.90),
+        Parameter::T30 => (0.55, 1.52),
         _ => return None,
     };
     if t_s.is_nan() || bandwidth_hz.is_nan() || t_s <= 0.0 || bandwidth_hz <= 0.0 {
@@ -149,6 +116,172 @@ pub fn t_uncertainty(
     let n = decays.max(1) as f64;
     let big_n = positions.max(1) as f64;
     Some(k * t_s * ((1.0 + a / n) / (big_n * bandwidth_hz * t_s)).sqrt())
+}
+
+/// The judgement of one change of a band parameter against the reference:
+/// decided here, once, and stored in comparison.json; the terminal, the
+/// plots and the report only show it. It combines two tests: is the change
+/// larger than the just-noticeable difference (can it be heard), and is it
+/// larger than twice the combined uncertainty (is it real).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Verdict {
+    /// Larger than both the just-noticeable difference and the
+    /// uncertainty: an audible change.
+    Audible,
+    /// Larger than the just-noticeable difference, with no estimate of the
+    /// uncertainty to hold it against (C50, C80, D50, Ts and EDT of single
+    /// measurements): audible if it is real.
+    BeyondJndUncertaintyUnknown,
+    /// Larger than the just-noticeable difference, but within the
+    /// measurement's uncertainty: it may be the measurement, not the room.
+    WithinUncertainty,
+    /// Larger than the uncertainty, so real, but no larger than the
+    /// just-noticeable difference: not heard.
+    MeasurableBelowJnd,
+    /// No larger than the just-noticeable difference.
+    BelowJnd,
+    /// A parameter without a just-noticeable difference whose change is
+    /// larger than the uncertainty.
+    MeasurableNoJnd,
+    /// A parameter without a just-noticeable difference whose change is
+    /// within the uncertainty.
+    WithinUncertaintyNoJnd,
+    /// Neither test could be made.
+    NotJudged,
+    /// One of the two values was not measured: nothing to judge.
+    NotMeasured,
+}
+
+impl Verdict {
+    /// Every verdict, from the strongest.
+    pub const ALL: [Verdict; 9] = [
+        Verdict::Audible,
+        Verdict::BeyondJndUncertaintyUnknown,
+        Verdict::WithinUncertainty,
+        Verdict::MeasurableBelowJnd,
+        Verdict::BelowJnd,
+        Verdict::MeasurableNoJnd,
+        Verdict::WithinUncertaintyNoJnd,
+        Verdict::NotJudged,
+        Verdict::NotMeasured,
+    ];
+
+    /// The verdict from its two tests (`None`: that test could not be made).
+    pub fn of(
+        measured: bool,
+        exceeds_jnd: Option<bool>,
+        exceeds_uncertainty: Option<bool>,
+    ) -> Self {
+        if !measured {
+            return Verdict::NotMeasured;
+        }
+        match (exceeds_jnd, exceeds_uncertainty) {
+            (Some(true), Some(true)) => Verdict::Audible,
+            (Some(true), Some(false)) => Verdict::WithinUncertainty,
+            (Some(true), None) => Verdict::BeyondJndUncertaintyUnknown,
+            (Some(false), Some(true)) => Verdict::MeasurableBelowJnd,
+            (Some(false), _) => Verdict::BelowJnd,
+            (None, Some(true)) => Verdict::MeasurableNoJnd,
+            (None, Some(false)) => Verdict::WithinUncertaintyNoJnd,
+            (None, None) => Verdict::NotJudged,
+        }
+    }
+
+    /// The verdict as comparison.json and comparison.csv write it.
+    pub fn code(self) -> &'static str {
+        match self {
+            Verdict::Audible => "audible",
+            Verdict::BeyondJndUncertaintyUnknown => "beyond_jnd_uncertainty_unknown",
+            Verdict::WithinUncertainty => "within_uncertainty",
+            Verdict::MeasurableBelowJnd => "measurable_below_jnd",
+            Verdict::BelowJnd => "below_jnd",
+            Verdict::MeasurableNoJnd => "measurable_no_jnd",
+            Verdict::WithinUncertaintyNoJnd => "within_uncertainty_no_jnd",
+            Verdict::NotJudged => "not_judged",
+            Verdict::NotMeasured => "not_measured",
+        }
+    }
+
+    /// The verdict in words, for tables and the terminal.
+    pub fn words(self) -> &'static str {
+        match self {
+            Verdict::Audible => "audible change",
+            Verdict::BeyondJndUncertaintyUnknown => {
+                "larger than the just-noticeable difference (uncertainty not estimated)"
+            }
+            Verdict::WithinUncertainty => {
+                "within measurement uncertainty, though larger than the just-noticeable difference"
+            }
+            Verdict::MeasurableBelowJnd => "measurable, below the just-noticeable difference",
+            Verdict::BelowJnd => "below the just-noticeable difference",
+            Verdict::MeasurableNoJnd => "measurable change (no just-noticeable difference given)",
+            Verdict::WithinUncertaintyNoJnd => "within measurement uncertainty",
+            Verdict::NotJudged => "not judged",
+            Verdict::NotMeasured => "not measured in both",
+        }
+    }
+
+    /// Whether the change is established as audible (beyond both tests):
+    /// what the headline counts and the plots ring.
+    pub fn is_audible(self) -> bool {
+        self == Verdict::Audible
+    }
+}
+
+/// One parameter's change from the reference (input 0) to each input, as
+/// stored in comparison.json: arrays with one entry per input, the
+/// reference's entries `null`.
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+pub struct Changes {
+    /// Value minus the reference's.
+    #[serde(default)]
+    pub change: Vec<Option<f64>>,
+    /// Change over the reference's value.
+    #[serde(default)]
+    pub relative_change: Vec<Option<f64>>,
+    /// Whether the change exceeds the just-noticeable difference.
+    #[serde(default)]
+    pub exceeds_jnd: Vec<Option<bool>>,
+    /// Whether the change exceeds twice the combined standard uncertainty.
+    #[serde(default)]
+    pub exceeds_uncertainty: Vec<Option<bool>>,
+    /// The judgement of each change (absent in files written before it
+    /// was stored: read as not judged).
+    #[serde(default)]
+    pub verdict: Vec<Option<Verdict>>,
+}
+
+/// Judges the changes of `parameter` from `values[0]` (the reference) to
+/// every other value, each with its standard uncertainty (`None` where
+/// unknown). A change exceeds the uncertainty when it is larger than twice
+/// the combined standard uncertainty √(u₀² + u²) (a coverage factor of 2,
+/// common practice).
+pub fn judge(parameter: Parameter, values: &[Option<f64>], uncertainty: &[Option<f64>]) -> Changes {
+    let mut out = Changes {
+        change: vec![None],
+        relative_change: vec![None],
+        exceeds_jnd: vec![None],
+        exceeds_uncertainty: vec![None],
+        verdict: vec![None],
+    };
+    let v0 = values.first().copied().flatten();
+    let u0 = uncertainty.first().copied().flatten();
+    for k in 1..values.len() {
+        let vk = values[k];
+        let d = v0.zip(vk).map(|(a, b)| b - a);
+        let jnd = v0.zip(vk).and_then(|(a, b)| exceeds_jnd(parameter, a, b));
+        let unc = d
+            .zip(u0.zip(uncertainty.get(k).copied().flatten()))
+            .map(|(d, (a, b))| d.abs() > 2.0 * (a * a + b * b).sqrt());
+        out.change.push(d);
+        out.relative_change
+            .push(v0.zip(d).and_then(|(a, d)| (a.abs() > 0.0).then(|| d / a)));
+        out.exceeds_jnd.push(jnd);
+        out.exceeds_uncertainty.push(unc);
+        out.verdict.push(Some(Verdict::of(d.is_some(), jnd, unc)));
+    }
+    out
 }
 
 /// Speed of sound at `celsius`, m/s: c = 331 + 0.6·t, the form ISO 354
@@ -167,6 +300,7 @@ pub fn absorption_area_m2(volume_m3: f64, t_s: f64, c: f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::model::Fraction;
 
     #[test]
     fn power_average_is_the_level_of_the_mean_power() {
@@ -217,25 +351,78 @@ mod tests {
     fn uncertainty_matches_the_reference_check_values() {
         // REFERENCES.md [calc]: T = 1 s at 1 kHz, n = N = 1: octave
         // σ(T20) = 0.0562 s, σ(T30) = 0.0328 s; third 0.0988 and 0.0576 s
-        let b1 = bandwidth_hz(1000.0, "1/1").unwrap();
-        let b3 = bandwidth_hz(1000.0, "1/3").unwrap();
+        let b1 = Fraction::Octave.uncertainty_bandwidth_hz(1000.0).unwrap();
+        let b3 = Fraction::Third.uncertainty_bandwidth_hz(1000.0).unwrap();
         let u = |p, b| t_uncertainty(p, 1.0, b, 1, 1).unwrap();
-        assert!((u("t20_s", b1) - 0.0562).abs() < 5e-5);
-        assert!((u("t30_s", b1) - 0.0328).abs() < 5e-5);
-        assert!((u("t20_s", b3) - 0.0988).abs() < 5e-5);
-        assert!((u("t30_s", b3) - 0.0576).abs() < 5e-5);
-        assert_eq!(t_uncertainty("edt_s", 1.0, b1, 1, 1), None);
+        assert!((u(Parameter::T20, b1) - 0.0562).abs() < 5e-5);
+        assert!((u(Parameter::T30, b1) - 0.0328).abs() < 5e-5);
+        assert!((u(Parameter::T20, b3) - 0.0988).abs() < 5e-5);
+        assert!((u(Parameter::T30, b3) - 0.0576).abs() < 5e-5);
+        assert_eq!(t_uncertainty(Parameter::Edt, 1.0, b1, 1, 1), None);
     }
 
     #[test]
     fn jnd_thresholds() {
-        assert_eq!(exceeds_jnd("t30_s", 1.0, 1.03), Some(false));
-        assert_eq!(exceeds_jnd("t30_s", 1.0, 1.10), Some(true));
-        assert_eq!(exceeds_jnd("c80_db", 2.0, 2.9), Some(false));
-        assert_eq!(exceeds_jnd("c80_db", 2.0, 3.1), Some(true));
-        assert_eq!(exceeds_jnd("d50", 0.5, 0.56), Some(true));
-        assert_eq!(exceeds_jnd("ts_s", 0.050, 0.055), Some(false));
-        assert_eq!(exceeds_jnd("inr_db", 50.0, 60.0), None);
+        assert_eq!(exceeds_jnd(Parameter::T30, 1.0, 1.03), Some(false));
+        assert_eq!(exceeds_jnd(Parameter::T30, 1.0, 1.10), Some(true));
+        assert_eq!(exceeds_jnd(Parameter::C80, 2.0, 2.9), Some(false));
+        assert_eq!(exceeds_jnd(Parameter::C80, 2.0, 3.1), Some(true));
+        assert_eq!(exceeds_jnd(Parameter::D50, 0.5, 0.56), Some(true));
+        assert_eq!(exceeds_jnd(Parameter::Ts, 0.050, 0.055), Some(false));
+        assert_eq!(exceeds_jnd(Parameter::Inr, 50.0, 60.0), None);
+    }
+
+    #[test]
+    fn verdict_codes_are_the_serialised_form() {
+        for v in Verdict::ALL {
+            assert_eq!(serde_json::to_value(v).unwrap(), v.code());
+        }
+    }
+
+    #[test]
+    fn one_verdict_from_the_two_tests() {
+        // the demo's case: T30 1.14 s -> 1.06 s is 7 % (beyond the 5 %
+        // JND), with an uncertainty of 0.06 s each (2·√2·0.06 = 0.17 s):
+        // within the uncertainty, so not called audible
+        let c = judge(
+            Parameter::T30,
+            &[Some(1.14), Some(1.06)],
+            &[Some(0.06), Some(0.06)],
+        );
+        assert_eq!(c.exceeds_jnd, vec![None, Some(true)]);
+        assert_eq!(c.exceeds_uncertainty, vec![None, Some(false)]);
+        assert_eq!(c.verdict, vec![None, Some(Verdict::WithinUncertainty)]);
+        // the same change measured ten times more precisely is audible
+        let c = judge(
+            Parameter::T30,
+            &[Some(1.14), Some(1.06)],
+            &[Some(0.006), Some(0.006)],
+        );
+        assert_eq!(c.verdict[1], Some(Verdict::Audible));
+        // a real change too small to hear
+        let c = judge(
+            Parameter::T30,
+            &[Some(1.0), Some(1.04)],
+            &[Some(0.001), Some(0.001)],
+        );
+        assert_eq!(c.verdict[1], Some(Verdict::MeasurableBelowJnd));
+        // beyond the JND without an uncertainty; below the JND; missing
+        let c = judge(
+            Parameter::C80,
+            &[Some(0.0), Some(2.0), Some(0.5), None],
+            &[None; 4],
+        );
+        assert_eq!(
+            c.verdict,
+            vec![
+                None,
+                Some(Verdict::BeyondJndUncertaintyUnknown),
+                Some(Verdict::BelowJnd),
+                Some(Verdict::NotMeasured)
+            ]
+        );
+        assert!((c.change[1].unwrap() - 2.0).abs() < 1e-12);
+        assert_eq!(c.relative_change[1], None); // over a reference of 0
     }
 
     #[test]

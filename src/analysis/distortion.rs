@@ -21,6 +21,7 @@ use crate::analysis::etc;
 use crate::analysis::response;
 use crate::analysis::smoothing::{PiecewiseIntegral, Smoothing};
 use crate::deconv;
+use crate::model::{Code, Warnings};
 use crate::signal::fft;
 use crate::signal::sweep::SweepDesign;
 use crate::signal::window::{self, Window};
@@ -123,16 +124,17 @@ pub struct Distortion {
     /// Highest order analysed.
     pub harmonics: u32,
     /// Smoothing applied to the orders and the fundamental.
-    pub smoothing: String,
+    pub smoothing: Smoothing,
     /// What `level_db` is relative to, in words.
     pub level_reference: String,
     /// Orders 2..=harmonics.
     pub orders: Vec<Order>,
     /// Total harmonic distortion.
     pub thd: Thd,
-    /// Warnings about the distortion estimate.
-    #[serde(default)]
-    pub warnings: Vec<String>,
+    /// Warnings about the distortion estimate (`warnings` and
+    /// `warning_codes`).
+    #[serde(flatten)]
+    pub warnings: Warnings,
 }
 
 /// What the distortion analysis needs from the linear analysis.
@@ -341,10 +343,11 @@ pub fn analyze(
             .collect(),
     };
 
-    let mut warnings = Vec::new();
+    let mut warnings = Warnings::new();
     if noise_psd.is_none() {
-        warnings.push(
-            "no stretch of the recording holds only noise, so the distortion orders cannot be told from noise and are not reported; use a sweep that spans more than a decade, with a silent tail".to_string(),
+        warnings.add(
+            Code::DistortionUnmeasurable,
+            "no stretch of the recording holds only noise, so the distortion orders cannot be told from noise and are not reported; use a sweep that spans more than a decade, with a silent tail",
         );
     }
     let high = thd
@@ -353,17 +356,17 @@ pub fn analyze(
         .filter(|p| p.is_some_and(|v| v > HIGH_THD_PERCENT))
         .count();
     if thd_len > 0 && high as f64 > HIGH_SHARE * thd_len as f64 {
-        warnings.push(format!(
+        warnings.add(Code::DistortionHigh, format!(
             "harmonic distortion exceeds {HIGH_THD_PERCENT} % over {:.0} % of the band: the device is driven hard or is clipping; lower the level and measure again",
             100.0 * high as f64 / thd_len as f64
         ));
     }
     if let Some(w) = overlap_warning(inputs, design) {
-        warnings.push(w);
+        warnings.add(Code::HarmonicOverlap, w);
     }
     Distortion {
         harmonics: max_order,
-        smoothing: smoothing.label(),
+        smoothing,
         level_reference: "dB re the fundamental at the same excitation frequency".into(),
         orders,
         thd,

@@ -27,6 +27,7 @@ pub mod target;
 
 use crate::deconv;
 use crate::error::{Error, Result};
+use crate::model::{Code, Parameter, Warning, Warnings};
 use crate::signal::sweep::SweepDesign;
 
 pub use distortion::Distortion;
@@ -112,7 +113,7 @@ pub struct Analysis {
     /// Peak of the impulse response over its noise, in dB.
     pub peak_to_noise_db: f64,
     /// What the user should know (clipping, low level, noise).
-    pub warnings: Vec<String>,
+    pub warnings: Warnings,
 }
 
 /// Checks a signal for emptiness, non-finite samples and silence; returns
@@ -154,7 +155,7 @@ pub fn analyze(
     config: &AnalysisConfig,
 ) -> Result<Analysis> {
     let fs = design.fs();
-    let mut warnings = Vec::new();
+    let mut warnings = Warnings::new();
     check_signal(stimulus, "the sweep")?;
     if stimulus.len() < design.sweep_samples {
         return Err(Error::input(format!(
@@ -174,14 +175,20 @@ pub fn analyze(
     let peak_dbfs = db20(peak);
     let clipped = recording.iter().filter(|v| v.abs() >= CLIP_LEVEL).count();
     if clipped > 0 {
-        warnings.push(format!(
-            "the recording clips: {clipped} samples at or above -0.1 dBFS (peak {peak_dbfs:.2} dBFS); lower the playback or input gain and measure again"
-        ));
+        warnings.add(
+            Code::RecordingClips,
+            format!(
+                "the recording clips: {clipped} samples at or above -0.1 dBFS (peak {peak_dbfs:.2} dBFS); lower the playback or input gain and measure again"
+            ),
+        );
     }
     if peak_dbfs < LOW_LEVEL_DBFS {
-        warnings.push(format!(
-            "the recording is very quiet (peak {peak_dbfs:.1} dBFS); raise the input gain or the sweep level for more signal-to-noise"
-        ));
+        warnings.add(
+            Code::RecordingQuiet,
+            format!(
+                "the recording is very quiet (peak {peak_dbfs:.1} dBFS); raise the input gain or the sweep level for more signal-to-noise"
+            ),
+        );
     }
 
     let f1 = design.params.start_hz;
@@ -216,13 +223,13 @@ pub fn analyze(
     let (peak_to_noise_db, from_noise) = peak_to_noise(&h, ipeak, end, harmonics_start);
     if peak_to_noise_db < MIN_PEAK_TO_NOISE_DB {
         warnings.push(if from_noise {
-            format!(
+            Warning::new(Code::LowPeakToNoise, format!(
                 "the impulse response rises only {peak_to_noise_db:.0} dB above its noise; check that the recording holds this sweep, and raise the level"
-            )
+            ))
         } else {
-            format!(
+            Warning::new(Code::NoNoiseStretch, format!(
                 "the end of the impulse response is only {peak_to_noise_db:.0} dB below its peak, and no part of the recording holds noise alone to tell decay from noise (the sweep spans less than a decade, or its tail is short); lengthen --tail or widen the sweep"
-            )
+            ))
         });
     }
 
@@ -249,14 +256,14 @@ pub fn analyze(
         // (distortion and bands keep the uncorrected response)
         remove_correction(&mut resp_spec, df, c);
         if let Some(w) = c.coverage_warning(f1, f2) {
-            warnings.push(w);
+            warnings.add(Code::MicCorrectionCoverage, w);
         }
     }
     let resp_spec = &resp_spec[..];
     let response = response::on_grid(resp_spec, df, &grid, config.smoothing, (f1, f2));
     if let Some(g) = gate_info {
         if g.resolution_hz > f1 {
-            warnings.push(format!(
+            warnings.add(Code::GateResolution, format!(
                 "the {:.2} ms gate resolves the response only above about {:.0} Hz (1/gate length); below, results.json marks it unresolved and the plot greys it out",
                 (g.end_s - g.start_s) * 1e3,
                 g.resolution_hz
@@ -326,17 +333,18 @@ pub fn analyze(
         let missing = r
             .bands
             .iter()
-            .filter(|b| b.t30_s.is_none() || b.t20_s.is_none() || b.edt_s.is_none())
+            .filter(|b| b.get(Parameter::T30).is_none() || b.get(Parameter::T20).is_none() || b.get(Parameter::Edt).is_none())
             .count();
         if missing > 0 {
-            warnings.push(format!(
+            warnings.add(Code::BandsIncomplete, format!(
                 "{missing} of {} bands lack some decay parameters (too little decay range, too short a decay for the band, or no decay); bands[].warnings says which and why",
                 r.bands.len()
             ));
         }
         if r.bands.iter().any(|b| b.curvature_percent.is_some_and(|c| c.abs() > room::MAX_CURVATURE_PERCENT)) {
-            warnings.push(
-                "some bands decay along more than one slope (curvature above 10 %); see bands[].warnings".to_string(),
+            warnings.add(
+                Code::CurvedDecays,
+                "some bands decay along more than one slope (curvature above 10 %); see bands[].warnings",
             );
         }
         r

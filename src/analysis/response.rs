@@ -13,8 +13,8 @@ const MAX_FFT: usize = 1 << 23;
 /// A response on the log grid.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct FrequencyResponse {
-    /// The smoothing applied, e.g. "1/6" or "none".
-    pub smoothing: String,
+    /// The smoothing applied.
+    pub smoothing: Smoothing,
     /// Grid frequencies in Hz.
     pub frequency_hz: Vec<f64>,
     /// Magnitude in dB (0 dB: the recording equals the sweep).
@@ -80,7 +80,7 @@ pub fn on_grid(
         phase_deg.push(wrap_deg(z.arg().to_degrees()));
     }
     FrequencyResponse {
-        smoothing: smoothing.label(),
+        smoothing,
         frequency_hz: grid.to_vec(),
         magnitude_db,
         phase_deg,

@@ -7,6 +7,8 @@ use serde::{Deserialize, Serialize};
 
 use crate::analysis::bands::{self, Band};
 use crate::analysis::decay::{self, Fit, SIXTY_DB};
+use crate::model::parameter::Values;
+use crate::model::{Code, Fraction, Parameter, Warnings};
 use crate::signal::fft;
 
 /// Decay range (dB above the noise) each parameter needs: its evaluation
@@ -25,39 +27,52 @@ pub const MIN_BT: f64 = 4.0;
 /// Curvature above this (%) is a warning of a non-exponential decay.
 pub const MAX_CURVATURE_PERCENT: f64 = 10.0;
 
-/// The parameters of one band (or of the whole band: `fraction` "broadband").
+/// The parameters of one band (or of the whole band: `fraction` broadband).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct BandResult {
-    /// Nominal centre (ISO 266), Hz; for "broadband" the geometric centre of the sweep.
+    /// Nominal centre (ISO 266), Hz; for broadband the geometric centre of the sweep.
     pub center_hz: f64,
     /// Exact base-10 mid-band frequency, Hz.
     pub exact_hz: f64,
-    /// "1/1", "1/3" or "broadband".
-    pub fraction: String,
-    /// Early decay time, s.
-    pub edt_s: Option<f64>,
-    /// T20, s.
-    pub t20_s: Option<f64>,
-    /// T30, s.
-    pub t30_s: Option<f64>,
-    /// Clarity C50, dB.
-    pub c50_db: Option<f64>,
-    /// Clarity C80, dB.
-    pub c80_db: Option<f64>,
-    /// Definition D50 (0…1).
-    pub d50: Option<f64>,
-    /// Centre time Ts, s.
-    pub ts_s: Option<f64>,
-    /// Impulse-to-noise ratio: the decay's starting level over the noise, dB.
-    pub inr_db: Option<f64>,
+    /// The band's width.
+    pub fraction: Fraction,
+    /// EDT, T20, T30, C50, C80, D50, Ts and INR (each its own key in JSON).
+    #[serde(flatten)]
+    pub values: Values,
     /// Curvature 100·(T30/T20 − 1), %.
     pub curvature_percent: Option<f64>,
-    /// Why a value is missing or doubtful, in plain words.
-    pub warnings: Vec<String>,
+    /// Why a value is missing or doubtful (`warnings` and `warning_codes`).
+    #[serde(flatten)]
+    pub warnings: Warnings,
     /// For an average over positions: per parameter, how many positions
     /// measured it and their sample standard deviation.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub spread: Option<std::collections::BTreeMap<String, Spread>>,
+    pub spread: Option<std::collections::BTreeMap<Parameter, Spread>>,
+}
+
+impl BandResult {
+    /// A band with nothing measured yet.
+    pub fn empty(center_hz: f64, exact_hz: f64, fraction: Fraction) -> Self {
+        BandResult {
+            center_hz,
+            exact_hz,
+            fraction,
+            values: Values::none(),
+            curvature_percent: None,
+            warnings: Warnings::new(),
+            spread: None,
+        }
+    }
+
+    /// The value of `p`.
+    pub fn get(&self, p: Parameter) -> Option<f64> {
+        self.values.get(p)
+    }
+
+    /// Whether this is the band of `fraction` at nominal `center_hz`.
+    pub fn is(&self, fraction: Fraction, center_hz: f64) -> bool {
+        self.fraction == fraction && (self.center_hz - center_hz).abs() <= 1e-6 * center_hz
+    }
 }
 
 /// The spread of one band parameter over positions (an average).
@@ -114,31 +129,17 @@ fn band_decay(
     bandwidth_hz: f64,
     fc: f64,
 ) -> (BandResult, Option<PlotCurve>) {
-    let mut r = BandResult {
-        center_hz: fc,
-        exact_hz: fc,
-        fraction: String::new(),
-        edt_s: None,
-        t20_s: None,
-        t30_s: None,
-        c50_db: None,
-        c80_db: None,
-        d50: None,
-        ts_s: None,
-        inr_db: None,
-        curvature_percent: None,
-        warnings: Vec::new(),
-        spread: None,
-    };
+    let mut r = BandResult::empty(fc, fc, Fraction::Broadband);
     let x = &p2[o.min(p2.len())..];
     let Some(tr) = decay::lundeby(x, fs, interval_s(fc)) else {
-        r.warnings.push(format!(
-            "{label}: no decay found above the noise; nothing measured"
-        ));
+        r.warnings.add(
+            Code::BandNoDecay,
+            format!("{label}: no decay found above the noise; nothing measured"),
+        );
         return (r, None);
     };
     let inr = 10.0 * (tr.start_level / tr.noise).log10();
-    r.inr_db = Some(inr);
+    r.values[Parameter::Inr] = Some(inr);
     let tau = tr.late_decay_s / SIXTY_DB;
     // energy an exponential at the late rate still holds after the
     // crosspoint, in Σx² units (Lundeby compensation)
@@ -146,43 +147,51 @@ fn band_decay(
     let curve = decay::schroeder_db(x, tr.crosspoint, tr.noise, tail);
     let mut fits = [None, None, None];
     let specs = [
-        ("EDT", 0.0, -10.0, RANGE_EDT_DB),
-        ("T20", -5.0, -25.0, RANGE_T20_DB),
-        ("T30", -5.0, -35.0, RANGE_T30_DB),
+        (Parameter::Edt, 0.0, -10.0, RANGE_EDT_DB),
+        (Parameter::T20, -5.0, -25.0, RANGE_T20_DB),
+        (Parameter::T30, -5.0, -35.0, RANGE_T30_DB),
     ];
-    for (k, (name, from, to, need)) in specs.into_iter().enumerate() {
+    for (k, (p, from, to, need)) in specs.into_iter().enumerate() {
         if inr < need {
-            r.warnings.push(format!(
-                "{label}: {name} needs {need:.0} dB of decay above the noise (its range must end 10 dB above it, ISO 3382-1); this band has {inr:.0} dB"
-            ));
+            r.warnings.add(
+                Code::BandDecayRange,
+                format!(
+                    "{label}: {p} needs {need:.0} dB of decay above the noise (its range must end 10 dB above it, ISO 3382-1); this band has {inr:.0} dB"
+                ),
+            );
             continue;
         }
         let Some(fit) = decay::fit_range(&curve, fs, from, to) else {
-            r.warnings.push(format!(
-                "{label}: the decay curve does not reach {to} dB before the noise; no {name}"
-            ));
+            r.warnings.add(
+                Code::BandRangeNotReached,
+                format!("{label}: the decay curve does not reach {to} dB before the noise; no {p}"),
+            );
             continue;
         };
         let bt = bandwidth_hz * fit.decay_time_s;
         if bt < MIN_BT {
-            r.warnings.push(format!(
-                "{label}: {name} of {:.3} s is too short for the band's filter (bandwidth × time {bt:.1} < {MIN_BT}, Jacobsen & Rindel 1987); not given",
-                fit.decay_time_s
-            ));
+            r.warnings.add(
+                Code::BandTooShortForFilter,
+                format!(
+                    "{label}: {p} of {:.3} s is too short for the band's filter (bandwidth × time {bt:.1} < {MIN_BT}, Jacobsen & Rindel 1987); not given",
+                    fit.decay_time_s
+                ),
+            );
             continue;
         }
         fits[k] = Some(fit);
+        r.values[p] = Some(fit.decay_time_s);
     }
-    r.edt_s = fits[0].map(|f| f.decay_time_s);
-    r.t20_s = fits[1].map(|f| f.decay_time_s);
-    r.t30_s = fits[2].map(|f| f.decay_time_s);
-    if let (Some(t20), Some(t30)) = (r.t20_s, r.t30_s) {
+    if let (Some(t20), Some(t30)) = (r.get(Parameter::T20), r.get(Parameter::T30)) {
         let c = 100.0 * (t30 / t20 - 1.0);
         r.curvature_percent = Some(c);
         if c.abs() > MAX_CURVATURE_PERCENT {
-            r.warnings.push(format!(
-                "{label}: curvature {c:.0} % (T30 against T20): the decay is not a single exponential (two slopes, coupled spaces or a mode); read T20 and T30 with care"
-            ));
+            r.warnings.add(
+                Code::BandCurvature,
+                format!(
+                    "{label}: curvature {c:.0} % (T30 against T20): the decay is not a single exponential (two slopes, coupled spaces or a mode); read T20 and T30 with care"
+                ),
+            );
         }
     }
     if inr >= RANGE_EDT_DB {
@@ -194,14 +203,17 @@ fn band_decay(
         let xe = &p2[o - ahead..];
         let (c50, c80, d50, ts) =
             decay::energy_parameters(xe, ahead, fs, ahead + tr.crosspoint, tail, tau);
-        r.c50_db = Some(c50);
-        r.c80_db = Some(c80);
-        r.d50 = Some(d50);
-        r.ts_s = Some(ts);
+        r.values[Parameter::C50] = Some(c50);
+        r.values[Parameter::C80] = Some(c80);
+        r.values[Parameter::D50] = Some(d50);
+        r.values[Parameter::Ts] = Some(ts);
     } else {
-        r.warnings.push(format!(
-            "{label}: only {inr:.0} dB above the noise; C50, C80, D50 and Ts need {RANGE_EDT_DB:.0} dB"
-        ));
+        r.warnings.add(
+            Code::BandEnergyRange,
+            format!(
+                "{label}: only {inr:.0} dB above the noise; C50, C80, D50 and Ts need {RANGE_EDT_DB:.0} dB"
+            ),
+        );
     }
     // a light copy of the curve for plots (about 600 points)
     let step = (curve.len() / 600).max(1);
@@ -250,16 +262,13 @@ pub fn analyze(ir: &[f64], fs: f64, f1: f64, f2: f64) -> Room {
             .chain(&x[..len2])
             .map(|v| (v * scale).powi(2))
             .collect();
-        let label = format!(
-            "{} Hz ({}-octave)",
-            band.nominal_hz,
-            if band.b == 1 { "1/1" } else { "1/3" }
-        );
+        let fraction = Fraction::of_designator(band.b).unwrap_or(Fraction::Third);
+        let label = format!("{} Hz ({fraction}-octave)", band.nominal_hz);
         let o = ahead + (onset_s * fs2).round() as usize;
         let (mut r, curve) = band_decay(&p2, o, fs2, &label, band.bandwidth_hz(), band.exact_hz);
         r.center_hz = band.nominal_hz;
         r.exact_hz = band.exact_hz;
-        r.fraction = band.fraction();
+        r.fraction = fraction;
         if band.b == 1 {
             if let Some((time_s, level_db, fits)) = curve {
                 curves.push(DecayCurve {
@@ -275,7 +284,7 @@ pub fn analyze(ir: &[f64], fs: f64, f1: f64, f2: f64) -> Room {
     let centre = (f1 * f2).sqrt();
     let o = (onset_s * fs).round() as usize;
     let (mut broadband, _) = band_decay(&p2_broad, o, fs, "broadband", f2 - f1, centre);
-    broadband.fraction = "broadband".into();
+    broadband.fraction = Fraction::Broadband;
     Room {
         bands: bands_out,
         broadband,
@@ -324,7 +333,7 @@ mod tests {
         let want = Band::new(1, x).nominal_hz;
         room.bands
             .iter()
-            .find(|b| b.fraction == "1/1" && b.center_hz == want)
+            .find(|b| b.fraction == Fraction::Octave && b.center_hz == want)
             .unwrap()
     }
 
@@ -334,7 +343,11 @@ mod tests {
         let room = analyze(&ir, FS, 20.0, 20_000.0);
         for (x, t60) in CASES {
             let b = octave(&room, x);
-            let (t20, t30, edt) = (b.t20_s.unwrap(), b.t30_s.unwrap(), b.edt_s.unwrap());
+            let (t20, t30, edt) = (
+                b.get(Parameter::T20).unwrap(),
+                b.get(Parameter::T30).unwrap(),
+                b.get(Parameter::Edt).unwrap(),
+            );
             // the criteria: T20, T30 within 1 %, EDT within 2 %
             assert!(
                 (t20 / t60 - 1.0).abs() < 0.01,
@@ -358,22 +371,22 @@ mod tests {
             let c80 = 10.0 * ((SIXTY_DB * 0.08 / t60).exp() - 1.0).log10();
             let ts = t60 / SIXTY_DB;
             assert!(
-                (b.d50.unwrap() - d50).abs() < 0.01,
+                (b.get(Parameter::D50).unwrap() - d50).abs() < 0.01,
                 "{} Hz D50 {:?} vs {d50}",
                 b.center_hz,
-                b.d50
+                b.get(Parameter::D50)
             );
             assert!(
-                (b.c80_db.unwrap() - c80).abs() < 0.3,
+                (b.get(Parameter::C80).unwrap() - c80).abs() < 0.3,
                 "{} Hz C80 {:?} vs {c80}",
                 b.center_hz,
-                b.c80_db
+                b.get(Parameter::C80)
             );
             assert!(
-                (b.ts_s.unwrap() / ts - 1.0).abs() < 0.02,
+                (b.get(Parameter::Ts).unwrap() / ts - 1.0).abs() < 0.02,
                 "{} Hz Ts {:?} vs {ts}",
                 b.center_hz,
-                b.ts_s
+                b.get(Parameter::Ts)
             );
             assert!(b.warnings.is_empty(), "{:?}", b.warnings);
         }
@@ -408,15 +421,15 @@ mod tests {
     fn t30_of(room: &Room, hz: f64) -> Option<f64> {
         room.bands
             .iter()
-            .find(|b| b.fraction == "1/1" && b.center_hz == hz)
-            .and_then(|b| b.t30_s)
+            .find(|b| b.fraction == Fraction::Octave && b.center_hz == hz)
+            .and_then(|b| b.get(Parameter::T30))
     }
 
     fn t20_of(room: &Room, hz: f64) -> Option<f64> {
         room.bands
             .iter()
-            .find(|b| b.fraction == "1/1" && b.center_hz == hz)
-            .and_then(|b| b.t20_s)
+            .find(|b| b.fraction == Fraction::Octave && b.center_hz == hz)
+            .and_then(|b| b.get(Parameter::T20))
     }
 
     #[test]
@@ -488,11 +501,13 @@ mod tests {
         let b = loud
             .bands
             .iter()
-            .find(|b| b.fraction == "1/1" && b.center_hz == 1000.0)
+            .find(|b| b.fraction == Fraction::Octave && b.center_hz == 1000.0)
             .unwrap();
-        assert!(b.t30_s.is_none());
+        assert!(b.get(Parameter::T30).is_none());
         assert!(
-            b.warnings.iter().any(|w| w.contains("T30 needs 45 dB")),
+            b.warnings
+                .iter()
+                .any(|w| w.message.contains("T30 needs 45 dB")),
             "{:?}",
             b.warnings
         );
@@ -512,7 +527,7 @@ mod tests {
         let band = room
             .bands
             .iter()
-            .find(|b| b.fraction == "1/1" && b.center_hz == 2000.0)
+            .find(|b| b.fraction == Fraction::Octave && b.center_hz == 2000.0)
             .unwrap();
         assert!(
             band.curvature_percent.unwrap() > 10.0,
@@ -520,7 +535,9 @@ mod tests {
             band.curvature_percent
         );
         assert!(
-            band.warnings.iter().any(|w| w.contains("curvature")),
+            band.warnings
+                .iter()
+                .any(|w| w.message.contains("curvature")),
             "{:?}",
             band.warnings
         );

@@ -60,7 +60,7 @@ pub fn run(a: Args) -> Result<()> {
         println!("  {f}");
     }
     if let Some(b) = results.broadband.as_ref() {
-        if let Some(t) = b.t30_s {
+        if let Some(t) = b.get(crate::model::Parameter::T30) {
             println!("broadband T30 {t:.2} s (mean over positions)");
         }
     }

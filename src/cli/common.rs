@@ -375,8 +375,42 @@ fn read_input(path: &Path) -> Result<(Vec<u8>, FileEntry)> {
     let bytes = std::fs::read(path).map_err(|e| Error::io("read", path, &e))?;
     let entry = FileEntry {
         name: path.display().to_string(),
-        role: "input".into(),
+        role: crate::folder::schema::FileRole::Input,
         sha256: sha256_hex(&bytes),
     };
     Ok((bytes, entry))
+}
+
+/// The octave-band T30 of input `k` of a comparison against the reference,
+/// one line per band, with the verdict comparison.json stores (and, with a
+/// room volume, the change of absorption area).
+pub fn print_octave_verdicts(cmp: &crate::folder::schema::Comparison, k: usize) {
+    use crate::model::{Fraction, Parameter};
+    for r in cmp
+        .bands
+        .iter()
+        .filter(|r| r.fraction == Fraction::Octave && r.parameter == Parameter::T30)
+    {
+        let (Some(t0), Some(t1)) = (r.values[0], r.values.get(k).copied().flatten()) else {
+            continue;
+        };
+        let area = cmp
+            .absorption
+            .iter()
+            .find(|x| x.fraction == Fraction::Octave && (x.center_hz - r.center_hz).abs() < 1e-6)
+            .and_then(|x| x.delta_area_m2.get(k).copied().flatten());
+        let verdict = r
+            .changes
+            .verdict
+            .get(k)
+            .copied()
+            .flatten()
+            .map_or("not judged", crate::analysis::compare::Verdict::words);
+        println!(
+            "  {:>6} Hz  T30 {t0:.2} s -> {t1:.2} s ({:+.0} %){}: {verdict}",
+            crate::plot::format_hz(r.center_hz),
+            100.0 * r.changes.relative_change[k].unwrap_or(0.0),
+            area.map_or(String::new(), |x| format!(", {x:+.1} m² absorption")),
+        );
+    }
 }

@@ -81,26 +81,7 @@ pub fn run(a: Args) -> Result<()> {
     // the octave-band verdict on the decay time, in a few lines
     for k in 1..cmp.inputs.len() {
         println!("{} against {}:", cmp.inputs[k].label, cmp.inputs[0].label);
-        for r in cmp
-            .bands
-            .iter()
-            .filter(|r| r.fraction == "1/1" && r.parameter == "t30_s")
-        {
-            let (Some(a0), Some(ak)) = (r.values[0], r.values[k]) else {
-                continue;
-            };
-            let verdict = match (r.exceeds_jnd[k], r.exceeds_uncertainty[k]) {
-                (Some(true), Some(true)) => "audible and beyond the uncertainty",
-                (Some(true), _) => "larger than the JND",
-                (_, Some(true)) => "measurable, below the JND",
-                _ => "no significant change",
-            };
-            println!(
-                "  {:>6} Hz  T30 {a0:.2} s -> {ak:.2} s ({:+.0} %): {verdict}",
-                crate::plot::format_hz(r.center_hz),
-                100.0 * r.relative_change[k].unwrap_or(0.0)
-            );
-        }
+        common::print_octave_verdicts(&cmp, k);
     }
     if let Some(t) = &cmp.target {
         for (i, r) in cmp.inputs.iter().zip(&t.per_input) {

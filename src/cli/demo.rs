@@ -253,30 +253,7 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
     })?;
     written.push("comparison".into());
     println!("compared before and after treatment (room volume {ROOM_VOLUME_M3:.1} m³):");
-    for r in cmp
-        .bands
-        .iter()
-        .filter(|r| r.fraction == "1/1" && r.parameter == "t30_s")
-    {
-        let (Some(t0), Some(t1)) = (r.values[0], r.values[1]) else {
-            continue;
-        };
-        let area = cmp
-            .absorption
-            .iter()
-            .find(|x| x.fraction == "1/1" && (x.center_hz - r.center_hz).abs() < 1e-6)
-            .and_then(|x| x.delta_area_m2[1]);
-        println!(
-            "  {:>6} Hz  T30 {t0:.2} s -> {t1:.2} s{}{}",
-            crate::plot::format_hz(r.center_hz),
-            area.map_or(String::new(), |x| format!(", {x:+.1} m² absorption")),
-            if r.exceeds_jnd[1] == Some(true) {
-                ", audible"
-            } else {
-                ""
-            }
-        );
-    }
+    common::print_octave_verdicts(&cmp, 1);
     let report = a.out.join("report.html");
     super::report::run(super::report::Args {
         dirs: vec![
@@ -286,6 +263,7 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
         ],
         out: report,
         overwrite: a.output.overwrite,
+        show_changed_raw: false,
     })?;
     println!("wrote {}:", common::show(&a.out));
     for w in &written {

@@ -9,21 +9,34 @@ use crate::analysis::Smoothing;
 use crate::error::Result;
 use crate::session::export::{self, Format, What};
 
-/// Options of `gliss export`.
-#[derive(Debug, ClapArgs)]
-#[command(after_help = "\
+/// What each --what holds; the band columns come from the parameters'
+/// own keys.
+fn after_help() -> String {
+    let bands: Vec<&str> = crate::model::Parameter::ALL
+        .iter()
+        .map(|p| p.key())
+        .collect();
+    format!(
+        "\
 What each --what holds (CSV header names carry the units):
   response    frequency_hz, magnitude_db, phase_deg (delay removed); spl_db and \
 sensitivity_db_spl when calibrated; resolved with a gate
   distortion  frequency_hz (excitation), h2_db ... hN_db (dB re the fundamental), \
 thd_percent; empty (JSON null) where not measured
-  bands       center_hz, exact_hz, fraction, edt_s, t20_s, t30_s, c50_db, c80_db, d50, \
-ts_s, inr_db, curvature_percent, warnings; per octave, one-third octave, broadband
+  bands       center_hz, exact_hz, fraction, {}, curvature_percent, warnings; per \
+octave, one-third octave, broadband
   impulse     time_s (after the first sample of the recording), amplitude (full scale)
 
 JSON holds the same columns under data, their order under columns, a units object \
 and source (the folder and the SHA-256 of its results.json). An existing --out is \
-never replaced without --overwrite.")]
+never replaced without --overwrite.",
+        bands.join(", ")
+    )
+}
+
+/// Options of `gliss export`.
+#[derive(Debug, ClapArgs)]
+#[command(after_help = after_help())]
 pub struct Args {
     /// The measurement folder (made by analyze, measure or demo).
     #[arg(value_name = "DIR")]
@@ -73,7 +86,6 @@ pub fn run(a: Args) -> Result<()> {
     if a.out.as_os_str() != "-" {
         let smoothing = t
             .smoothing
-            .as_deref()
             .map(|s| {
                 if t.resmoothed {
                     format!(", smoothed again at {s} from impulse.wav")

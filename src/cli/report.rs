@@ -7,9 +7,7 @@ use std::path::{Path, PathBuf};
 use clap::Args as ClapArgs;
 
 use crate::error::{Error, ErrorKind, Result};
-use crate::report::{self, Content, FileCheck, FileState, Folder, Plot};
-use crate::session::folder::sha256_hex;
-use crate::session::records::Manifest;
+use crate::report::{self, Folder, Plot};
 
 /// Options of `gliss report`.
 #[derive(Debug, ClapArgs)]
@@ -33,6 +31,10 @@ pub struct Args {
     /// Replace --out if it exists.
     #[arg(long)]
     pub overwrite: bool,
+    /// Report a folder even if a raw file no longer matches the SHA-256 its
+    /// manifest recorded, with a warning on its page (otherwise refused).
+    #[arg(long)]
+    pub show_changed_raw: bool,
 }
 
 /// Runs `gliss report`.
@@ -58,7 +60,7 @@ pub fn run(a: Args) -> Result<()> {
     let folders = a
         .dirs
         .iter()
-        .map(|d| read_folder(d))
+        .map(|d| read_folder(d, a.show_changed_raw))
         .collect::<Result<Vec<_>>>()?;
     let written = humantime::format_rfc3339_seconds(std::time::SystemTime::now()).to_string();
     let html = report::render(&folders, &written);
@@ -104,121 +106,25 @@ fn write_out(out: &Path, bytes: &[u8], overwrite: bool) -> Result<()> {
     })
 }
 
-/// Reads one folder for the report; refuses anything that is not a
-/// complete measurement or comparison folder, naming the folder.
-pub fn read_folder(dir: &Path) -> Result<Folder> {
-    let name = dir.display().to_string();
-    if !dir.is_dir() {
-        return Err(Error::input(format!(
-            "{name} is not a folder; give measurement folders written by gliss (analyze, measure, demo or compare)"
-        )));
-    }
-    let mpath = dir.join("manifest.json");
-    if !mpath.is_file() {
-        return Err(Error::input(format!(
-            "{name} is not a measurement folder: it has no manifest.json; give folders written by gliss analyze, measure, demo or compare"
-        )));
-    }
-    let text = fs::read_to_string(&mpath).map_err(|e| Error::io("read", &mpath, &e))?;
-    let value: serde_json::Value = serde_json::from_str(&text).map_err(|e| {
-        Error::input(format!(
-            "{name}: manifest.json is not valid JSON ({e}); the folder is damaged, re-analyse its raw files into a new folder"
-        ))
-    })?;
-    if value.get("complete").and_then(|v| v.as_bool()) == Some(false) {
-        let why = value
-            .get("problems")
-            .and_then(|p| p.as_array())
-            .and_then(|p| p.first())
-            .and_then(|p| p.as_str())
-            .map(|p| format!(" ({p})"))
-            .unwrap_or_default();
-        return Err(Error::input(format!(
-            "{name} is an incomplete measurement{why}; a report needs a complete folder: measure again, or analyse its recording.wav with gliss analyze into a new folder"
-        )));
-    }
-    let kind_is = |v: Option<&serde_json::Value>| v.and_then(|k| k.as_str()) == Some("comparison");
-    let comparison =
-        kind_is(value.get("kind")) || kind_is(value.get("source").and_then(|s| s.get("kind")));
-    let files = check_files(dir, &value);
+/// Reads one folder for the report through the one folder reader;
+/// refuses anything that is not a complete folder gliss wrote, or one whose
+/// raw files changed (unless `show_changed_raw`: then the report shows the
+/// damage).
+pub fn read_folder(dir: &Path, show_changed_raw: bool) -> Result<Folder> {
+    let f = crate::folder::open_with(
+        dir,
+        crate::folder::OpenOptions {
+            allow_changed_raw: show_changed_raw,
+        },
+    )?;
     let (plots, notes) = read_plots(dir)?;
-    let content = if comparison {
-        let cpath = dir.join("comparison.json");
-        let text = fs::read_to_string(&cpath).map_err(|e| {
-            Error::input(format!(
-                "{name} is a comparison folder without a readable comparison.json ({e}); run gliss compare again"
-            ))
-        })?;
-        let c: report::comparison::Comparison = serde_json::from_str(&text).map_err(|e| {
-            Error::input(format!(
-                "{name}: comparison.json does not parse ({e}); run gliss compare again into a new folder"
-            ))
-        })?;
-        Content::Comparison {
-            manifest: value,
-            comparison: Box::new(c),
-        }
-    } else {
-        let manifest: Manifest = serde_json::from_value(value).map_err(|e| {
-            Error::input(format!(
-                "{name}: manifest.json is not a gliss manifest ({e}); give folders written by gliss"
-            ))
-        })?;
-        let results = crate::session::read_results(dir).map_err(|e| {
-            Error::input(format!(
-                "{}; re-analyse the raw files of {name} (gliss analyze ... --overwrite)",
-                e.message()
-            ))
-        })?;
-        Content::Measurement {
-            manifest: Box::new(manifest),
-            results: Box::new(results),
-        }
-    };
     Ok(Folder {
-        name,
-        content,
+        name: dir.display().to_string(),
+        content: f.content,
         plots,
-        files,
+        files: f.files,
         notes,
     })
-}
-
-/// The manifest's files, each checked against its recorded SHA-256.
-fn check_files(dir: &Path, manifest: &serde_json::Value) -> Vec<FileCheck> {
-    let Some(list) = manifest.get("files").and_then(|f| f.as_array()) else {
-        return Vec::new();
-    };
-    list.iter()
-        .filter_map(|e| {
-            let name = e.get("name")?.as_str()?.to_string();
-            let sha256 = e.get("sha256")?.as_str()?.to_string();
-            let role = e
-                .get("role")
-                .and_then(|r| r.as_str())
-                .unwrap_or("")
-                .to_string();
-            // only paths inside the folder are checked
-            let inside = !name.is_empty()
-                && Path::new(&name)
-                    .components()
-                    .all(|c| matches!(c, std::path::Component::Normal(_)));
-            if !inside {
-                return None;
-            }
-            let state = match fs::read(dir.join(&name)) {
-                Ok(bytes) if sha256_hex(&bytes).eq_ignore_ascii_case(&sha256) => FileState::Matches,
-                Ok(_) => FileState::Differs,
-                Err(_) => FileState::Missing,
-            };
-            Some(FileCheck {
-                name,
-                role,
-                sha256,
-                state,
-            })
-        })
-        .collect()
 }
 
 /// plots/*.png of a folder, in the report's order, and a note for each

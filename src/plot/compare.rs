@@ -8,9 +8,11 @@ use plotters::prelude::*;
 use super::{
     BLUE, ORANGE, band_chart, canvas, db_range, draw_log_panel, legend, order_colour, plot_error,
 };
+use crate::analysis::compare::Verdict;
 use crate::analysis::room::BandResult;
 use crate::error::Result;
-use crate::session::compare::BandRow;
+use crate::folder::schema::BandRow;
+use crate::model::{Fraction, Parameter};
 
 /// The colour of input `k` of a comparison: the house blue and orange,
 /// then the distortion orders' colours.
@@ -138,7 +140,8 @@ fn band_axis(centres: &[f64]) -> (f64, f64) {
 }
 
 /// T30 (T20 where T30 is missing) per octave band for each input; bands
-/// where the change exceeds the just-noticeable difference get a ring.
+/// whose stored verdict is an audible change (beyond both the
+/// just-noticeable difference and the measurement uncertainty) get a ring.
 pub fn reverberation_png(
     path: &Path,
     title: &str,
@@ -146,13 +149,13 @@ pub fn reverberation_png(
     rows: &[BandRow],
 ) -> Result<()> {
     let (root, body) = canvas(path, &format!("Reverberation time per octave — {title}"))?;
-    let octave = |p: &str| -> Vec<&BandRow> {
+    let octave = |p: Parameter| -> Vec<&BandRow> {
         rows.iter()
-            .filter(|r| r.fraction == "1/1" && r.parameter == p)
+            .filter(|r| r.fraction == Fraction::Octave && r.parameter == p)
             .collect()
     };
-    let t30 = octave("t30_s");
-    let t20 = octave("t20_s");
+    let t30 = octave(Parameter::T30);
+    let t20 = octave(Parameter::T20);
     // per band: T30 if every input has it, else T20
     let mut per_band: Vec<(&BandRow, &'static str)> = Vec::new();
     for (i, r) in t30.iter().enumerate() {
@@ -198,7 +201,14 @@ pub fn reverberation_png(
             if k > 0 {
                 let rings: Vec<(f64, f64)> = per_band
                     .iter()
-                    .filter(|(r, _)| r.exceeds_jnd[k] == Some(true))
+                    .filter(|(r, _)| {
+                        r.changes
+                            .verdict
+                            .get(k)
+                            .copied()
+                            .flatten()
+                            .is_some_and(Verdict::is_audible)
+                    })
                     .filter_map(|(r, _)| r.values[k].map(|v| (r.center_hz, v)))
                     .collect();
                 let s = chart.draw_series(
@@ -207,7 +217,7 @@ pub fn reverberation_png(
                         .map(|&p| Circle::new(p, 10, colour.stroke_width(2))),
                 )?;
                 if k == 1 && !rings.is_empty() {
-                    s.label("ring: change larger than the just-noticeable 5 %")
+                    s.label("ring: audible (beyond the 5 % JND and the uncertainty)")
                         .legend(move |(x, y)| Circle::new((x + 12, y), 7, colour.stroke_width(2)));
                 }
             }
@@ -279,24 +289,24 @@ pub fn average_response_png(
 /// Mean T30 per band over positions with ± one standard deviation.
 pub fn average_reverberation_png(path: &Path, title: &str, bands: &[BandResult]) -> Result<()> {
     let (root, body) = canvas(path, &format!("Reverberation time per band — {title}"))?;
-    let get = |fraction: &str| -> Vec<(f64, f64, f64)> {
+    let get = |fraction: Fraction| -> Vec<(f64, f64, f64)> {
         bands
             .iter()
             .filter(|b| b.fraction == fraction)
             .filter_map(|b| {
-                let t = b.t30_s?;
+                let t = b.get(Parameter::T30)?;
                 let s = b
                     .spread
                     .as_ref()
-                    .and_then(|s| s.get("t30_s"))
+                    .and_then(|s| s.get(&Parameter::T30))
                     .and_then(|s| s.std)
                     .unwrap_or(0.0);
                 Some((b.center_hz, t, s))
             })
             .collect()
     };
-    let oct = get("1/1");
-    let third = get("1/3");
+    let oct = get(Fraction::Octave);
+    let third = get(Fraction::Third);
     let centres: Vec<f64> = bands.iter().map(|b| b.center_hz).collect();
     let (f_lo, f_hi) = band_axis(&centres);
     let y_max = oct

@@ -16,6 +16,7 @@ pub mod compare;
 
 use crate::analysis::etc;
 use crate::error::{Error, ErrorKind, Result};
+use crate::model::{Fraction, Parameter};
 
 /// Font family name under which the embedded font is registered.
 const FONT: &str = "sans-serif";
@@ -916,7 +917,7 @@ pub fn reverberation_png(
     room: &crate::analysis::room::Room,
 ) -> Result<()> {
     let (root, body) = canvas(path, &format!("Reverberation time per band — {title}"))?;
-    let get = |fraction: &str,
+    let get = |fraction: Fraction,
                f: fn(&crate::analysis::room::BandResult) -> Option<f64>|
      -> Vec<(f64, f64)> {
         room.bands
@@ -925,10 +926,10 @@ pub fn reverberation_png(
             .filter_map(|b| f(b).map(|v| (b.center_hz, v)))
             .collect()
     };
-    let t30 = get("1/1", |b| b.t30_s);
-    let t20 = get("1/1", |b| b.t20_s);
-    let edt = get("1/1", |b| b.edt_s);
-    let third = get("1/3", |b| b.t30_s);
+    let t30 = get(Fraction::Octave, |b| b.get(Parameter::T30));
+    let t20 = get(Fraction::Octave, |b| b.get(Parameter::T20));
+    let edt = get(Fraction::Octave, |b| b.get(Parameter::Edt));
+    let third = get(Fraction::Third, |b| b.get(Parameter::T30));
     let all: Vec<f64> = [&t30, &t20, &edt, &third]
         .iter()
         .flat_map(|v| v.iter().map(|p| p.1))

@@ -14,8 +14,8 @@ use std::fmt::Write;
 use base64::Engine;
 
 use crate::analysis::room::BandResult;
-use crate::session::records::{Manifest, Results};
-use comparison::Comparison;
+use crate::folder::schema::{Comparison, ComparisonManifest, FileRole, Manifest, Results};
+use crate::model::{Code, Fraction, Parameter, Warning};
 use html::{esc, hz, num, trim};
 
 /// A plot of a folder.
@@ -27,52 +27,10 @@ pub struct Plot {
     pub png: Vec<u8>,
 }
 
-/// What became of a file the manifest lists, when its SHA-256 was checked.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum FileState {
-    /// Its bytes have the SHA-256 the manifest records.
-    Matches,
-    /// Its bytes differ from what the manifest records.
-    Differs,
-    /// It is not in the folder.
-    Missing,
-}
-
-/// A file the manifest lists, checked against its recorded SHA-256.
-#[derive(Debug, Clone, PartialEq)]
-pub struct FileCheck {
-    /// Path inside the folder.
-    pub name: String,
-    /// "raw", "derived", "input", …
-    pub role: String,
-    /// The SHA-256 the manifest records.
-    pub sha256: String,
-    /// What the check found.
-    pub state: FileState,
-}
-
-/// What a folder holds.
-#[derive(Debug, Clone, PartialEq)]
-pub enum Content {
-    /// One measurement: its manifest and results.json.
-    Measurement {
-        /// manifest.json.
-        manifest: Box<Manifest>,
-        /// results.json.
-        results: Box<Results>,
-    },
-    /// A comparison of measurements: its manifest (read loosely: its
-    /// layout belongs to the compare command) and comparison.json.
-    Comparison {
-        /// manifest.json as JSON.
-        manifest: serde_json::Value,
-        /// comparison.json.
-        comparison: Box<Comparison>,
-    },
-}
+pub use crate::folder::{Content, FileCheck, FileState};
 
 /// One folder of the report, read.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone)]
 pub struct Folder {
     /// The folder as given on the command line.
     pub name: String,
@@ -223,14 +181,8 @@ pub fn render(folders: &[Folder], written_utc: &str) -> String {
 }
 
 /// A comparison's one-line description.
-fn comparison_title(manifest: &serde_json::Value, c: &Comparison) -> String {
-    let from_manifest = manifest.get("title").and_then(|v| v.as_str()).or_else(|| {
-        manifest
-            .get("source")
-            .and_then(|s| s.get("description"))
-            .and_then(|v| v.as_str())
-    });
-    match from_manifest {
+fn comparison_title(manifest: &ComparisonManifest, c: &Comparison) -> String {
+    match Some(manifest.source.description.as_str()).filter(|d| !d.is_empty()) {
         Some(t) => t.to_string(),
         None => format!(
             "comparison of {}",
@@ -295,18 +247,10 @@ fn measurement(out: &mut String, f: &Folder, m: &Manifest, r: &Results, n: &mut 
             hz(m.sweep.params.start_hz),
             hz(m.sweep.params.end_hz)
         );
-        for (label, v, unit, dec, scale) in [
-            ("T30", b.t30_s, "s", 2, 1.0),
-            ("EDT", b.edt_s, "s", 2, 1.0),
-            ("C80", b.c80_db, "dB", 1, 1.0),
-        ] {
-            match v {
-                Some(v) => key(
-                    out,
-                    label,
-                    &format!("{} {unit}", num(v * scale, dec)),
-                    &band,
-                ),
+        for p in [Parameter::T30, Parameter::Edt, Parameter::C80] {
+            let label = p.label();
+            match b.get(p) {
+                Some(v) => key(out, label, &p.show_with_unit(v), &band),
                 None => key(
                     out,
                     label,
@@ -348,10 +292,9 @@ fn measurement(out: &mut String, f: &Folder, m: &Manifest, r: &Results, n: &mut 
     key(
         out,
         "Smoothing",
-        &if r.response.smoothing == "none" {
-            "none".to_string()
-        } else {
-            format!("{} octave", r.response.smoothing)
+        &match r.response.smoothing {
+            crate::analysis::Smoothing::None => "none".to_string(),
+            s => format!("{s} octave"),
         },
         "of the frequency response",
     );
@@ -364,11 +307,11 @@ fn measurement(out: &mut String, f: &Folder, m: &Manifest, r: &Results, n: &mut 
         out.push_str("<h3>Bands</h3><p class=\"muted\">No band parameters: this measurement was analysed without bands (the speaker profile's default, or --no-bands).</p>");
     } else {
         out.push_str("<h3>Reverberation and energy parameters per band</h3><p class=\"muted\">ISO 3382-1 parameters from the impulse response. EDT, T20 and T30 are decay times extrapolated to 60 dB; C50 and C80 the early-to-late energy ratios; D50 the share of energy in the first 50 ms; Ts the centre time; INR the decay's start above the noise. — marks a value that could not be measured; the note says why.</p>");
-        for (fraction, name) in [("1/1", "octave"), ("1/3", "one-third-octave")] {
+        for fraction in [Fraction::Octave, Fraction::Third] {
             let rows: Vec<&BandResult> =
                 r.bands.iter().filter(|b| b.fraction == fraction).collect();
             if !rows.is_empty() {
-                band_table(out, &rows, fraction, name, n);
+                band_table(out, &rows, fraction, n);
             }
         }
     }
@@ -389,19 +332,29 @@ fn measurement(out: &mut String, f: &Folder, m: &Manifest, r: &Results, n: &mut 
 }
 
 /// Warnings in plain words, grouped, with what to do.
-fn warnings(out: &mut String, general: &[String], bands: &[BandResult], f: &Folder) {
-    let mut all: Vec<String> = general.to_vec();
-    all.extend(f.notes.iter().cloned());
+fn warnings(out: &mut String, general: &[Warning], bands: &[BandResult], f: &Folder) {
+    let mut all: Vec<Warning> = general.to_vec();
+    all.extend(
+        f.notes
+            .iter()
+            .map(|n| Warning::new(Code::FileUnreadable, n.clone())),
+    );
     for c in &f.files {
         match c.state {
             FileState::Matches => {}
-            FileState::Differs => all.push(format!(
-                "{} differs from the file the analysis wrote or read (its SHA-256 does not match the manifest)",
-                c.name
+            FileState::Differs => all.push(Warning::new(
+                Code::FileChanged,
+                format!(
+                    "{} differs from the file the analysis wrote or read (its SHA-256 does not match the manifest)",
+                    c.entry.name
+                ),
             )),
-            FileState::Missing => all.push(format!(
-                "{} is missing from the folder though the manifest lists it",
-                c.name
+            FileState::Missing => all.push(Warning::new(
+                Code::FileMissing,
+                format!(
+                    "{} is missing from the folder though the manifest lists it",
+                    c.entry.name
+                ),
             )),
         }
     }
@@ -457,10 +410,9 @@ fn figure(out: &mut String, p: &Plot, caption: &str, n: &mut Counters) {
 
 /// What a measurement's plot shows, in words.
 fn caption(p: &Plot, m: &Manifest, r: &Results) -> String {
-    let smoothing = if r.response.smoothing == "none" {
-        "no smoothing".to_string()
-    } else {
-        format!("{}-octave smoothing", r.response.smoothing)
+    let smoothing = match r.response.smoothing {
+        crate::analysis::Smoothing::None => "no smoothing".to_string(),
+        s => format!("{s}-octave smoothing"),
     };
     let gate = r.response.gate.map_or(String::new(), |g| {
         format!(
@@ -504,37 +456,8 @@ fn ordinal(n: u32) -> String {
     }
 }
 
-/// A band parameter as shown: (results.json name, label, unit, scale,
-/// decimals, value).
-type Column = (
-    &'static str,
-    &'static str,
-    &'static str,
-    f64,
-    usize,
-    fn(&BandResult) -> Option<f64>,
-);
-
-/// The band table's columns.
-pub const BAND_COLUMNS: [Column; 8] = [
-    ("edt_s", "EDT", "s", 1.0, 2, |b| b.edt_s),
-    ("t20_s", "T20", "s", 1.0, 2, |b| b.t20_s),
-    ("t30_s", "T30", "s", 1.0, 2, |b| b.t30_s),
-    ("c50_db", "C50", "dB", 1.0, 1, |b| b.c50_db),
-    ("c80_db", "C80", "dB", 1.0, 1, |b| b.c80_db),
-    ("d50", "D50", "", 1.0, 2, |b| b.d50),
-    ("ts_s", "Ts", "ms", 1000.0, 0, |b| b.ts_s),
-    ("inr_db", "INR", "dB", 1.0, 0, |b| b.inr_db),
-];
-
 /// One table of bands with notes for missing and doubtful values.
-fn band_table(
-    out: &mut String,
-    rows: &[&BandResult],
-    fraction: &str,
-    name: &str,
-    n: &mut Counters,
-) {
+fn band_table(out: &mut String, rows: &[&BandResult], fraction: Fraction, n: &mut Counters) {
     n.table += 1;
     let mut notes: Vec<String> = Vec::new();
     let mut note = |text: &str| -> usize {
@@ -548,11 +471,13 @@ fn band_table(
     };
     let _ = write!(
         out,
-        "<table class=\"bands\" data-fraction=\"{}\"><caption>Table {}. Per {name} band</caption><thead><tr><th scope=\"col\">Band</th>",
-        esc(fraction),
-        n.table
+        "<table class=\"bands\" data-fraction=\"{}\"><caption>Table {}. Per {} band</caption><thead><tr><th scope=\"col\">Band</th>",
+        esc(fraction.code()),
+        n.table,
+        fraction.words()
     );
-    for (_, label, unit, ..) in BAND_COLUMNS {
+    for p in Parameter::ALL {
+        let (label, unit) = (p.label(), p.info().display_unit);
         let _ = write!(
             out,
             "<th scope=\"col\" class=\"num\">{label}{}</th>",
@@ -567,17 +492,18 @@ fn band_table(
     for b in rows {
         let mut cells = String::new();
         let mut used: Vec<&str> = Vec::new();
-        for (keyname, label, _, scale, dec, get) in BAND_COLUMNS {
-            match get(b) {
+        for p in Parameter::ALL {
+            let keyname = p.key();
+            match b.get(p) {
                 Some(v) => {
                     let _ = write!(
                         cells,
                         "<td class=\"num\" data-key=\"{keyname}\">{}</td>",
-                        num(v * scale, dec)
+                        p.show(v)
                     );
                 }
                 None => {
-                    let reason = advice::reason_for(&b.warnings, label);
+                    let reason = advice::reason_for(&b.warnings, p.label());
                     if let Some(r) = reason {
                         used.push(r);
                     }
@@ -595,14 +521,14 @@ fn band_table(
         let marks: Vec<String> = b
             .warnings
             .iter()
-            .filter(|w| !used.contains(&w.as_str()))
-            .map(|w| note(advice::without_label(w)).to_string())
+            .filter(|w| !used.contains(&w.message.as_str()))
+            .map(|w| note(advice::without_label(&w.message)).to_string())
             .collect();
         let _ = write!(
             out,
             "<tr data-center-hz=\"{}\" data-fraction=\"{}\"><th scope=\"row\">{}{}</th>{cells}</tr>",
             b.center_hz,
-            esc(&b.fraction),
+            esc(b.fraction.code()),
             esc(&hz(b.center_hz)),
             if marks.is_empty() {
                 String::new()
@@ -725,7 +651,7 @@ fn about(out: &mut String, f: &Folder, m: &Manifest) {
         row("Problem", p);
     }
     out.push_str("</tbody></table>");
-    files_table(out, f, "raw");
+    files_table(out, f, FileRole::Raw);
 }
 
 fn source_kind(k: &str) -> &str {
@@ -738,15 +664,19 @@ fn source_kind(k: &str) -> &str {
 }
 
 /// The files of `role` with their SHA-256 and whether they still match.
-fn files_table(out: &mut String, f: &Folder, role: &str) {
-    let files: Vec<&FileCheck> = f.files.iter().filter(|c| c.role == role).collect();
+fn files_table(out: &mut String, f: &Folder, role: FileRole) {
+    let files: Vec<&FileCheck> = f.files.iter().filter(|c| c.entry.role == role).collect();
     if files.is_empty() {
         return;
     }
     let _ = write!(
         out,
         "<table class=\"files\"><caption>The {} files and their SHA-256</caption><thead><tr><th scope=\"col\">File</th><th scope=\"col\">SHA-256 (manifest)</th><th scope=\"col\">Check</th></tr></thead><tbody>",
-        if role == "raw" { "raw" } else { "input" }
+        if role == FileRole::Raw {
+            "raw"
+        } else {
+            "input"
+        }
     );
     for c in files {
         let (class, words) = match c.state {
@@ -757,8 +687,8 @@ fn files_table(out: &mut String, f: &Folder, role: &str) {
         let _ = write!(
             out,
             "<tr><td class=\"file\">{}</td><td class=\"hash\">{}</td><td class=\"{class}\">{words}</td></tr>",
-            esc(&c.name),
-            esc(&c.sha256)
+            esc(&c.entry.name),
+            esc(&c.entry.sha256)
         );
     }
     out.push_str("</tbody></table>");
@@ -768,7 +698,7 @@ fn files_table(out: &mut String, f: &Folder, role: &str) {
 fn comparison_section(
     out: &mut String,
     f: &Folder,
-    manifest: &serde_json::Value,
+    manifest: &ComparisonManifest,
     c: &Comparison,
     n: &mut Counters,
 ) {
@@ -784,7 +714,7 @@ fn comparison_section(
         &format!("{} measurements", c.inputs.len()),
         &format!(
             "reference: {}",
-            c.inputs.first().map_or("none", comparison::Input::name)
+            c.inputs.first().map_or("none", |i| i.name())
         ),
     );
     let (audible, other, missing) = comparison::tally(c);
@@ -816,14 +746,18 @@ fn comparison_section(
             out,
             "<tr><td>{}</td><td>{}{}</td><td class=\"file\">{}</td><td class=\"hash\">{}</td></tr>",
             i + 1,
-            esc(input.label.as_deref().unwrap_or("")),
+            esc(&input.label),
             if i == 0 {
                 " <span class=\"muted\">(reference)</span>"
             } else {
                 ""
             },
             esc(&input.folder),
-            esc(input.sha256.as_deref().unwrap_or("—"))
+            esc(if input.sha256.is_empty() {
+                "—"
+            } else {
+                &input.sha256
+            })
         );
     }
     out.push_str("</tbody></table>");
@@ -850,9 +784,7 @@ fn comparison_section(
                 "compare-response" => format!("The frequency responses of {names} overlaid."),
                 "compare-difference" => format!(
                     "The difference of each response from the reference, {}, in dB against frequency.",
-                    c.inputs
-                        .first()
-                        .map_or("the first", comparison::Input::name)
+                    c.inputs.first().map_or("the first", |i| i.name())
                 ),
                 "compare-reverberation" => format!("Reverberation time per band of {names}."),
                 other => format!("The plot {other}."),
@@ -871,24 +803,13 @@ fn comparison_section(
         );
     };
     row("Folder", &f.name);
-    let text = |k: &str| manifest.get(k).and_then(|v| v.as_str()).map(str::to_string);
-    if let Some(t) = text("created_utc") {
-        row("Made", &t);
-    }
-    if let Some(v) = text("tool_version") {
-        row(
-            "Tool",
-            &format!("{} {v}", text("tool").unwrap_or_else(|| "gliss".into())),
-        );
-    }
-    if let Some(cl) = manifest.get("command_line").and_then(|v| v.as_array()) {
-        row(
-            "Command",
-            &cl.iter()
-                .filter_map(|v| v.as_str())
-                .collect::<Vec<_>>()
-                .join(" "),
-        );
+    row("Made", &manifest.created_utc);
+    row(
+        "Tool",
+        &format!("{} {}", manifest.tool, manifest.tool_version),
+    );
+    if !manifest.command_line.is_empty() {
+        row("Command", &manifest.command_line.join(" "));
     }
     out.push_str("</tbody></table>");
 }

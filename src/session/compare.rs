@@ -6,17 +6,19 @@
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
-use serde::{Deserialize, Serialize};
-
-use crate::analysis::compare::{self as calc, PARAMETERS};
+use crate::analysis::Smoothing;
+use crate::analysis::compare::{self as calc};
 use crate::analysis::room::{BandResult, Spread};
+use crate::analysis::smoothing::smooth_on_log_grid;
 use crate::error::{Error, ErrorKind, Result};
-use crate::plot;
-use crate::session::folder::{MeasurementFolder, sha256_hex};
-use crate::session::records::{
-    AverageRecord, FileEntry, InputRecord, Manifest, ResponseRecord, Results, SCHEMA_VERSION,
-    Settings, Source,
+use crate::folder::schema::{
+    AbsorptionRow, AverageRecord, BandRow, CompareResponse, CompareTarget, Comparison,
+    ComparisonManifest, FileEntry, FolderKind, InputRecord, Manifest, ResponseRecord, Results,
+    SCHEMA_VERSION, Settings, Source,
 };
+use crate::folder::{self, MeasurementFolder};
+use crate::model::{Code, Fraction, Parameter, Warnings};
+use crate::plot::{self, format_hz};
 use crate::session::{bands_table_csv, response_csv, to_json};
 
 /// A measurement folder read for averaging or comparing.
@@ -37,76 +39,43 @@ impl Input {
     pub fn positions(&self) -> usize {
         self.results.average.as_ref().map_or(1, |a| a.positions)
     }
+
+    /// Its band of `fraction` at `center_hz` (the broadband values for
+    /// [`Fraction::Broadband`]).
+    pub fn band(&self, center_hz: f64, fraction: Fraction) -> Option<&BandResult> {
+        if fraction == Fraction::Broadband {
+            return self.results.broadband.as_ref();
+        }
+        self.results
+            .bands
+            .iter()
+            .find(|b| b.is(fraction, center_hz))
+    }
 }
 
-/// The label of a folder: its last path component.
-fn folder_label(dir: &Path) -> String {
-    dir.file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| dir.display().to_string())
-}
-
-/// Reads and checks one input folder: it must be a complete measurement
-/// or average written by gliss.
+/// Reads and checks one input folder through [`folder::open`]: it must be
+/// a complete measurement or average whose raw files are intact.
 pub fn read_input(dir: &Path, label: Option<&str>) -> Result<Input> {
-    let show = dir.display();
-    let mpath = dir.join("manifest.json");
-    if !dir.is_dir() {
-        return Err(Error::input(format!(
-            "{show} is not a folder; give measurement folders written by gliss measure, analyze, demo or average"
-        )));
-    }
-    let mbytes = std::fs::read(&mpath).map_err(|_| {
-        Error::input(format!(
-            "{show} is not a measurement folder (it has no manifest.json); give folders written by gliss measure, analyze, demo or average"
-        ))
-    })?;
-    let value: serde_json::Value = serde_json::from_slice(&mbytes)
-        .map_err(|e| Error::input(format!("{show}/manifest.json is not valid JSON: {e}")))?;
-    if value.get("kind").and_then(|k| k.as_str()) == Some("comparison") {
-        return Err(Error::input(format!(
-            "{show} is a comparison, not a measurement; give the measurement folders it compared"
-        )));
-    }
-    let manifest: Manifest = serde_json::from_value(value).map_err(|e| {
-        Error::input(format!(
-            "{show}/manifest.json is not a gliss measurement manifest ({e})"
-        ))
-    })?;
-    if !manifest.complete {
-        let why = if manifest.problems.is_empty() {
-            "it was interrupted".to_string()
-        } else {
-            manifest.problems.join("; ")
-        };
-        return Err(Error::input(format!(
-            "{show} holds an incomplete measurement ({why}); measure again, or leave it out"
-        )));
-    }
-    let rpath = dir.join("results.json");
-    let rbytes = std::fs::read(&rpath).map_err(|e| Error::io("read", &rpath, &e))?;
-    let results: Results = serde_json::from_slice(&rbytes).map_err(|e| {
-        Error::input(format!(
-            "{show}/results.json is not a gliss results file ({e}); re-analyse the folder"
-        ))
-    })?;
+    let f = folder::open(dir)?;
+    let (manifest, results) = f.measurement("give the measurement folders it compared")?;
     if results.response.frequency_hz.is_empty()
         || results.response.frequency_hz.len() != results.response.magnitude_db.len()
     {
         return Err(Error::input(format!(
-            "{show}/results.json holds no frequency response"
+            "{}/results.json holds no frequency response",
+            dir.display()
         )));
     }
     Ok(Input {
         dir: dir.to_path_buf(),
         record: InputRecord {
             folder: dir.display().to_string(),
-            label: label.map_or_else(|| folder_label(dir), str::to_string),
-            sha256: sha256_hex(&mbytes),
-            results_sha256: sha256_hex(&rbytes),
+            label: label.map_or_else(|| f.label(), str::to_string),
+            sha256: f.manifest_sha256.clone(),
+            results_sha256: f.content_sha256.clone(),
         },
-        manifest,
-        results,
+        manifest: manifest.clone(),
+        results: results.clone(),
     })
 }
 
@@ -125,45 +94,9 @@ pub fn read_inputs(dirs: &[PathBuf], labels: &[String]) -> Result<Vec<Input>> {
         .collect()
 }
 
-/// The value of `parameter` (a results.json name) in a band.
-pub fn band_value(b: &BandResult, parameter: &str) -> Option<f64> {
-    match parameter {
-        "edt_s" => b.edt_s,
-        "t20_s" => b.t20_s,
-        "t30_s" => b.t30_s,
-        "c50_db" => b.c50_db,
-        "c80_db" => b.c80_db,
-        "d50" => b.d50,
-        "ts_s" => b.ts_s,
-        "inr_db" => b.inr_db,
-        _ => None,
-    }
-}
-
-fn set_band_value(b: &mut BandResult, parameter: &str, v: Option<f64>) {
-    match parameter {
-        "edt_s" => b.edt_s = v,
-        "t20_s" => b.t20_s = v,
-        "t30_s" => b.t30_s = v,
-        "c50_db" => b.c50_db = v,
-        "c80_db" => b.c80_db = v,
-        "d50" => b.d50 = v,
-        "ts_s" => b.ts_s = v,
-        "inr_db" => b.inr_db = v,
-        _ => {}
-    }
-}
-
-/// The band of `fraction` at `center_hz` in a results file.
-fn find_band<'a>(r: &'a Results, center_hz: f64, fraction: &str) -> Option<&'a BandResult> {
-    r.bands
-        .iter()
-        .find(|b| b.fraction == fraction && (b.center_hz - center_hz).abs() < 1e-6 * center_hz)
-}
-
 /// The frequency grid all inputs share: the first input's grid within the
 /// band every input covers. Warns when the inputs' rates or bands differ.
-fn common_grid(inputs: &[Input], warnings: &mut Vec<String>) -> Result<Vec<f64>> {
+fn common_grid(inputs: &[Input], warnings: &mut Warnings) -> Result<Vec<f64>> {
     let lo = inputs
         .iter()
         .map(|i| i.results.response.frequency_hz[0])
@@ -179,14 +112,17 @@ fn common_grid(inputs: &[Input], warnings: &mut Vec<String>) -> Result<Vec<f64>>
     }
     let rates: Vec<u32> = inputs.iter().map(|i| i.results.sample_rate_hz).collect();
     if rates.iter().any(|&r| r != rates[0]) {
-        warnings.push(format!(
-            "the folders were measured at different sample rates ({} Hz); they are compared on their common band",
-            rates
-                .iter()
-                .map(|r| r.to_string())
-                .collect::<Vec<_>>()
-                .join(", ")
-        ));
+        warnings.add(
+            Code::MixedSampleRates,
+            format!(
+                "the folders were measured at different sample rates ({} Hz); they are compared on their common band",
+                rates
+                    .iter()
+                    .map(|r| r.to_string())
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ),
+        );
     }
     let bands: Vec<(f64, f64)> = inputs
         .iter()
@@ -199,11 +135,14 @@ fn common_grid(inputs: &[Input], warnings: &mut Vec<String>) -> Result<Vec<f64>>
         .iter()
         .any(|b| (b.0 / bands[0].0 - 1.0).abs() > 1e-3 || (b.1 / bands[0].1 - 1.0).abs() > 1e-3)
     {
-        warnings.push(format!(
-            "the folders' sweeps cover different bands; only the common band {} Hz to {} Hz is compared",
-            plot::format_hz(lo.round()),
-            plot::format_hz(hi.round())
-        ));
+        warnings.add(
+            Code::DifferentBands,
+            format!(
+                "the folders' sweeps cover different bands; only the common band {} Hz to {} Hz is compared",
+                format_hz(lo.round()),
+                format_hz(hi.round())
+            ),
+        );
     }
     Ok(inputs[0]
         .results
@@ -235,7 +174,7 @@ fn on_grid(
 }
 
 /// Bands (centre, fraction) that every input measured.
-fn common_bands(inputs: &[Input]) -> Vec<(f64, String)> {
+fn common_bands(inputs: &[Input]) -> Vec<(f64, Fraction)> {
     inputs[0]
         .results
         .bands
@@ -243,31 +182,33 @@ fn common_bands(inputs: &[Input]) -> Vec<(f64, String)> {
         .filter(|b| {
             inputs
                 .iter()
-                .all(|i| find_band(&i.results, b.center_hz, &b.fraction).is_some())
+                .all(|i| i.band(b.center_hz, b.fraction).is_some())
         })
-        .map(|b| (b.center_hz, b.fraction.clone()))
+        .map(|b| (b.center_hz, b.fraction))
         .collect()
 }
 
 /// Averages bands over the inputs: mean and spread of every parameter.
 fn average_band(bands: &[&BandResult]) -> BandResult {
-    let mut out = bands[0].clone();
-    out.warnings.clear();
-    out.curvature_percent = None;
+    let mut out = BandResult::empty(bands[0].center_hz, bands[0].exact_hz, bands[0].fraction);
     let mut spread = BTreeMap::new();
-    for p in PARAMETERS.iter().chain(std::iter::once(&"inr_db")) {
-        let values: Vec<Option<f64>> = bands.iter().map(|b| band_value(b, p)).collect();
+    for p in Parameter::ALL {
+        let values: Vec<Option<f64>> = bands.iter().map(|b| b.get(p)).collect();
         let (mean, std, n) = calc::mean_std(&values);
-        set_band_value(&mut out, p, mean);
-        spread.insert(p.to_string(), Spread { n, std });
-        if n < bands.len() && PARAMETERS.contains(p) {
-            out.warnings.push(format!(
-                "{p}: measured at {n} of {} positions; the mean is over those",
-                bands.len()
-            ));
+        out.values[p] = mean;
+        spread.insert(p, Spread { n, std });
+        if n < bands.len() && p.jnd().is_some() {
+            out.warnings.add(
+                Code::PartialPositions,
+                format!(
+                    "{}: measured at {n} of {} positions; the mean is over those",
+                    p.key(),
+                    bands.len()
+                ),
+            );
         }
     }
-    if let (Some(t20), Some(t30)) = (out.t20_s, out.t30_s) {
+    if let (Some(t20), Some(t30)) = (out.get(Parameter::T20), out.get(Parameter::T30)) {
         out.curvature_percent = Some(100.0 * (t30 / t20 - 1.0));
     }
     out.spread = Some(spread);
@@ -298,12 +239,29 @@ pub struct AverageJob {
 pub struct Written {
     /// Files written, relative to the folder, manifest first.
     pub files: Vec<String>,
-    /// Warnings, in plain words.
-    pub warnings: Vec<String>,
+    /// Warnings.
+    pub warnings: Warnings,
 }
 
-/// Averages position folders into a new folder.
+/// Averages position folders into a new folder: checks the job, reads the
+/// positions, averages them, writes the folder.
 pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
+    check_average_job(job)?;
+    let inputs = read_inputs(&job.inputs, &job.labels)?;
+    if inputs.iter().any(|i| i.results.average.is_some()) {
+        return Err(Error::input(
+            "one of the folders is already an average; average the position folders themselves",
+        ));
+    }
+    let folder = MeasurementFolder::check(&job.out, job.overwrite, &[])?;
+    let results = average_results(&inputs, job.sources)?;
+    let files = write_average(job, &folder, &inputs, &results)?;
+    let warnings = results.warnings.clone();
+    Ok((results, Written { files, warnings }))
+}
+
+/// The counts `gliss average` needs, checked before anything is read.
+fn check_average_job(job: &AverageJob) -> Result<()> {
     if job.inputs.len() < 2 {
         return Err(Error::parameter(
             "average needs at least two position folders",
@@ -316,47 +274,51 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
             job.inputs.len()
         )));
     }
-    let inputs = read_inputs(&job.inputs, &job.labels)?;
-    if inputs.iter().any(|i| i.results.average.is_some()) {
-        return Err(Error::input(
-            "one of the folders is already an average; average the position folders themselves",
-        ));
-    }
-    let folder = MeasurementFolder::check(&job.out, job.overwrite, &[])?;
-    let mut warnings = Vec::new();
-    let grid = common_grid(&inputs, &mut warnings)?;
-    let smoothing: Vec<&str> = inputs
+    Ok(())
+}
+
+/// The average of the positions as a results file: the power average of
+/// the responses, the mean and spread of every band parameter, and the
+/// ISO 3382-2 grade `sources` source positions reach.
+pub fn average_results(inputs: &[Input], sources: usize) -> Result<Results> {
+    let mut warnings = Warnings::new();
+    let grid = common_grid(inputs, &mut warnings)?;
+    let first = &inputs[0].results;
+    let smoothing: Vec<Smoothing> = inputs
         .iter()
-        .map(|i| i.results.response.smoothing.as_str())
+        .map(|i| i.results.response.smoothing)
         .collect();
     if smoothing.iter().any(|s| *s != smoothing[0]) {
-        warnings.push(format!(
-            "the positions were smoothed differently ({}); the average mixes them",
-            smoothing.join(", ")
-        ));
+        warnings.add(
+            Code::MixedSmoothing,
+            format!(
+                "the positions were smoothed differently ({}); the average mixes them",
+                smoothing
+                    .iter()
+                    .map(|s| s.label())
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ),
+        );
     }
-    let mags = on_grid(&inputs, &grid, |r| &r.magnitude_db);
-    let avg = calc::power_average_db(&mags);
+    let avg = calc::power_average_db(&on_grid(inputs, &grid, |r| &r.magnitude_db));
     let (grid, avg): (Vec<f64>, Vec<f64>) = grid
         .iter()
         .zip(&avg)
         .filter_map(|(f, v)| v.map(|v| (*f, v)))
         .unzip();
     let spl = if inputs.iter().all(|i| !i.results.response.spl_db.is_empty()) {
-        calc::power_average_db(&on_grid(&inputs, &grid, |r| &r.spl_db))
+        calc::power_average_db(&on_grid(inputs, &grid, |r| &r.spl_db))
             .into_iter()
             .collect::<Option<Vec<f64>>>()
             .unwrap_or_default()
     } else {
         Vec::new()
     };
-    let bands: Vec<BandResult> = common_bands(&inputs)
+    let bands: Vec<BandResult> = common_bands(inputs)
         .into_iter()
         .map(|(c, f)| {
-            let per: Vec<&BandResult> = inputs
-                .iter()
-                .filter_map(|i| find_band(&i.results, c, &f))
-                .collect();
+            let per: Vec<&BandResult> = inputs.iter().filter_map(|i| i.band(c, f)).collect();
             average_band(&per)
         })
         .collect();
@@ -368,15 +330,16 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
         (per.len() == inputs.len()).then(|| average_band(&per))
     };
     let n = inputs.len();
-    let grade = calc::grade(n, job.sources).to_string();
-    warnings.push(format!(
-        "{n} source–microphone combinations ({} source position{}): ISO 3382-2 grade {grade}",
-        job.sources,
-        if job.sources == 1 { "" } else { "s" }
-    ));
-    let first = &inputs[0].results;
+    let grade = calc::grade(n, sources).to_string();
+    warnings.add(
+        Code::PrecisionGrade,
+        format!(
+            "{n} source–microphone combinations ({sources} source position{}): ISO 3382-2 grade {grade}",
+            if sources == 1 { "" } else { "s" }
+        ),
+    );
     let delays: Vec<Option<f64>> = inputs.iter().map(|i| Some(i.results.delay_s)).collect();
-    let results = Results {
+    Ok(Results {
         schema_version: SCHEMA_VERSION,
         sample_rate_hz: first.sample_rate_hz,
         delay_s: calc::mean_std(&delays).0.unwrap_or(0.0),
@@ -391,13 +354,13 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
             .fold(f64::INFINITY, f64::min),
         impulse: None,
         response: ResponseRecord {
-            smoothing: first.response.smoothing.clone(),
+            smoothing: first.response.smoothing,
             magnitude_reference: format!(
                 "power average over {n} positions of: {}",
                 first.response.magnitude_reference
             ),
-            frequency_hz: grid.clone(),
-            magnitude_db: avg.clone(),
+            frequency_hz: grid,
+            magnitude_db: avg,
             phase_deg: Vec::new(),
             phase_unwrapped_deg: Vec::new(),
             group_delay_s: Vec::new(),
@@ -412,22 +375,30 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
         distortion: None,
         bands,
         broadband,
-        warnings: warnings.clone(),
+        warnings,
         target: None,
         average: Some(AverageRecord {
             positions: n,
-            sources: job.sources,
+            sources,
             grade,
             response_method:
                 "power average of the smoothed magnitudes, 10·lg(mean of 10^(L/10)); phase is not averaged"
                     .into(),
             inputs: inputs.iter().map(|i| i.record.clone()).collect(),
         }),
-    };
+    })
+}
 
+/// Writes an average's folder: results, curves, plots, then the manifest.
+fn write_average(
+    job: &AverageJob,
+    folder: &MeasurementFolder,
+    inputs: &[Input],
+    results: &Results,
+) -> Result<Vec<String>> {
     folder.create()?;
     let mut files: Vec<FileEntry> = Vec::new();
-    files.push(folder.derived_entry("results.json", &to_json(&results)?)?);
+    files.push(folder.derived_entry("results.json", &to_json(results)?)?);
     files.push(folder.derived_entry("response.csv", &response_csv(&results.response)?)?);
     if !results.bands.is_empty() {
         files.push(folder.derived_entry(
@@ -436,33 +407,9 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
         )?);
     }
     if job.plots {
-        let title = format!("average of {n} positions");
-        let positions: Vec<(String, Vec<f64>)> = inputs
-            .iter()
-            .zip(&on_grid(&inputs, &grid, |r| &r.magnitude_db))
-            .map(|(i, v)| {
-                (
-                    i.record.label.clone(),
-                    v.iter().map(|x| x.unwrap_or(f64::NAN)).collect(),
-                )
-            })
-            .collect();
-        let tmp = folder.temp_path("plots/response.png");
-        plot::compare::average_response_png(
-            &tmp,
-            &title,
-            &grid,
-            &positions,
-            &avg,
-            &results.response.smoothing,
-        )?;
-        files.push(folder.commit_entry(&tmp, "plots/response.png")?);
-        if !results.bands.is_empty() {
-            let tmp = folder.temp_path("plots/reverberation.png");
-            plot::compare::average_reverberation_png(&tmp, &title, &results.bands)?;
-            files.push(folder.commit_entry(&tmp, "plots/reverberation.png")?);
-        }
+        files.extend(draw_average_plots(folder, inputs, results)?);
     }
+    let n = inputs.len();
     let m0 = &inputs[0].manifest;
     let manifest = Manifest {
         schema_version: SCHEMA_VERSION,
@@ -490,7 +437,7 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
         recording_encoding: "none (an average has no recording)".into(),
         sweep: m0.sweep.clone(),
         settings: Settings {
-            smoothing: results.response.smoothing.clone(),
+            smoothing: results.response.smoothing,
             plots: job.plots,
             harmonics: 1,
             bands: !results.bands.is_empty(),
@@ -505,101 +452,51 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
         files,
         measurement: None,
         problems: Vec::new(),
-        kind: Some("average".into()),
+        kind: Some(FolderKind::Average),
         inputs: inputs.iter().map(|i| i.record.clone()).collect(),
     };
     folder.write_derived("manifest.json", &to_json(&manifest)?)?;
-    let files = std::iter::once("manifest.json".to_string())
+    Ok(std::iter::once("manifest.json".to_string())
         .chain(manifest.files.iter().map(|f| f.name.clone()))
+        .collect())
+}
+
+/// The plots of an average: every position's response with their power
+/// average, and the band parameters with their spread.
+fn draw_average_plots(
+    folder: &MeasurementFolder,
+    inputs: &[Input],
+    results: &Results,
+) -> Result<Vec<FileEntry>> {
+    let mut files = Vec::new();
+    let grid = &results.response.frequency_hz;
+    let title = format!("average of {} positions", inputs.len());
+    let positions: Vec<(String, Vec<f64>)> = inputs
+        .iter()
+        .zip(&on_grid(inputs, grid, |r| &r.magnitude_db))
+        .map(|(i, v)| {
+            (
+                i.record.label.clone(),
+                v.iter().map(|x| x.unwrap_or(f64::NAN)).collect(),
+            )
+        })
         .collect();
-    Ok((results, Written { files, warnings }))
-}
-
-/// comparison.json.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct Comparison {
-    /// Layout version.
-    pub schema_version: u32,
-    /// "comparison".
-    pub kind: String,
-    /// The folders in order (the first is the reference), with their hashes.
-    pub inputs: Vec<InputRecord>,
-    /// The band every input covers, Hz.
-    pub common_band_hz: [f64; 2],
-    /// The responses and their differences from the first.
-    pub response: CompareResponse,
-    /// Every band parameter: values, changes and their significance.
-    pub bands: Vec<BandRow>,
-    /// With --volume: the change of equivalent absorption area per band.
-    pub absorption: Vec<AbsorptionRow>,
-    /// The room volume, m³ (with --volume).
-    pub volume_m3: Option<f64>,
-    /// The air temperature, °C (with --volume).
-    pub temperature_c: Option<f64>,
-    /// The speed of sound used, m/s (with --volume).
-    pub speed_of_sound_m_s: Option<f64>,
-    /// With --target: each response against the target curve.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub target: Option<CompareTarget>,
-    /// How a change is judged, in words.
-    pub criteria: Vec<String>,
-    /// Warnings, in plain words.
-    pub warnings: Vec<String>,
-}
-
-/// The responses of a comparison on one grid.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct CompareResponse {
-    /// Smoothing of the curves.
-    pub smoothing: String,
-    /// Grid frequencies, Hz.
-    pub frequency_hz: Vec<f64>,
-    /// Per input, the magnitude in dB (`null` where it has none).
-    pub magnitude_db: Vec<Vec<Option<f64>>>,
-    /// Per input, its magnitude minus the first's, dB (the first: zeros).
-    pub difference_db: Vec<Vec<Option<f64>>>,
-}
-
-/// One parameter of one band across the inputs. Arrays hold one entry per
-/// input; for the first input (the reference) the change fields are null.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct BandRow {
-    /// Nominal centre, Hz.
-    pub center_hz: f64,
-    /// "1/1" or "1/3" or "broadband".
-    pub fraction: String,
-    /// The results.json field name, e.g. "t30_s".
-    pub parameter: String,
-    /// The value per input (`null` where not measured).
-    pub values: Vec<Option<f64>>,
-    /// Value minus the first input's.
-    pub change: Vec<Option<f64>>,
-    /// Change over the first input's value.
-    pub relative_change: Vec<Option<f64>>,
-    /// Whether the change exceeds the just-noticeable difference of
-    /// ISO 3382-1 Annex A.
-    pub exceeds_jnd: Vec<Option<bool>>,
-    /// The standard uncertainty of each value (`null` where unknown).
-    pub uncertainty: Vec<Option<f64>>,
-    /// Whether the change exceeds twice the combined standard uncertainty
-    /// of the two values.
-    pub exceeds_uncertainty: Vec<Option<bool>>,
-}
-
-/// The equivalent absorption area of one band across the inputs.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct AbsorptionRow {
-    /// Nominal centre, Hz.
-    pub center_hz: f64,
-    /// "1/1" or "1/3".
-    pub fraction: String,
-    /// The decay time it comes from: "t30_s", or "t20_s" where T30 is
-    /// missing in any input.
-    pub parameter: String,
-    /// A = 55.3·V/(c·T) per input, m².
-    pub area_m2: Vec<Option<f64>>,
-    /// Area minus the first input's, m² (`null` for the first).
-    pub delta_area_m2: Vec<Option<f64>>,
+    let tmp = folder.temp_path("plots/response.png");
+    plot::compare::average_response_png(
+        &tmp,
+        &title,
+        grid,
+        &positions,
+        &results.response.magnitude_db,
+        &results.response.smoothing.label(),
+    )?;
+    files.push(folder.commit_entry(&tmp, "plots/response.png")?);
+    if !results.bands.is_empty() {
+        let tmp = folder.temp_path("plots/reverberation.png");
+        plot::compare::average_reverberation_png(&tmp, &title, &results.bands)?;
+        files.push(folder.commit_entry(&tmp, "plots/reverberation.png")?);
+    }
+    Ok(files)
 }
 
 /// What `gliss compare` needs.
@@ -614,7 +511,7 @@ pub struct CompareJob {
     /// Their labels (empty: the folder names).
     pub labels: Vec<String>,
     /// Further smoothing of the responses (`None`: as the inputs are).
-    pub smoothing: Option<crate::analysis::Smoothing>,
+    pub smoothing: Option<Smoothing>,
     /// Room volume for the absorption change, m³.
     pub volume_m3: Option<f64>,
     /// Air temperature, °C.
@@ -627,67 +524,56 @@ pub struct CompareJob {
     pub target: Option<crate::session::TargetJob>,
 }
 
-/// Every response of a comparison against a target curve.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct CompareTarget {
-    /// The target file as given.
-    pub file: String,
-    /// SHA-256 of its bytes.
-    pub sha256: String,
-    /// Whether each response was level-aligned to the target first.
-    pub aligned: bool,
-    /// Per input, the deviation from the target (`null` where the
-    /// response does not cover the range).
-    pub per_input: Vec<Option<crate::analysis::target::TargetReport>>,
-}
-
-/// The smoothing label of the inputs' responses, or their mix.
-fn smoothing_of(inputs: &[Input]) -> String {
-    let s: Vec<&str> = inputs
-        .iter()
-        .map(|i| i.results.response.smoothing.as_str())
-        .collect();
-    if s.iter().all(|x| *x == s[0]) {
-        s[0].to_string()
-    } else {
-        s.join("/")
-    }
-}
-
-/// Power smoothing of a curve on the 48-per-octave grid over `1/n` octave
-/// (a moving power average of the grid points within ±1/(2n) octave).
-/// The grid is logarithmic, so a fixed number of points is a fixed
-/// fraction of an octave; written by hand because it is a few lines over
-/// the grid gliss already has.
-pub fn smooth_on_log_grid(values: &[Option<f64>], n: u32) -> Vec<Option<f64>> {
-    let half = (f64::from(crate::analysis::smoothing::POINTS_PER_OCTAVE) / (2.0 * f64::from(n)))
-        .round() as usize;
-    (0..values.len())
-        .map(|i| {
-            values[i]?;
-            let lo = i.saturating_sub(half);
-            let hi = (i + half).min(values.len() - 1);
-            let mut sum = 0.0;
-            let mut count = 0usize;
-            for v in values[lo..=hi].iter().flatten() {
-                sum += 10f64.powf(v / 10.0);
-                count += 1;
-            }
-            Some(10.0 * (sum / count as f64).log10())
-        })
-        .collect()
-}
-
-/// The width of a smoothing label in octaves ("1/6" → 1/6, "none" → 0).
-fn octaves(label: &str) -> f64 {
-    label
-        .strip_prefix("1/")
-        .and_then(|n| n.parse::<f64>().ok())
-        .map_or(0.0, |n| 1.0 / n)
-}
-
-/// Compares folders into a new comparison folder.
+/// Compares folders into a new comparison folder: checks the job, reads
+/// the folders, compares the responses, judges every band parameter,
+/// adds the absorption and the target, writes the folder.
 pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
+    check_compare_job(job)?;
+    let inputs = read_inputs(&job.inputs, &job.labels)?;
+    let folder = MeasurementFolder::check(&job.out, job.overwrite, &[])?;
+    let mut warnings = Warnings::new();
+    let grid = common_grid(&inputs, &mut warnings)?;
+    let response = compare_responses(&inputs, grid, job.smoothing)?;
+    let bands = band_rows(&inputs);
+    let c_sound = calc::speed_of_sound(job.temperature_c);
+    let absorption = job
+        .volume_m3
+        .map(|v| absorption_rows(&inputs, v, c_sound))
+        .unwrap_or_default();
+    let target = job
+        .target
+        .as_ref()
+        .map(|t| compare_target(t, &response))
+        .transpose()?;
+    let comparison = Comparison {
+        schema_version: SCHEMA_VERSION,
+        kind: FolderKind::Comparison,
+        inputs: inputs.iter().map(|i| i.record.clone()).collect(),
+        common_band_hz: [
+            response.frequency_hz[0],
+            *response.frequency_hz.last().unwrap_or(&response.frequency_hz[0]),
+        ],
+        response,
+        bands,
+        absorption,
+        volume_m3: job.volume_m3,
+        temperature_c: job.volume_m3.map(|_| job.temperature_c),
+        speed_of_sound_m_s: job.volume_m3.map(|_| c_sound),
+        target,
+        criteria: vec![
+            "exceeds_jnd: the change is larger than the just-noticeable difference of ISO 3382-1 Annex A (EDT and T 5 %, C80 1 dB, D50 0.05, Ts 10 ms; C50 1 dB by analogy with C80)".into(),
+            "exceeds_uncertainty: the change is larger than twice the combined standard uncertainty of the two values (the spread over positions for an average, ISO 3382-2's formula for T20 and T30 of one measurement; unknown otherwise)".into(),
+            "verdict: audible (beyond both), within_uncertainty (beyond the just-noticeable difference but not the uncertainty), beyond_jnd_uncertainty_unknown, below_jnd, or not_measured; the one judgement the terminal, the plots and the report show".into(),
+            "absorption: A = 55.3·V/(c·T), the Sabine relation as ISO 354 writes it, c = 331 + 0.6·t m/s; the air term cancels in the difference".into(),
+        ],
+        warnings: warnings.clone(),
+    };
+    write_comparison(job, &folder, &inputs, &comparison)
+        .map(|files| (comparison, Written { files, warnings }))
+}
+
+/// The volume and temperature `gliss compare` needs, checked.
+fn check_compare_job(job: &CompareJob) -> Result<()> {
     if job.inputs.len() < 2 {
         return Err(Error::parameter(
             "compare needs at least two folders: the reference (before) first, then the others",
@@ -706,22 +592,39 @@ pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
             job.temperature_c
         )));
     }
-    let inputs = read_inputs(&job.inputs, &job.labels)?;
-    let folder = MeasurementFolder::check(&job.out, job.overwrite, &[])?;
-    let mut warnings = Vec::new();
-    let grid = common_grid(&inputs, &mut warnings)?;
-    let mut mags = on_grid(&inputs, &grid, |r| &r.magnitude_db);
-    let mut smoothing = smoothing_of(&inputs);
-    if let Some(want) = job.smoothing {
-        let label = want.label();
+    Ok(())
+}
+
+/// The inputs' responses on the common `grid`, smoothed further where
+/// `want` asks, and their differences from the first.
+fn compare_responses(
+    inputs: &[Input],
+    grid: Vec<f64>,
+    want: Option<Smoothing>,
+) -> Result<CompareResponse> {
+    let input_smoothing: Vec<Smoothing> = inputs
+        .iter()
+        .map(|i| i.results.response.smoothing)
+        .collect();
+    let own = if input_smoothing.iter().all(|s| *s == input_smoothing[0]) {
+        input_smoothing[0].label()
+    } else {
+        input_smoothing
+            .iter()
+            .map(|s| s.label())
+            .collect::<Vec<_>>()
+            .join("/")
+    };
+    let mut mags = on_grid(inputs, &grid, |r| &r.magnitude_db);
+    let mut smoothing = own.clone();
+    if let Some(want) = want {
         if inputs.iter().all(|i| i.results.impulse.is_some()) {
             // every input keeps its impulse response: smooth each again from
             // it with the analysis's own stages (exact, finer or coarser)
             mags = inputs
                 .iter()
                 .map(|i| {
-                    let m = crate::session::export::open(&i.dir)?;
-                    let fresh = crate::session::export::fresh_response(&m, want)?;
+                    let fresh = crate::session::export::fresh_response(&i.as_export(), want)?;
                     Ok(calc::interpolate_log(
                         &fresh.frequency_hz,
                         &fresh.magnitude_db,
@@ -729,29 +632,29 @@ pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
                     ))
                 })
                 .collect::<Result<Vec<_>>>()?;
-            smoothing = label;
-        } else if want == crate::analysis::Smoothing::None {
+            smoothing = want.label();
+        } else if want == Smoothing::None {
             return Err(Error::parameter(
                 "--smooth none needs every folder's impulse response, and an average has none; leave --smooth out, or give a fraction such as 1/3",
             ));
-        } else if let crate::analysis::Smoothing::Fraction(n) = want {
+        } else if let Smoothing::Fraction(n) = want {
             // an average has no impulse response: smooth its curve further
-            let widest = inputs
+            let widest = input_smoothing
                 .iter()
-                .map(|i| octaves(&i.results.response.smoothing))
+                .map(|s| s.octaves())
                 .fold(0.0, f64::max);
-            if 1.0 / f64::from(n) < widest - 1e-9 {
+            if want.octaves() < widest - 1e-9 {
                 return Err(Error::parameter(format!(
-                    "--smooth 1/{n} is finer than the folders' own smoothing ({smoothing}), and an average has no impulse response to smooth again from: choose a coarser one, or average positions analysed with a finer --smooth"
+                    "--smooth 1/{n} is finer than the folders' own smoothing ({own}), and an average has no impulse response to smooth again from: choose a coarser one, or average positions analysed with a finer --smooth"
                 )));
             }
-            if 1.0 / f64::from(n) > widest + 1e-9 {
+            if want.octaves() > widest + 1e-9 {
                 mags = mags.iter().map(|m| smooth_on_log_grid(m, n)).collect();
-                smoothing = format!("1/{n} of {smoothing}");
+                smoothing = format!("1/{n} of {own}");
             }
         }
     }
-    let diffs: Vec<Vec<Option<f64>>> = mags
+    let difference_db: Vec<Vec<Option<f64>>> = mags
         .iter()
         .map(|m| {
             m.iter()
@@ -760,185 +663,136 @@ pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
                 .collect()
         })
         .collect();
+    Ok(CompareResponse {
+        smoothing,
+        input_smoothing,
+        further_smoothing: want,
+        frequency_hz: grid,
+        magnitude_db: mags,
+        difference_db,
+    })
+}
 
-    // the band table
-    let mut rows = Vec::new();
-    let mut bands: Vec<(f64, String)> = common_bands(&inputs);
+impl Input {
+    /// This input as the export layer takes it (to take its response again
+    /// from its impulse response).
+    fn as_export(&self) -> crate::session::export::Measurement {
+        crate::session::export::Measurement {
+            dir: self.dir.clone(),
+            manifest: self.manifest.clone(),
+            results: self.results.clone(),
+            results_sha256: self.record.results_sha256.clone(),
+        }
+    }
+
+    /// The standard uncertainty of `p` in a band: the spread over positions
+    /// for an average (the standard uncertainty of their mean), ISO
+    /// 3382-2's formula for T20 and T30 of one measurement, else unknown.
+    fn uncertainty(&self, band: &BandResult, p: Parameter) -> Option<f64> {
+        let v = band.get(p)?;
+        if let Some(s) = band.spread.as_ref().and_then(|s| s.get(&p)) {
+            if let (Some(std), true) = (s.std, s.n >= 2) {
+                return Some(std / (s.n as f64).sqrt());
+            }
+        }
+        let bandwidth = band.fraction.uncertainty_bandwidth_hz(band.center_hz)?;
+        calc::t_uncertainty(p, v, bandwidth, 1, self.positions())
+    }
+}
+
+/// Every compared parameter of every band all inputs share (and of the
+/// broadband values), judged once.
+fn band_rows(inputs: &[Input]) -> Vec<BandRow> {
+    let mut bands: Vec<(f64, Fraction)> = common_bands(inputs);
     if inputs.iter().all(|i| i.results.broadband.is_some()) {
         if let Some(b) = &inputs[0].results.broadband {
-            bands.push((b.center_hz, "broadband".into()));
+            bands.push((b.center_hz, Fraction::Broadband));
         }
     }
-    let lookup = |i: &Input, c: f64, f: &str| -> Option<BandResult> {
-        if f == "broadband" {
-            i.results.broadband.clone()
-        } else {
-            find_band(&i.results, c, f).cloned()
-        }
-    };
-    for (c, f) in &bands {
-        let per: Vec<Option<BandResult>> = inputs.iter().map(|i| lookup(i, *c, f)).collect();
-        for p in PARAMETERS {
-            let values: Vec<Option<f64>> = per
-                .iter()
-                .map(|b| b.as_ref().and_then(|b| band_value(b, p)))
-                .collect();
+    let mut rows = Vec::new();
+    for (c, f) in bands {
+        let per: Vec<Option<&BandResult>> = inputs.iter().map(|i| i.band(c, f)).collect();
+        for p in Parameter::COMPARED {
+            let values: Vec<Option<f64>> = per.iter().map(|b| b.and_then(|b| b.get(p))).collect();
             let uncertainty: Vec<Option<f64>> = per
                 .iter()
-                .zip(&inputs)
-                .map(|(b, i)| {
-                    let b = b.as_ref()?;
-                    let v = band_value(b, p)?;
-                    if let Some(s) = b.spread.as_ref().and_then(|s| s.get(p)) {
-                        if let (Some(std), true) = (s.std, s.n >= 2) {
-                            // the spread over positions, as the standard
-                            // uncertainty of their mean
-                            return Some(std / (s.n as f64).sqrt());
-                        }
-                    }
-                    calc::t_uncertainty(p, v, calc::bandwidth_hz(*c, f)?, 1, i.positions())
-                })
+                .zip(inputs)
+                .map(|(b, i)| i.uncertainty(b.as_ref()?, p))
                 .collect();
-            let v0 = values[0];
-            let u0 = uncertainty[0];
-            let mut row = BandRow {
-                center_hz: *c,
-                fraction: f.clone(),
-                parameter: p.to_string(),
-                values: values.clone(),
-                change: vec![None],
-                relative_change: vec![None],
-                exceeds_jnd: vec![None],
-                uncertainty: uncertainty.clone(),
-                exceeds_uncertainty: vec![None],
-            };
-            for k in 1..inputs.len() {
-                let d = v0.zip(values[k]).map(|(a, b)| b - a);
-                row.change.push(d);
-                row.relative_change
-                    .push(v0.zip(d).and_then(|(a, d)| (a.abs() > 0.0).then(|| d / a)));
-                row.exceeds_jnd.push(
-                    v0.zip(values[k])
-                        .and_then(|(a, b)| calc::exceeds_jnd(p, a, b)),
-                );
-                row.exceeds_uncertainty.push(
-                    d.zip(u0.zip(uncertainty[k]))
-                        .map(|(d, (a, b))| d.abs() > 2.0 * (a * a + b * b).sqrt()),
-                );
-            }
-            rows.push(row);
+            let changes = calc::judge(p, &values, &uncertainty);
+            rows.push(BandRow {
+                center_hz: c,
+                fraction: f,
+                parameter: p,
+                values,
+                uncertainty,
+                changes,
+            });
         }
     }
+    rows
+}
 
-    // absorption
-    let c_sound = calc::speed_of_sound(job.temperature_c);
-    let mut absorption = Vec::new();
-    if let Some(v) = job.volume_m3 {
-        for (c, f) in bands.iter().filter(|b| b.1 != "broadband") {
-            let t = |p: &str| -> Vec<Option<f64>> {
+/// The equivalent absorption area of every band all inputs share, from
+/// T30 (T20 where any input lacks T30), for a room of `volume_m3` and a
+/// speed of sound `c_sound`.
+fn absorption_rows(inputs: &[Input], volume_m3: f64, c_sound: f64) -> Vec<AbsorptionRow> {
+    common_bands(inputs)
+        .into_iter()
+        .map(|(c, f)| {
+            let t = |p: Parameter| -> Vec<Option<f64>> {
                 inputs
                     .iter()
-                    .map(|i| lookup(i, *c, f).and_then(|b| band_value(&b, p)))
+                    .map(|i| i.band(c, f).and_then(|b| b.get(p)))
                     .collect()
             };
-            let t30 = t("t30_s");
+            let t30 = t(Parameter::T30);
             let (parameter, ts) = if t30.iter().all(Option::is_some) {
-                ("t30_s", t30)
+                (Parameter::T30, t30)
             } else {
-                ("t20_s", t("t20_s"))
+                (Parameter::T20, t(Parameter::T20))
             };
             let area: Vec<Option<f64>> = ts
                 .iter()
-                .map(|t| t.map(|t| calc::absorption_area_m2(v, t, c_sound)))
+                .map(|t| t.map(|t| calc::absorption_area_m2(volume_m3, t, c_sound)))
                 .collect();
             let mut delta = vec![None];
             for a in &area[1..] {
                 delta.push(area[0].zip(*a).map(|(a0, a)| a - a0));
             }
-            absorption.push(AbsorptionRow {
-                center_hz: *c,
-                fraction: f.clone(),
-                parameter: parameter.into(),
+            AbsorptionRow {
+                center_hz: c,
+                fraction: f,
+                parameter,
                 area_m2: area,
                 delta_area_m2: delta,
-            });
-        }
-    }
-    // the target: every response judged against it on the common grid
-    let target = match &job.target {
-        None => None,
-        Some(t) => {
-            let range = t.resolve_range((grid[0], *grid.last().unwrap_or(&grid[0])))?;
-            let per_input = mags
-                .iter()
-                .map(|m| {
-                    let (f, v): (Vec<f64>, Vec<f64>) = grid
-                        .iter()
-                        .zip(m)
-                        .filter_map(|(f, v)| v.map(|v| (*f, v)))
-                        .unzip();
-                    crate::analysis::target::deviation(&f, &v, &t.target, range, !t.absolute).ok()
-                })
-                .collect();
-            Some(CompareTarget {
-                file: t.file.name.clone(),
-                sha256: t.file.sha256.clone(),
-                aligned: !t.absolute,
-                per_input,
-            })
-        }
-    };
-    let comparison = Comparison {
-        schema_version: SCHEMA_VERSION,
-        kind: "comparison".into(),
-        inputs: inputs.iter().map(|i| i.record.clone()).collect(),
-        common_band_hz: [grid[0], *grid.last().unwrap_or(&grid[0])],
-        response: CompareResponse {
-            smoothing,
-            frequency_hz: grid.clone(),
-            magnitude_db: mags,
-            difference_db: diffs,
-        },
-        bands: rows,
-        absorption,
-        volume_m3: job.volume_m3,
-        temperature_c: job.volume_m3.map(|_| job.temperature_c),
-        speed_of_sound_m_s: job.volume_m3.map(|_| c_sound),
-        target,
-        criteria: vec![
-            "exceeds_jnd: the change is larger than the just-noticeable difference of ISO 3382-1 Annex A (EDT and T 5 %, C80 1 dB, D50 0.05, Ts 10 ms; C50 1 dB by analogy with C80)".into(),
-            "exceeds_uncertainty: the change is larger than twice the combined standard uncertainty of the two values (the spread over positions for an average, ISO 3382-2's formula for T20 and T30 of one measurement; unknown otherwise)".into(),
-            "absorption: A = 55.3·V/(c·T), the Sabine relation as ISO 354 writes it, c = 331 + 0.6·t m/s; the air term cancels in the difference".into(),
-        ],
-        warnings: warnings.clone(),
-    };
-    write_comparison(job, &folder, &inputs, &comparison)
-        .map(|files| (comparison, Written { files, warnings }))
+            }
+        })
+        .collect()
 }
 
-/// The manifest of a comparison folder.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct ComparisonManifest {
-    /// Layout version.
-    pub schema_version: u32,
-    /// "gliss".
-    pub tool: String,
-    /// Version of gliss that wrote the folder.
-    pub tool_version: String,
-    /// When (UTC, RFC 3339).
-    pub created_utc: String,
-    /// Always true once written.
-    pub complete: bool,
-    /// "comparison".
-    pub kind: String,
-    /// The command line that made it.
-    pub command_line: Vec<String>,
-    /// kind "comparison" and a description.
-    pub source: Source,
-    /// The folders compared, with their hashes.
-    pub inputs: Vec<InputRecord>,
-    /// Every file of the folder with its SHA-256.
-    pub files: Vec<FileEntry>,
+/// Every response of the comparison against the target curve.
+fn compare_target(t: &crate::session::TargetJob, r: &CompareResponse) -> Result<CompareTarget> {
+    let grid = &r.frequency_hz;
+    let range = t.resolve_range((grid[0], *grid.last().unwrap_or(&grid[0])))?;
+    let per_input = r
+        .magnitude_db
+        .iter()
+        .map(|m| {
+            let (f, v): (Vec<f64>, Vec<f64>) = grid
+                .iter()
+                .zip(m)
+                .filter_map(|(f, v)| v.map(|v| (*f, v)))
+                .unzip();
+            crate::analysis::target::deviation(&f, &v, &t.target, range, !t.absolute).ok()
+        })
+        .collect();
+    Ok(CompareTarget {
+        file: t.file.name.clone(),
+        sha256: t.file.sha256.clone(),
+        aligned: !t.absolute,
+        per_input,
+    })
 }
 
 fn write_comparison(
@@ -1008,7 +862,7 @@ fn write_comparison(
                     &labels[0],
                 )?,
                 _ => {
-                    if !cmp.bands.iter().any(|b| b.fraction != "broadband") {
+                    if !cmp.bands.iter().any(|b| b.fraction != Fraction::Broadband) {
                         continue;
                     }
                     plot::compare::reverberation_png(&tmp, &title, &labels, &cmp.bands)?
@@ -1023,7 +877,7 @@ fn write_comparison(
         tool_version: env!("CARGO_PKG_VERSION").into(),
         created_utc: humantime::format_rfc3339_seconds(std::time::SystemTime::now()).to_string(),
         complete: true,
-        kind: "comparison".into(),
+        kind: FolderKind::Comparison,
         command_line: job.command_line.clone(),
         source: Source {
             kind: "comparison".into(),
@@ -1064,6 +918,7 @@ pub fn comparison_csv(c: &Comparison) -> Result<Vec<u8>> {
         "exceeds_jnd",
         "uncertainty",
         "exceeds_uncertainty",
+        "verdict",
     ])
     .map_err(err)?;
     let num = |v: Option<f64>| v.map_or(String::new(), |x| format!("{x:.5}"));
@@ -1072,16 +927,22 @@ pub fn comparison_csv(c: &Comparison) -> Result<Vec<u8>> {
         for (k, input) in c.inputs.iter().enumerate() {
             w.write_record([
                 format!("{}", (r.center_hz * 10.0).round() / 10.0),
-                r.fraction.clone(),
-                r.parameter.clone(),
+                r.fraction.code().to_string(),
+                r.parameter.key().to_string(),
                 (k + 1).to_string(),
                 input.label.clone(),
                 num(r.values[k]),
-                num(r.change[k]),
-                num(r.relative_change[k]),
-                flag(r.exceeds_jnd[k]),
+                num(r.changes.change[k]),
+                num(r.changes.relative_change[k]),
+                flag(r.changes.exceeds_jnd[k]),
                 num(r.uncertainty[k]),
-                flag(r.exceeds_uncertainty[k]),
+                flag(r.changes.exceeds_uncertainty[k]),
+                r.changes
+                    .verdict
+                    .get(k)
+                    .copied()
+                    .flatten()
+                    .map_or(String::new(), |v| v.code().to_string()),
             ])
             .map_err(err)?;
         }
@@ -1090,12 +951,13 @@ pub fn comparison_csv(c: &Comparison) -> Result<Vec<u8>> {
         for (k, input) in c.inputs.iter().enumerate() {
             w.write_record([
                 format!("{}", (r.center_hz * 10.0).round() / 10.0),
-                r.fraction.clone(),
+                r.fraction.code().to_string(),
                 "delta_area_m2".into(),
                 (k + 1).to_string(),
                 input.label.clone(),
                 num(r.area_m2[k]),
                 num(r.delta_area_m2[k]),
+                String::new(),
                 String::new(),
                 String::new(),
                 String::new(),
@@ -1106,29 +968,4 @@ pub fn comparison_csv(c: &Comparison) -> Result<Vec<u8>> {
     }
     w.into_inner()
         .map_err(|e| Error::new(ErrorKind::Io, format!("could not encode CSV: {e}")))
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn log_grid_smoothing_of_a_flat_curve_is_flat_and_averages_power() {
-        let flat = vec![Some(-3.0); 200];
-        assert!(
-            smooth_on_log_grid(&flat, 3)
-                .iter()
-                .all(|v| (v.unwrap() + 3.0).abs() < 1e-12)
-        );
-        // a step of 0 / -inf-like power: at the step the power average of
-        // an equal number of points at 1.0 and 0.25 (naive reference)
-        let step: Vec<Option<f64>> = (0..97)
-            .map(|i| Some(if i < 48 { 0.0 } else { -6.020_599_913 }))
-            .collect();
-        // 1/1 octave: ±24 points around point 48: 24 points at 1.0 (24..48)
-        // and 25 at 0.25 (48..=72)
-        let s = smooth_on_log_grid(&step, 1);
-        let want = 10.0 * ((24.0 * 1.0 + 25.0 * 0.25) / 49.0f64).log10();
-        assert!((s[48].unwrap() - want).abs() < 1e-9);
-    }
 }

@@ -17,8 +17,9 @@ use crate::analysis::{self, ImpulsePlacement, Smoothing};
 use crate::error::{Error, ErrorKind, Result};
 use crate::signal::wav::decode_wav;
 
-use super::folder::sha256_hex;
 use super::records::{Manifest, Results};
+use crate::folder::sha256_hex;
+use crate::model::Parameter;
 
 /// What to export.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -93,56 +94,23 @@ pub struct Measurement {
     pub results_sha256: String,
 }
 
-/// Opens a measurement folder; refuses what is not one, or an incomplete
-/// one.
+/// Opens a measurement folder through [`crate::folder::open`]: refuses
+/// what is not a complete measurement or average with intact raw files.
 pub fn open(dir: &Path) -> Result<Measurement> {
-    let shown = dir.display();
-    if !dir.is_dir() {
-        return Err(Error::input(format!(
-            "{shown} is not a folder; give a measurement folder made by gliss analyze, measure or demo"
-        )));
+    let f = crate::folder::open(dir)?;
+    let results_sha256 = f.content_sha256.clone();
+    match f.content {
+        crate::folder::Content::Measurement { manifest, results } => Ok(Measurement {
+            dir: dir.to_path_buf(),
+            manifest: *manifest,
+            results: *results,
+            results_sha256,
+        }),
+        crate::folder::Content::Comparison { .. } => Err(Error::input(format!(
+            "{} is a comparison, not a measurement; export the measurement folders it compared, or read its comparison.csv",
+            dir.display()
+        ))),
     }
-    let mp = dir.join("manifest.json");
-    if !mp.is_file() {
-        return Err(Error::input(format!(
-            "{shown} is not a gliss measurement folder (it has no manifest.json); give a folder made by gliss analyze, measure or demo"
-        )));
-    }
-    let text = std::fs::read_to_string(&mp).map_err(|e| Error::io("read", &mp, &e))?;
-    let manifest: Manifest = serde_json::from_str(&text).map_err(|e| {
-        Error::input(format!(
-            "{} is not a gliss manifest ({e}); give a folder made by gliss analyze, measure or demo",
-            mp.display()
-        ))
-    })?;
-    if !manifest.complete {
-        let why = if manifest.problems.is_empty() {
-            String::new()
-        } else {
-            format!(" ({})", manifest.problems.join("; "))
-        };
-        return Err(Error::input(format!(
-            "{shown} holds an incomplete measurement{why}: it has no results to export; measure again, or analyse its recording.wav with gliss analyze"
-        )));
-    }
-    let rp = dir.join("results.json");
-    let bytes = std::fs::read(&rp).map_err(|e| {
-        if e.kind() == std::io::ErrorKind::NotFound {
-            Error::input(format!(
-                "{shown} has no results.json; analyse its recording again with gliss analyze --overwrite"
-            ))
-        } else {
-            Error::io("read", &rp, &e)
-        }
-    })?;
-    let results: Results = serde_json::from_slice(&bytes)
-        .map_err(|e| Error::input(format!("{} is not a gliss results file: {e}", rp.display())))?;
-    Ok(Measurement {
-        dir: dir.to_path_buf(),
-        manifest,
-        results,
-        results_sha256: sha256_hex(&bytes),
-    })
 }
 
 /// The values of one column.
@@ -185,7 +153,7 @@ pub struct Table {
     /// What was exported.
     pub what: What,
     /// The response's smoothing (response only).
-    pub smoothing: Option<String>,
+    pub smoothing: Option<Smoothing>,
     /// Whether the response was smoothed again from impulse.wav.
     pub resmoothed: bool,
     /// The columns, all of the same length.
@@ -291,13 +259,7 @@ pub fn table(m: &Measurement, what: What, smooth: Option<Smoothing>) -> Result<T
                 )));
             }
             let all: Vec<_> = r.bands.iter().chain(r.broadband.as_ref()).collect();
-            let col = |name: &str,
-                       unit: &str,
-                       f: &dyn Fn(&analysis::room::BandResult) -> Option<f64>,
-                       digits| {
-                optional(name, unit, all.iter().map(|b| f(b)).collect(), digits)
-            };
-            let columns = vec![
+            let mut columns = vec![
                 numbers(
                     "center_hz",
                     "Hz, nominal mid-band frequency (ISO 266); the broadband row: the geometric centre of the sweep band",
@@ -313,28 +275,33 @@ pub fn table(m: &Measurement, what: What, smooth: Option<Smoothing>) -> Result<T
                 Column {
                     name: "fraction".into(),
                     unit: "the band's width: 1/1 octave, 1/3 octave, or broadband (the whole sweep band)".into(),
-                    values: Values::Text(all.iter().map(|b| b.fraction.clone()).collect()),
-                },
-                col("edt_s", "s, early decay time (0 to -10 dB)", &|b| b.edt_s, 3),
-                col("t20_s", "s, reverberation time from -5 to -25 dB", &|b| b.t20_s, 3),
-                col("t30_s", "s, reverberation time from -5 to -35 dB", &|b| b.t30_s, 3),
-                col("c50_db", "dB, clarity C50", &|b| b.c50_db, 2),
-                col("c80_db", "dB, clarity C80", &|b| b.c80_db, 2),
-                col("d50", "ratio 0 to 1, definition D50", &|b| b.d50, 3),
-                col("ts_s", "s, centre time", &|b| b.ts_s, 4),
-                col("inr_db", "dB, impulse response to noise ratio", &|b| b.inr_db, 1),
-                col(
-                    "curvature_percent",
-                    "percent, 100*(T30/T20 - 1)",
-                    &|b| b.curvature_percent,
-                    1,
-                ),
-                Column {
-                    name: "warnings".into(),
-                    unit: "what limits the band's values, in words; several joined by \"; \"".into(),
-                    values: Values::Text(all.iter().map(|b| b.warnings.join("; ")).collect()),
+                    values: Values::Text(all.iter().map(|b| b.fraction.code().to_string()).collect()),
                 },
             ];
+            columns.extend(Parameter::ALL.iter().map(|&p| {
+                let i = p.info();
+                optional(
+                    i.key,
+                    i.description,
+                    all.iter().map(|b| b.get(p)).collect(),
+                    i.file_decimals,
+                )
+            }));
+            columns.push(optional(
+                "curvature_percent",
+                "percent, 100*(T30/T20 - 1)",
+                all.iter().map(|b| b.curvature_percent).collect(),
+                1,
+            ));
+            columns.push(Column {
+                name: "warnings".into(),
+                unit: "what limits the band's values, in words; several joined by \"; \"".into(),
+                values: Values::Text(
+                    all.iter()
+                        .map(|b| b.warnings.messages().join("; "))
+                        .collect(),
+                ),
+            });
             Ok(Table {
                 what,
                 smoothing: None,
@@ -628,12 +595,9 @@ pub fn write(out: &Path, bytes: &[u8], overwrite: bool, m: &Measurement) -> Resu
             && m.manifest
                 .files
                 .iter()
-                .chain(std::iter::once(&super::records::FileEntry {
-                    name: "manifest.json".into(),
-                    role: String::new(),
-                    sha256: String::new(),
-                }))
-                .any(|f| b.join(&f.name) == a.join(name));
+                .map(|f| f.name.as_str())
+                .chain(std::iter::once("manifest.json"))
+                .any(|f| b.join(f) == a.join(name));
         if inside {
             return Err(Error::new(
                 ErrorKind::AlreadyExists,

@@ -248,7 +248,7 @@ fn manifest(
         recording_encoding: SampleEncoding::Float.describe(),
         sweep: m.design.clone(),
         settings: Settings {
-            smoothing: m.config.smoothing.label(),
+            smoothing: m.config.smoothing,
             plots: m.plots,
             harmonics: m.config.harmonics,
             bands: m.config.bands,
@@ -342,7 +342,7 @@ pub fn measure(
     let stim_hash = folder.write_raw("stimulus.wav", &stimulus_bytes)?;
     let raw = |name: &str, sha256: String| FileEntry {
         name: name.into(),
-        role: "raw".into(),
+        role: crate::folder::schema::FileRole::Raw,
         sha256,
     };
     let write_manifest = |man: &Manifest| folder.write_derived("manifest.json", &to_json(man)?);
@@ -543,11 +543,14 @@ pub fn measure(
             .iter()
             .fold(0.0f64, |a, v| a.max(v.abs()));
         if peak >= crate::analysis::CLIP_LEVEL {
-            outcome.analysis.warnings.push(format!(
-                "the reference input {} clips (peak {:.2} dBFS); lower the level of the loopback",
-                r + 1,
-                20.0 * peak.log10()
-            ));
+            outcome.analysis.warnings.add(
+                crate::model::Code::ReferenceClips,
+                format!(
+                    "the reference input {} clips (peak {:.2} dBFS); lower the level of the loopback",
+                    r + 1,
+                    20.0 * peak.log10()
+                ),
+            );
         }
     }
     Ok(outcome)

@@ -3,16 +3,20 @@
 
 pub mod compare;
 pub mod export;
-pub mod folder;
 pub mod measure;
-pub mod records;
 pub mod sweep_file;
+
+// the folder's schema and writer live in `crate::folder`; these paths are
+// kept for the command line and the tests
+pub use crate::folder::schema as records;
+pub use crate::folder::write as folder;
 
 use std::path::{Path, PathBuf};
 
 use crate::analysis::target::{self, Target};
 use crate::analysis::{self, Analysis, AnalysisConfig, Distortion};
 use crate::error::{Error, Result};
+use crate::model::{Code, Parameter, Warnings};
 use crate::plot;
 use crate::signal::sweep::SweepDesign;
 use crate::signal::wav::{self, SampleEncoding, WavData};
@@ -110,8 +114,8 @@ pub struct Outcome {
 
 /// Checks the inputs of a job before any file is written: sample rates,
 /// the channel, the sweep file against its description.
-pub fn check_inputs(job: &Job) -> Result<Vec<String>> {
-    let mut warnings = Vec::new();
+pub fn check_inputs(job: &Job) -> Result<Warnings> {
+    let mut warnings = Warnings::new();
     let rec = &job.recording;
     let stim = &job.stimulus;
     let rate = job.design.params.sample_rate_hz;
@@ -134,8 +138,9 @@ pub fn check_inputs(job: &Job) -> Result<Vec<String>> {
     }
     if let Some(d) = &job.drive {
         if d.distance_m.is_none() {
-            warnings.push(
-                "the sensitivity holds at the microphone's distance, not at 1 m: give --distance M to refer it to 1 m".to_string(),
+            warnings.add(
+                Code::SensitivityAtMicrophone,
+                "the sensitivity holds at the microphone's distance, not at 1 m: give --distance M to refer it to 1 m",
             );
         }
     }
@@ -180,8 +185,9 @@ pub fn check_inputs(job: &Job) -> Result<Vec<String>> {
         .map(|(a, b)| (a - b).abs())
         .fold(0.0, f64::max);
     if worst > 1.5 * step || got.len() < job.design.sweep_samples {
-        warnings.push(
-            "the sweep file differs from the sweep its .json describes; the analysis divides by the file as it is, but check that it is the file that was played".to_string(),
+        warnings.add(
+            Code::SweepFileDiffers,
+            "the sweep file differs from the sweep its .json describes; the analysis divides by the file as it is, but check that it is the file that was played",
         );
     }
     Ok(warnings)
@@ -228,9 +234,9 @@ pub fn analyse_into(job: &Job, folder: &MeasurementFolder) -> Result<Outcome> {
         &job.config,
     )?;
     // name the channel that clips
-    for w in &mut analysis.warnings {
-        if w.starts_with("the recording clips") {
-            *w = w.replacen(
+    for w in analysis.warnings.iter_mut() {
+        if w.code == Code::RecordingClips {
+            w.message = w.message.replacen(
                 "the recording clips",
                 &format!("channel {} of the recording clips", job.channel + 1),
                 1,
@@ -317,7 +323,7 @@ fn write_folder(
         let sha256 = folder.write_raw(name, bytes)?;
         files.push(FileEntry {
             name: name.into(),
-            role: "raw".into(),
+            role: records::FileRole::Raw,
             sha256,
         });
     }
@@ -417,7 +423,7 @@ fn write_folder(
                     &a.response.frequency_hz,
                     &a.response.magnitude_db,
                     &a.response.phase_deg,
-                    &a.response.smoothing,
+                    &a.response.smoothing.label(),
                     a.gate.map(|g| (g.resolution_hz, g.resolved_to_hz)),
                     overlay.as_ref(),
                 )?;
@@ -448,7 +454,7 @@ fn write_folder(
         recording_encoding: job.recording.encoding.describe(),
         sweep: job.design.clone(),
         settings: Settings {
-            smoothing: job.config.smoothing.label(),
+            smoothing: job.config.smoothing,
             plots: job.plots,
             harmonics: job.config.harmonics,
             bands: job.config.bands,
@@ -626,38 +632,24 @@ pub fn bands_table_csv(
 ) -> Result<Vec<u8>> {
     let mut w = csv::Writer::from_writer(Vec::new());
     let err = |e: csv::Error| Error::input(format!("could not encode CSV: {e}"));
-    w.write_record([
-        "center_hz",
-        "fraction",
-        "edt_s",
-        "t20_s",
-        "t30_s",
-        "c50_db",
-        "c80_db",
-        "d50",
-        "ts_s",
-        "inr_db",
-        "curvature_percent",
-        "warnings",
-    ])
-    .map_err(err)?;
+    let mut header = vec!["center_hz", "fraction"];
+    header.extend(Parameter::ALL.iter().map(|p| p.key()));
+    header.extend(["curvature_percent", "warnings"]);
+    w.write_record(&header).map_err(err)?;
     let cell = |v: Option<f64>, digits: usize| v.map_or(String::new(), |x| format!("{x:.digits$}"));
     for b in bands.iter().chain(broadband) {
-        w.write_record([
+        let mut row = vec![
             format!("{}", (b.center_hz * 10.0).round() / 10.0),
-            b.fraction.clone(),
-            cell(b.edt_s, 3),
-            cell(b.t20_s, 3),
-            cell(b.t30_s, 3),
-            cell(b.c50_db, 2),
-            cell(b.c80_db, 2),
-            cell(b.d50, 3),
-            cell(b.ts_s, 4),
-            cell(b.inr_db, 1),
-            cell(b.curvature_percent, 1),
-            b.warnings.join("; "),
-        ])
-        .map_err(err)?;
+            b.fraction.code().to_string(),
+        ];
+        row.extend(
+            Parameter::ALL
+                .iter()
+                .map(|&p| cell(b.get(p), p.info().file_decimals)),
+        );
+        row.push(cell(b.curvature_percent, 1));
+        row.push(b.warnings.messages().join("; "));
+        w.write_record(&row).map_err(err)?;
     }
     w.into_inner()
         .map_err(|e| Error::input(format!("could not encode CSV: {e}")))
@@ -680,7 +672,7 @@ pub fn results_record(a: &Analysis) -> Results {
             samples: a.impulse.samples.len(),
         }),
         response: ResponseRecord {
-            smoothing: a.response.smoothing.clone(),
+            smoothing: a.response.smoothing,
             magnitude_reference: "0 dB = the recording equals the sweep as written (a wire)".into(),
             frequency_hz: a.response.frequency_hz.clone(),
             magnitude_db: a.response.magnitude_db.clone(),

@@ -8,7 +8,7 @@ use std::path::{Path, PathBuf};
 use sha2::{Digest, Sha256};
 
 use crate::error::{Error, ErrorKind, Result};
-use crate::session::records::FileEntry;
+use crate::folder::schema::{FileEntry, FileRole};
 
 /// Names of the raw files of a measurement folder.
 pub const RAW_FILES: [&str; 2] = ["stimulus.wav", "recording.wav"];
@@ -23,7 +23,7 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
 fn derived(rel: &str, bytes: &[u8]) -> FileEntry {
     FileEntry {
         name: rel.into(),
-        role: "derived".into(),
+        role: FileRole::Derived,
         sha256: sha256_hex(bytes),
     }
 }

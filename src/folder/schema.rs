@@ -1,15 +1,44 @@
-//! The files of a measurement folder as data: results.json and
-//! manifest.json (schema version 1; fields are added, never renamed).
+//! The files of every folder gliss writes, as data: manifest.json,
+//! results.json (a measurement or an average) and comparison.json (schema
+//! version 1; fields are added, never renamed). The writers and every
+//! reader share these types.
 
 use serde::{Deserialize, Serialize};
 
 use crate::analysis::Distortion;
+use crate::analysis::Smoothing;
+use crate::analysis::compare::{Changes, Verdict};
 use crate::analysis::gate::GateInfo;
 use crate::analysis::room::BandResult;
+use crate::model::{Fraction, Parameter, Warnings};
 use crate::signal::sweep::SweepDesign;
 
 /// Version of results.json and manifest.json.
 pub const SCHEMA_VERSION: u32 = 1;
+
+/// What a folder holds, as manifest.json's `kind` says (absent: a
+/// measurement).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum FolderKind {
+    /// One measurement: raw recording, impulse response, results.
+    Measurement,
+    /// A power average of measurement positions (results, no recording).
+    Average,
+    /// A comparison of measurements (comparison.json).
+    Comparison,
+}
+
+impl FolderKind {
+    /// In words, with an article: "a measurement", "an average", "a comparison".
+    pub fn words(self) -> &'static str {
+        match self {
+            FolderKind::Measurement => "a measurement",
+            FolderKind::Average => "an average",
+            FolderKind::Comparison => "a comparison",
+        }
+    }
+}
 
 /// results.json.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -42,8 +71,9 @@ pub struct Results {
     /// The same parameters over the whole sweep band.
     #[serde(default)]
     pub broadband: Option<BandResult>,
-    /// Warnings, in plain words.
-    pub warnings: Vec<String>,
+    /// Warnings: `warnings` (the sentences) and `warning_codes` beside them.
+    #[serde(flatten)]
+    pub warnings: Warnings,
     /// For an average over positions: what was averaged.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub average: Option<AverageRecord>,
@@ -73,11 +103,25 @@ pub struct InputRecord {
     /// The folder as given.
     pub folder: String,
     /// A short label for plots and tables.
+    #[serde(default)]
     pub label: String,
     /// SHA-256 of its manifest.json (which lists the hash of every file).
+    #[serde(default)]
     pub sha256: String,
     /// SHA-256 of its results.json.
+    #[serde(default)]
     pub results_sha256: String,
+}
+
+impl InputRecord {
+    /// The label, or the folder when the label is empty.
+    pub fn name(&self) -> &str {
+        if self.label.trim().is_empty() {
+            &self.folder
+        } else {
+            &self.label
+        }
+    }
 }
 
 /// The deviation of the response from a target curve (`--target`).
@@ -113,8 +157,8 @@ pub struct ImpulseRecord {
 /// The frequency response on the log grid.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct ResponseRecord {
-    /// "1/6", …, or "none".
-    pub smoothing: String,
+    /// The fractional-octave smoothing ("1/6", …, or "none").
+    pub smoothing: Smoothing,
     /// What 0 dB means.
     pub magnitude_reference: String,
     /// Grid frequencies, Hz (48 per octave).
@@ -215,9 +259,9 @@ pub struct Manifest {
     /// What went wrong; an incomplete folder says why here.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub problems: Vec<String>,
-    /// "average" for an average over positions (absent for a measurement).
+    /// `average` for an average over positions (absent for a measurement).
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub kind: Option<String>,
+    pub kind: Option<FolderKind>,
     /// The input folders of an average, with their hashes.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub inputs: Vec<InputRecord>,
@@ -276,7 +320,7 @@ pub struct Source {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Settings {
     /// Smoothing of the response.
-    pub smoothing: String,
+    pub smoothing: Smoothing,
     /// Whether plots were drawn.
     pub plots: bool,
     /// Highest harmonic order separated (1 = none).
@@ -308,13 +352,200 @@ pub struct Settings {
     pub target_absolute: bool,
 }
 
+/// What a file of a folder is.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum FileRole {
+    /// Written once as captured or given, never modified: the measurement.
+    Raw,
+    /// Made by analysis from the raw files; may be made again.
+    Derived,
+    /// A file given to the analysis from outside the folder (a
+    /// calibration, a microphone correction, a target), named by its path.
+    Input,
+}
+
 /// One file of the folder.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct FileEntry {
     /// Path inside the folder.
     pub name: String,
-    /// "raw" (never modified) or "derived" (remade by analysis).
-    pub role: String,
+    /// Raw (never modified) or derived (remade by analysis).
+    pub role: FileRole,
     /// SHA-256 of its bytes.
     pub sha256: String,
+}
+
+/// comparison.json. Every part but `inputs` may be absent when read
+/// (a comparison written by another tool or an older gliss).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Comparison {
+    /// Layout version.
+    #[serde(default = "schema_version")]
+    pub schema_version: u32,
+    /// Always `comparison`.
+    #[serde(default = "comparison_kind")]
+    pub kind: FolderKind,
+    /// The folders in order (the first is the reference), with their hashes.
+    pub inputs: Vec<InputRecord>,
+    /// The band every input covers, Hz.
+    #[serde(default)]
+    pub common_band_hz: [f64; 2],
+    /// The responses and their differences from the first.
+    #[serde(default)]
+    pub response: CompareResponse,
+    /// Every band parameter: values, changes and their significance.
+    #[serde(default)]
+    pub bands: Vec<BandRow>,
+    /// With --volume: the change of equivalent absorption area per band.
+    #[serde(default)]
+    pub absorption: Vec<AbsorptionRow>,
+    /// The room volume, m³ (with --volume).
+    pub volume_m3: Option<f64>,
+    /// The air temperature, °C (with --volume).
+    pub temperature_c: Option<f64>,
+    /// The speed of sound used, m/s (with --volume).
+    pub speed_of_sound_m_s: Option<f64>,
+    /// With --target: each response against the target curve.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub target: Option<CompareTarget>,
+    /// How a change is judged, in words.
+    #[serde(default)]
+    pub criteria: Vec<String>,
+    /// Warnings: `warnings` (the sentences) and `warning_codes` beside them.
+    #[serde(flatten)]
+    pub warnings: Warnings,
+}
+
+/// The responses of a comparison on one grid.
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+pub struct CompareResponse {
+    /// Smoothing of the curves in words: the inputs' own ("1/6", or their
+    /// mix "1/6/1/3"), or a further smoothing of them ("1/3 of 1/6").
+    pub smoothing: String,
+    /// Each input's own smoothing.
+    #[serde(default)]
+    pub input_smoothing: Vec<Smoothing>,
+    /// The smoothing `--smooth` asked for, if any: each response was
+    /// taken again from its impulse response at it, or (an average) smoothed
+    /// further on the grid.
+    #[serde(default)]
+    pub further_smoothing: Option<Smoothing>,
+    /// Grid frequencies, Hz.
+    pub frequency_hz: Vec<f64>,
+    /// Per input, the magnitude in dB (`null` where it has none).
+    pub magnitude_db: Vec<Vec<Option<f64>>>,
+    /// Per input, its magnitude minus the first's, dB (the first: zeros).
+    pub difference_db: Vec<Vec<Option<f64>>>,
+}
+
+/// One parameter of one band across the inputs. Arrays hold one entry per
+/// input; for the first input (the reference) the change fields are null.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BandRow {
+    /// Nominal centre, Hz.
+    pub center_hz: f64,
+    /// The band's width.
+    pub fraction: Fraction,
+    /// The parameter, by its results.json key.
+    pub parameter: Parameter,
+    /// The value per input (`null` where not measured).
+    pub values: Vec<Option<f64>>,
+    /// The standard uncertainty of each value (`null` where unknown).
+    #[serde(default)]
+    pub uncertainty: Vec<Option<f64>>,
+    /// The changes from the first input and their judgement: `change`,
+    /// `relative_change`, `exceeds_jnd` (ISO 3382-1 Annex A),
+    /// `exceeds_uncertainty` (twice the combined standard uncertainty) and
+    /// `verdict`, the one judgement every output shows.
+    #[serde(flatten)]
+    pub changes: Changes,
+}
+
+/// The equivalent absorption area of one band across the inputs.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AbsorptionRow {
+    /// Nominal centre, Hz.
+    pub center_hz: f64,
+    /// The band's width.
+    pub fraction: Fraction,
+    /// The decay time it comes from: T30, or T20 where T30 is missing in
+    /// any input.
+    pub parameter: Parameter,
+    /// A = 55.3·V/(c·T) per input, m².
+    pub area_m2: Vec<Option<f64>>,
+    /// Area minus the first input's, m² (`null` for the first).
+    pub delta_area_m2: Vec<Option<f64>>,
+}
+
+/// Every response of a comparison against a target curve.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CompareTarget {
+    /// The target file as given.
+    pub file: String,
+    /// SHA-256 of its bytes.
+    pub sha256: String,
+    /// Whether each response was level-aligned to the target first.
+    pub aligned: bool,
+    /// Per input, the deviation from the target (`null` where the
+    /// response does not cover the range).
+    pub per_input: Vec<Option<crate::analysis::target::TargetReport>>,
+}
+
+/// The manifest of a comparison folder.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ComparisonManifest {
+    /// Layout version.
+    pub schema_version: u32,
+    /// "gliss".
+    pub tool: String,
+    /// Version of gliss that wrote the folder.
+    pub tool_version: String,
+    /// When (UTC, RFC 3339).
+    pub created_utc: String,
+    /// Always true once written.
+    pub complete: bool,
+    /// Always `comparison`.
+    pub kind: FolderKind,
+    /// The command line that made it.
+    pub command_line: Vec<String>,
+    /// kind "comparison" and a description.
+    pub source: Source,
+    /// The folders compared, with their hashes.
+    #[serde(default)]
+    pub inputs: Vec<InputRecord>,
+    /// Every file of the folder with its SHA-256.
+    pub files: Vec<FileEntry>,
+}
+
+fn schema_version() -> u32 {
+    SCHEMA_VERSION
+}
+
+fn comparison_kind() -> FolderKind {
+    FolderKind::Comparison
+}
+
+impl Comparison {
+    /// Gives every row the verdict of its two stored tests where the file
+    /// has none (a comparison written before verdicts were stored), by the
+    /// one rule [`Verdict::of`]; rows that have verdicts keep them.
+    pub fn fill_missing_verdicts(&mut self) {
+        let n = self.inputs.len();
+        for b in &mut self.bands {
+            let c = &mut b.changes;
+            if c.verdict.len() == n {
+                continue;
+            }
+            c.verdict = (0..n)
+                .map(|i| {
+                    (i > 0).then(|| {
+                        let get = |v: &[Option<bool>]| v.get(i).copied().flatten();
+                        let measured = c.change.get(i).copied().flatten().is_some();
+                        Verdict::of(measured, get(&c.exceeds_jnd), get(&c.exceeds_uncertainty))
+                    })
+                })
+                .collect();
+        }
+    }
 }

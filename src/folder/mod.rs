@@ -1,0 +1,290 @@
+//! The measurement folder: one schema for every kind gliss writes
+//! ([`schema`]), the writer that keeps raw files sacred ([`write`]), and
+//! one reader, [`open`], through which every later command (re-analysis,
+//! average, compare, export, report) enters a folder.
+//!
+//! [`open`] reads manifest.json, refuses an incomplete folder, checks every
+//! file the manifest lists against its SHA-256 and refuses a folder whose
+//! raw files are not the ones it recorded, then reads results.json or
+//! comparison.json into the shared types.
+
+pub mod schema;
+pub mod write;
+
+use std::fs;
+use std::path::{Component, Path, PathBuf};
+
+use crate::error::{Error, Result};
+use schema::{Comparison, ComparisonManifest, FileEntry, FileRole, FolderKind, Manifest, Results};
+pub use write::{MeasurementFolder, sha256_hex};
+
+/// How a file of a folder compares with the SHA-256 its manifest recorded.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum FileState {
+    /// The bytes match the recorded hash.
+    Matches,
+    /// The file is there but its bytes differ.
+    Differs,
+    /// The file is not there.
+    Missing,
+}
+
+/// One file the manifest lists, checked.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FileCheck {
+    /// The manifest's entry (name, role, recorded hash).
+    pub entry: FileEntry,
+    /// What the file on disk is now.
+    pub state: FileState,
+}
+
+/// What a folder holds, read into the shared types.
+#[derive(Debug, Clone)]
+pub enum Content {
+    /// A measurement or an average: manifest.json and results.json.
+    Measurement {
+        /// The manifest.
+        manifest: Box<Manifest>,
+        /// The results.
+        results: Box<Results>,
+    },
+    /// A comparison: its manifest and comparison.json.
+    Comparison {
+        /// The manifest.
+        manifest: Box<ComparisonManifest>,
+        /// The comparison.
+        comparison: Box<Comparison>,
+    },
+}
+
+/// A folder gliss wrote, opened and checked.
+#[derive(Debug, Clone)]
+pub struct Folder {
+    /// The folder as given.
+    pub dir: PathBuf,
+    /// What it holds.
+    pub kind: FolderKind,
+    /// SHA-256 of its manifest.json (which lists the hash of every file).
+    pub manifest_sha256: String,
+    /// SHA-256 of its results.json or comparison.json.
+    pub content_sha256: String,
+    /// Every file the manifest lists, checked against its hash.
+    pub files: Vec<FileCheck>,
+    /// The manifest and results, or the comparison.
+    pub content: Content,
+}
+
+/// What [`open_with`] accepts.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct OpenOptions {
+    /// Open a folder whose raw files no longer match their manifest
+    /// (for a report that shows the damage); everything else refuses it.
+    pub allow_changed_raw: bool,
+}
+
+/// Opens a folder that gliss wrote: it must be complete and its raw files
+/// must be the ones its manifest recorded.
+pub fn open(dir: &Path) -> Result<Folder> {
+    open_with(dir, OpenOptions::default())
+}
+
+/// Opens a folder with `options`; see [`open`].
+pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
+    let name = dir.display();
+    if !dir.is_dir() {
+        return Err(Error::input(format!(
+            "{name} is not a folder; give folders written by gliss (measure, analyze, demo, average or compare)"
+        )));
+    }
+    let mpath = dir.join("manifest.json");
+    if !mpath.is_file() {
+        return Err(Error::input(format!(
+            "{name} is not a measurement folder: it has no manifest.json; give folders written by gliss measure, analyze, demo, average or compare"
+        )));
+    }
+    let mbytes = fs::read(&mpath).map_err(|e| Error::io("read", &mpath, &e))?;
+    let value: serde_json::Value = serde_json::from_slice(&mbytes).map_err(|e| {
+        Error::input(format!(
+            "{name}/manifest.json is not valid JSON ({e}); the folder is damaged: analyse its raw files again into a new folder"
+        ))
+    })?;
+    if value.get("complete").and_then(serde_json::Value::as_bool) == Some(false) {
+        let why = value
+            .get("problems")
+            .and_then(|p| p.as_array())
+            .map(|p| {
+                p.iter()
+                    .filter_map(|x| x.as_str())
+                    .collect::<Vec<_>>()
+                    .join("; ")
+            })
+            .filter(|w| !w.is_empty())
+            .unwrap_or_else(|| "it was interrupted".into());
+        return Err(Error::input(format!(
+            "{name} is an incomplete measurement ({why}); it has no results: measure again, or analyse its recording.wav with gliss analyze into a new folder"
+        )));
+    }
+    let is_comparison =
+        |v: Option<&serde_json::Value>| v.and_then(serde_json::Value::as_str) == Some("comparison");
+    let comparison = is_comparison(value.get("kind"))
+        || is_comparison(value.get("source").and_then(|s| s.get("kind")));
+    let not_ours = |e: serde_json::Error| {
+        Error::input(format!(
+            "{name}/manifest.json is not a gliss manifest ({e}); give folders written by gliss"
+        ))
+    };
+    if comparison {
+        let manifest: ComparisonManifest = serde_json::from_value(value).map_err(not_ours)?;
+        let files = check_files(dir, &manifest.files, options)?;
+        let (bytes, sha) = read_content(dir, "comparison.json", "run gliss compare again")?;
+        let mut c: Comparison = serde_json::from_slice(&bytes).map_err(|e| {
+            Error::input(format!(
+                "{name}/comparison.json does not parse ({e}); run gliss compare again into a new folder"
+            ))
+        })?;
+        c.fill_missing_verdicts();
+        return Ok(Folder {
+            dir: dir.to_path_buf(),
+            kind: FolderKind::Comparison,
+            manifest_sha256: sha256_hex(&mbytes),
+            content_sha256: sha,
+            files,
+            content: Content::Comparison {
+                manifest: Box::new(manifest),
+                comparison: Box::new(c),
+            },
+        });
+    }
+    let manifest: Manifest = serde_json::from_value(value).map_err(not_ours)?;
+    let files = check_files(dir, &manifest.files, options)?;
+    let (bytes, sha) = read_content(
+        dir,
+        "results.json",
+        "analyse its raw files again (gliss analyze ... --overwrite)",
+    )?;
+    let results: Results = serde_json::from_slice(&bytes).map_err(|e| {
+        Error::input(format!(
+            "{name}/results.json is not a gliss results file ({e}); analyse its raw files again (gliss analyze ... --overwrite)"
+        ))
+    })?;
+    Ok(Folder {
+        dir: dir.to_path_buf(),
+        kind: manifest.kind.unwrap_or(FolderKind::Measurement),
+        manifest_sha256: sha256_hex(&mbytes),
+        content_sha256: sha,
+        files,
+        content: Content::Measurement {
+            manifest: Box::new(manifest),
+            results: Box::new(results),
+        },
+    })
+}
+
+/// Reads `file` of the folder with its SHA-256; `redo` says how to make it
+/// again when it is missing.
+fn read_content(dir: &Path, file: &str, redo: &str) -> Result<(Vec<u8>, String)> {
+    let path = dir.join(file);
+    let bytes = fs::read(&path).map_err(|e| {
+        if e.kind() == std::io::ErrorKind::NotFound {
+            Error::input(format!("{} has no {file}; {redo}", dir.display()))
+        } else {
+            Error::io("read", &path, &e)
+        }
+    })?;
+    let sha = sha256_hex(&bytes);
+    Ok((bytes, sha))
+}
+
+/// Checks every file the manifest lists (inside the folder) against its
+/// hash; a raw file that is missing or changed refuses the folder unless
+/// `options` allow it.
+fn check_files(dir: &Path, entries: &[FileEntry], options: OpenOptions) -> Result<Vec<FileCheck>> {
+    let mut out = Vec::new();
+    for entry in entries {
+        // only paths inside the folder are checked
+        let inside = !entry.name.is_empty()
+            && Path::new(&entry.name)
+                .components()
+                .all(|c| matches!(c, Component::Normal(_)));
+        if !inside {
+            continue;
+        }
+        let state = match fs::read(dir.join(&entry.name)) {
+            Ok(bytes) if sha256_hex(&bytes).eq_ignore_ascii_case(&entry.sha256) => {
+                FileState::Matches
+            }
+            Ok(_) => FileState::Differs,
+            Err(_) => FileState::Missing,
+        };
+        if entry.role == FileRole::Raw && state != FileState::Matches && !options.allow_changed_raw
+        {
+            return Err(Error::input(changed_raw_message(dir, &entry.name, state)));
+        }
+        out.push(FileCheck {
+            entry: entry.clone(),
+            state,
+        });
+    }
+    Ok(out)
+}
+
+/// The refusal of a folder whose raw file `name` is not the one its
+/// manifest recorded.
+fn changed_raw_message(dir: &Path, name: &str, state: FileState) -> String {
+    let path = dir.join(name);
+    let what = match state {
+        FileState::Missing => "is missing",
+        _ => {
+            "does not match the SHA-256 its manifest recorded (it was changed after the measurement)"
+        }
+    };
+    format!(
+        "the raw file {} {what}; gliss never works from a raw file it cannot vouch for: restore the original from a backup, or measure again into a new folder",
+        path.display()
+    )
+}
+
+impl Folder {
+    /// The folder's label: its last path component.
+    pub fn label(&self) -> String {
+        self.dir
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_else(|| self.dir.display().to_string())
+    }
+
+    /// The manifest and results of a measurement or an average; a
+    /// comparison is refused with `why` (what the caller needs instead).
+    pub fn measurement(&self, why: &str) -> Result<(&Manifest, &Results)> {
+        match &self.content {
+            Content::Measurement { manifest, results } => Ok((manifest, results)),
+            Content::Comparison { .. } => Err(Error::input(format!(
+                "{} is a comparison, not a measurement; {why}",
+                self.dir.display()
+            ))),
+        }
+    }
+
+    /// The raw files that no longer match the manifest (only when opened
+    /// with [`OpenOptions::allow_changed_raw`]).
+    pub fn changed_raw_files(&self) -> Vec<&FileCheck> {
+        self.files
+            .iter()
+            .filter(|f| f.entry.role == FileRole::Raw && f.state != FileState::Matches)
+            .collect()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_folder_without_a_manifest_is_refused_by_name() {
+        let t = tempfile::tempdir().unwrap();
+        let e = open(t.path()).unwrap_err();
+        assert!(e.message().contains("has no manifest.json"), "{e}");
+        let e = open(&t.path().join("nowhere")).unwrap_err();
+        assert!(e.message().contains("is not a folder"), "{e}");
+    }
+}
