@@ -198,7 +198,11 @@ fn read_content(dir: &Path, file: &str, redo: &str) -> Result<(Vec<u8>, String)>
 /// Checks every file the manifest lists (inside the folder) against its
 /// hash; a raw file that is missing or changed refuses the folder unless
 /// `options` allow it.
-fn check_files(dir: &Path, entries: &[FileEntry], options: OpenOptions) -> Result<Vec<FileCheck>> {
+pub(crate) fn check_files(
+    dir: &Path,
+    entries: &[FileEntry],
+    options: OpenOptions,
+) -> Result<Vec<FileCheck>> {
     let mut out = Vec::new();
     for entry in entries {
         // only paths inside the folder are checked

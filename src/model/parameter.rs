@@ -271,8 +271,8 @@ impl<'de> Deserialize<'de> for Parameter {
 }
 
 /// One value (or none) per [`Parameter`]: the values of a band. In JSON
-/// each parameter is its own key (`"t30_s": 0.61`, `null` where not
-/// measured), so a band reads as it always has.
+/// each parameter is its own key (its [`Info::key`] with the value, `null`
+/// where not measured), so a band reads as it always has.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct Values([Option<f64>; 8]);
 

@@ -12,6 +12,7 @@ use plotters::coord::{CoordTranslate, Shift};
 use plotters::drawing::DrawingAreaErrorKind;
 use plotters::prelude::*;
 
+pub mod annotate;
 pub mod compare;
 
 use crate::analysis::etc;

@@ -277,7 +277,16 @@ fn report_escapes_folder_names_and_says_when_a_file_changed() {
     let last = bytes.len() - 1;
     bytes[last] ^= 1;
     std::fs::write(&rec, bytes).unwrap();
-    ok(dir, &["report", name, "--out", "r.html"]);
+    // refused unless asked to show the damage
+    let e = refused(dir, &["report", name, "--out", "r.html"]);
+    assert!(
+        e.contains("recording.wav does not match the SHA-256"),
+        "{e}"
+    );
+    ok(
+        dir,
+        &["report", name, "--out", "r.html", "--show-changed-raw"],
+    );
     let html = std::fs::read_to_string(dir.join("r.html")).unwrap();
     assert_self_contained(&html);
     assert!(!html.contains("<script>"));
