@@ -268,7 +268,7 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
             .and_then(|x| x.delta_area_m2[1]);
         println!(
             "  {:>6} Hz  T30 {t0:.2} s -> {t1:.2} s{}{}",
-            crate::plot::format_hz(r.center_hz),
+            crate::model::units::format_hz(r.center_hz),
             area.map_or(String::new(), |x| format!(", {x:+.1} m² absorption")),
             if r.exceeds_jnd[1] == Some(true) {
                 ", audible"

@@ -11,6 +11,9 @@ use serde::{Deserialize, Serialize};
 use crate::analysis::compare::{self as calc, PARAMETERS};
 use crate::analysis::room::{BandResult, Spread};
 use crate::error::{Error, ErrorKind, Result};
+use crate::model::plot_kind::PLOTS_BUILT;
+use crate::model::units::format_hz;
+#[cfg(feature = "plots")]
 use crate::plot;
 use crate::session::folder::{MeasurementFolder, sha256_hex};
 use crate::session::records::{
@@ -201,8 +204,8 @@ fn common_grid(inputs: &[Input], warnings: &mut Vec<String>) -> Result<Vec<f64>>
     {
         warnings.push(format!(
             "the folders' sweeps cover different bands; only the common band {} Hz to {} Hz is compared",
-            plot::format_hz(lo.round()),
-            plot::format_hz(hi.round())
+            format_hz(lo.round()),
+            format_hz(hi.round())
         ));
     }
     Ok(inputs[0]
@@ -435,6 +438,7 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
             &bands_table_csv(&results.bands, results.broadband.as_ref())?,
         )?);
     }
+    #[cfg(feature = "plots")]
     if job.plots {
         let title = format!("average of {n} positions");
         let positions: Vec<(String, Vec<f64>)> = inputs
@@ -447,20 +451,18 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
                 )
             })
             .collect();
-        let tmp = folder.temp_path("plots/response.png");
-        plot::compare::average_response_png(
-            &tmp,
-            &title,
-            &grid,
-            &positions,
-            &avg,
-            &results.response.smoothing,
-        )?;
-        files.push(folder.commit_entry(&tmp, "plots/response.png")?);
-        if !results.bands.is_empty() {
-            let tmp = folder.temp_path("plots/reverberation.png");
-            plot::compare::average_reverberation_png(&tmp, &title, &results.bands)?;
-            files.push(folder.commit_entry(&tmp, "plots/reverberation.png")?);
+        let input = plot::AveragePlotInput {
+            title: &title,
+            frequency_hz: &grid,
+            positions: &positions,
+            average: &avg,
+            smoothing: &results.response.smoothing,
+            bands: &results.bands,
+        };
+        for kind in input.kinds() {
+            let tmp = folder.temp_path(kind.file());
+            plot::draw_average(kind, &tmp, &input)?;
+            files.push(folder.commit_entry(&tmp, kind.file())?);
         }
     }
     let m0 = &inputs[0].manifest;
@@ -491,7 +493,7 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
         sweep: m0.sweep.clone(),
         settings: Settings {
             smoothing: results.response.smoothing.clone(),
-            plots: job.plots,
+            plots: job.plots && PLOTS_BUILT,
             harmonics: 1,
             bands: !results.bands.is_empty(),
             calibration: None,
@@ -941,6 +943,38 @@ pub struct ComparisonManifest {
     pub files: Vec<FileEntry>,
 }
 
+/// The decay time the reverberation plot shows per band (T30 where every
+/// input has it, else T20), ringed where the change exceeds the
+/// just-noticeable difference.
+#[cfg(feature = "plots")]
+fn reverberation_points(rows: &[BandRow]) -> Vec<plot::BandPoints> {
+    let mut points = Vec::new();
+    for fraction in ["1/1", "1/3"] {
+        let of = |p: &str| -> Vec<&BandRow> {
+            rows.iter()
+                .filter(|r| r.fraction == fraction && r.parameter == p)
+                .collect()
+        };
+        let (t30, t20) = (of("t30_s"), of("t20_s"));
+        for (i, r) in t30.iter().enumerate() {
+            let row = if r.values.iter().all(Option::is_some) {
+                Some(*r)
+            } else {
+                t20.get(i).copied()
+            };
+            if let Some(row) = row {
+                points.push(plot::BandPoints {
+                    center_hz: row.center_hz,
+                    fraction: row.fraction.clone(),
+                    values: row.values.clone(),
+                    mark: row.exceeds_jnd.iter().map(|e| *e == Some(true)).collect(),
+                });
+            }
+        }
+    }
+    points
+}
+
 fn write_comparison(
     job: &CompareJob,
     folder: &MeasurementFolder,
@@ -948,9 +982,13 @@ fn write_comparison(
     cmp: &Comparison,
 ) -> Result<Vec<String>> {
     folder.create()?;
-    let mut files = Vec::new();
-    files.push(folder.derived_entry("comparison.json", &to_json(cmp)?)?);
-    files.push(folder.derived_entry("comparison.csv", &comparison_csv(cmp)?)?);
+    // the plots follow, with the plots feature
+    #[cfg_attr(not(feature = "plots"), allow(unused_mut))]
+    let mut files = vec![
+        folder.derived_entry("comparison.json", &to_json(cmp)?)?,
+        folder.derived_entry("comparison.csv", &comparison_csv(cmp)?)?,
+    ];
+    #[cfg(feature = "plots")]
     if job.plots {
         let labels: Vec<String> = inputs.iter().map(|i| i.record.label.clone()).collect();
         let nan =
@@ -967,54 +1005,38 @@ fn write_comparison(
             .skip(1)
             .collect();
         let title = labels.join(" vs ");
-        for (rel, which) in [
-            ("plots/compare-response.png", 0),
-            ("plots/compare-difference.png", 1),
-            ("plots/compare-reverberation.png", 2),
-        ] {
-            let tmp = folder.temp_path(rel);
-            match which {
-                0 => {
-                    // the target drawn level-aligned to the first response
-                    let overlay =
-                        job.target
-                            .as_ref()
-                            .zip(cmp.target.as_ref())
-                            .and_then(|(t, ct)| {
-                                let r = ct.per_input.first()?.as_ref()?;
-                                Some(plot::TargetOverlay {
-                                    curve: t.target.curve(
-                                        &cmp.response.frequency_hz,
-                                        (r.range_hz[0], r.range_hz[1]),
-                                        -r.level_offset_db,
-                                    ),
-                                    label: format!("target ({})", t.file.name),
-                                })
-                            });
-                    plot::compare::overlay_png(
-                        &tmp,
-                        &title,
+        // the target drawn level-aligned to the first response
+        let overlay = job
+            .target
+            .as_ref()
+            .zip(cmp.target.as_ref())
+            .and_then(|(t, ct)| {
+                let r = ct.per_input.first()?.as_ref()?;
+                Some(plot::TargetOverlay {
+                    curve: t.target.curve(
                         &cmp.response.frequency_hz,
-                        &curves,
-                        &cmp.response.smoothing,
-                        overlay.as_ref(),
-                    )?
-                }
-                1 => plot::compare::difference_png(
-                    &tmp,
-                    &title,
-                    &cmp.response.frequency_hz,
-                    &diffs,
-                    &labels[0],
-                )?,
-                _ => {
-                    if !cmp.bands.iter().any(|b| b.fraction != "broadband") {
-                        continue;
-                    }
-                    plot::compare::reverberation_png(&tmp, &title, &labels, &cmp.bands)?
-                }
-            }
-            files.push(folder.commit_entry(&tmp, rel)?);
+                        (r.range_hz[0], r.range_hz[1]),
+                        -r.level_offset_db,
+                    ),
+                    label: format!("target ({})", t.file.name),
+                })
+            });
+        let bands = reverberation_points(&cmp.bands);
+        let input = plot::ComparisonPlotInput {
+            title: &title,
+            labels: &labels,
+            frequency_hz: &cmp.response.frequency_hz,
+            responses: &curves,
+            differences: &diffs,
+            smoothing: &cmp.response.smoothing,
+            target: overlay.as_ref(),
+            bands: &bands,
+            mark_label: "ring: change larger than the just-noticeable 5 %",
+        };
+        for kind in input.kinds() {
+            let tmp = folder.temp_path(kind.file());
+            plot::draw_comparison(kind, &tmp, &input)?;
+            files.push(folder.commit_entry(&tmp, kind.file())?);
         }
     }
     let manifest = ComparisonManifest {
