@@ -3,8 +3,9 @@
 //! The pipeline as plain functions over slices: a synchronised exponential
 //! sweep ([`signal::sweep`]), deconvolution by regularised spectral
 //! division ([`deconv`]), the impulse and frequency response
-//! ([`analysis`]), PNG plots ([`plot`]), the measurement folder
-//! ([`session`]) and the self-contained HTML report ([`report`]). The
+//! ([`analysis`]), PNG plots (`plot`, with the default `plots` feature),
+//! the measurement folder ([`session`]) and the self-contained HTML report
+//! ([`report`]), all speaking the shared vocabulary of [`model`]. The
 //! virtual system ([`audio::virtual_system`]) stands in for a sound card,
 //! a loudspeaker and a room.
 #![warn(missing_docs)]
@@ -16,6 +17,7 @@ pub mod deconv;
 pub mod error;
 pub mod folder;
 pub mod model;
+#[cfg(feature = "plots")]
 pub mod plot;
 pub mod report;
 pub mod session;

@@ -408,7 +408,7 @@ pub fn print_octave_verdicts(cmp: &crate::folder::schema::Comparison, k: usize) 
             .map_or("not judged", crate::analysis::compare::Verdict::words);
         println!(
             "  {:>6} Hz  T30 {t0:.2} s -> {t1:.2} s ({:+.0} %){}: {verdict}",
-            crate::plot::format_hz(r.center_hz),
+            crate::model::units::format_hz(r.center_hz),
             100.0 * r.changes.relative_change[k].unwrap_or(0.0),
             area.map_or(String::new(), |x| format!(", {x:+.1} m² absorption")),
         );

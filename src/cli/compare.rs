@@ -92,8 +92,8 @@ pub fn run(a: Args) -> Result<()> {
                     i.label,
                     r.max_abs_db,
                     r.mean_abs_db,
-                    crate::plot::format_hz(r.range_hz[0].round()),
-                    crate::plot::format_hz(r.range_hz[1].round()),
+                    crate::model::units::format_hz(r.range_hz[0].round()),
+                    crate::model::units::format_hz(r.range_hz[1].round()),
                     r.inside_share
                         .map(|s| format!(", {:.0} % within tolerance", 100.0 * s))
                         .unwrap_or_default()

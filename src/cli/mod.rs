@@ -60,6 +60,18 @@ enum Command {
     Export(export::Args),
 }
 
+/// Whether the command draws PNG plots unless told not to (--no-plots).
+fn wants_plots(command: &Command) -> bool {
+    match command {
+        Command::Measure(a) => !a.output.no_plots,
+        Command::Analyze(a) => !a.output.no_plots,
+        Command::Demo(a) => !a.output.no_plots,
+        Command::Average(a) => !a.no_plots,
+        Command::Compare(a) => !a.no_plots,
+        _ => false,
+    }
+}
+
 /// Parses the command line, runs the command, prints any error once.
 pub fn main() -> ExitCode {
     let cli = match Cli::try_parse() {
@@ -70,6 +82,7 @@ pub fn main() -> ExitCode {
             return ExitCode::from(code);
         }
     };
+    let unplotted = wants_plots(&cli.command) && !crate::model::plot_kind::PLOTS_BUILT;
     let result = match cli.command {
         Command::Sweep(a) => sweep::run(a),
         Command::Devices(a) => devices::run(a),
@@ -83,7 +96,12 @@ pub fn main() -> ExitCode {
         Command::Export(a) => export::run(a),
     };
     match result {
-        Ok(()) => ExitCode::SUCCESS,
+        Ok(()) => {
+            if unplotted {
+                eprintln!("note: this gliss was built without plots; no PNGs were drawn");
+            }
+            ExitCode::SUCCESS
+        }
         Err(e) => {
             eprintln!("error: {e}");
             let code = match e.kind() {

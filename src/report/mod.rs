@@ -15,6 +15,7 @@ use base64::Engine;
 
 use crate::analysis::room::BandResult;
 use crate::folder::schema::{Comparison, ComparisonManifest, FileRole, Manifest, Results};
+use crate::model::plot_kind::{CaptionFacts, PlotKind};
 use crate::model::{Code, Fraction, Parameter, Warning};
 use html::{esc, hz, num, trim};
 
@@ -44,36 +45,17 @@ pub struct Folder {
     pub notes: Vec<String>,
 }
 
-/// The order plots are shown in; others follow in name order.
-const PLOT_ORDER: [&str; 12] = [
-    "compare-response",
-    "compare-difference",
-    "compare-reverberation",
-    "response",
-    "phase",
-    "group-delay",
-    "distortion",
-    "decay",
-    "reverberation",
-    "decay-spectrum",
-    "spectrogram",
-    "impulse",
-];
-
-/// Rank of a plot file in the report's order (comparison plots, response, phase,
-/// group delay, distortion, decay, reverberation, decay spectrum, spectrogram,
-/// impulse; others after).
+/// Rank of a plot file in the report's order ([`PlotKind::rank`]: comparison
+/// plots, response, phase, group delay, distortion, decay, reverberation,
+/// decay spectrum, spectrogram, impulse; files gliss does not draw after).
 pub fn plot_rank(file: &str) -> usize {
-    let stem = plot_stem(file);
-    PLOT_ORDER
-        .iter()
-        .position(|p| *p == stem)
-        .unwrap_or(PLOT_ORDER.len())
+    crate::model::plot_kind::plot_rank(file)
 }
 
-fn plot_stem(file: &str) -> &str {
+/// The generic caption of a plot gliss does not know.
+fn unknown_caption(file: &str) -> String {
     let name = file.rsplit('/').next().unwrap_or(file);
-    name.strip_suffix(".png").unwrap_or(name)
+    format!("The plot {}.", name.strip_suffix(".png").unwrap_or(name))
 }
 
 /// Width and height of a PNG from its header, if it is one.
@@ -319,7 +301,7 @@ fn measurement(out: &mut String, f: &Folder, m: &Manifest, r: &Results, n: &mut 
     // plots
     if f.plots.is_empty() {
         out.push_str(
-            "<h3>Plots</h3><p class=\"muted\">This folder has no plots (it was analysed with --no-plots).</p>",
+            "<h3>Plots</h3><p class=\"muted\">This folder has no plots (it was analysed with --no-plots, or by a gliss built without plots).</p>",
         );
     } else {
         out.push_str("<h3>Plots</h3>");
@@ -408,52 +390,24 @@ fn figure(out: &mut String, p: &Plot, caption: &str, n: &mut Counters) {
     );
 }
 
-/// What a measurement's plot shows, in words.
+/// What a measurement's (or an average's) plot shows, in words.
 fn caption(p: &Plot, m: &Manifest, r: &Results) -> String {
-    let smoothing = match r.response.smoothing {
-        crate::analysis::Smoothing::None => "no smoothing".to_string(),
-        s => format!("{s}-octave smoothing"),
+    let kinds: &[PlotKind] = if r.average.is_some() {
+        &PlotKind::AVERAGE
+    } else {
+        &PlotKind::MEASUREMENT
     };
-    let gate = r.response.gate.map_or(String::new(), |g| {
-        format!(
-            " The gate resolves the response from {} to {}; outside that range it is greyed out.",
-            hz(g.resolution_hz),
-            hz(g.resolved_to_hz)
-        )
-    });
-    let delay = format!("{} ms", num(r.delay_s * 1e3, 3));
-    match plot_stem(&p.file) {
-        "response" => format!(
-            "Frequency response: level against frequency with {smoothing}; {}.{gate}",
-            r.response.magnitude_reference
-        ),
-        "phase" => format!(
-            "Phase against frequency with the delay of {delay} removed, beside the minimum phase that the magnitude implies.{gate}"
-        ),
-        "group-delay" => format!(
-            "Group delay against frequency, relative to the arrival at {delay}, with the excess group delay beyond minimum phase.{gate}"
-        ),
-        "distortion" => format!(
-            "Harmonic distortion: each order from the 2nd to the {} relative to the fundamental, and the total (THD), against the excitation frequency; an order is drawn only where it stands clear of its own noise floor (dashed).",
-            ordinal(m.settings.harmonics)
-        ),
-        "decay" => "Decay curves per octave band (Schroeder backward integration) with the fitted lines of EDT, T20 and T30.".to_string(),
-        "reverberation" => "Reverberation time per band: EDT, T20 and T30 against frequency; missing points are bands where the value could not be measured.".to_string(),
-        "decay-spectrum" => "Decay spectrum: the gated response as the window's start moves later, showing which frequencies ring on.".to_string(),
-        "spectrogram" => "Spectrogram of the decay: level in time and frequency after the direct sound, showing how each part of the spectrum dies away.".to_string(),
-        "impulse" => format!(
-            "Impulse response against time, peak at {delay} after the recording's start."
-        ),
-        other => format!("The plot {other}."),
-    }
-}
-
-fn ordinal(n: u32) -> String {
-    match n {
-        2 => "2nd".into(),
-        3 => "3rd".into(),
-        n => format!("{n}th"),
-    }
+    let smoothing = r.response.smoothing.label();
+    let facts = CaptionFacts {
+        smoothing: &smoothing,
+        magnitude_reference: &r.response.magnitude_reference,
+        gate_hz: r.response.gate.map(|g| (g.resolution_hz, g.resolved_to_hz)),
+        delay_s: r.delay_s,
+        harmonics: m.settings.harmonics,
+        ..CaptionFacts::default()
+    };
+    PlotKind::from_file_among(&p.file, kinds)
+        .map_or_else(|| unknown_caption(&p.file), |k| k.caption(&facts))
 }
 
 /// One table of bands with notes for missing and doubtful values.
@@ -780,15 +734,13 @@ fn comparison_section(
                 .map(|i| i.name().to_string())
                 .collect::<Vec<_>>()
                 .join(", ");
-            let text = match plot_stem(&p.file) {
-                "compare-response" => format!("The frequency responses of {names} overlaid."),
-                "compare-difference" => format!(
-                    "The difference of each response from the reference, {}, in dB against frequency.",
-                    c.inputs.first().map_or("the first", |i| i.name())
-                ),
-                "compare-reverberation" => format!("Reverberation time per band of {names}."),
-                other => format!("The plot {other}."),
+            let facts = CaptionFacts {
+                inputs: &names,
+                reference: c.inputs.first().map_or("the first", |i| i.name()),
+                ..CaptionFacts::default()
             };
+            let text = PlotKind::from_file_among(&p.file, &PlotKind::COMPARISON)
+                .map_or_else(|| unknown_caption(&p.file), |k| k.caption(&facts));
             figure(out, p, &text, n);
         }
     }

@@ -17,8 +17,11 @@ use crate::folder::schema::{
     SCHEMA_VERSION, Settings, Source,
 };
 use crate::folder::{self, MeasurementFolder};
+use crate::model::plot_kind::PLOTS_BUILT;
+use crate::model::units::format_hz;
 use crate::model::{Code, Fraction, Parameter, Warnings};
-use crate::plot::{self, format_hz};
+#[cfg(feature = "plots")]
+use crate::plot;
 use crate::session::{bands_table_csv, response_csv, to_json};
 
 /// A measurement folder read for averaging or comparing.
@@ -406,6 +409,7 @@ fn write_average(
             &bands_table_csv(&results.bands, results.broadband.as_ref())?,
         )?);
     }
+    #[cfg(feature = "plots")]
     if job.plots {
         files.extend(draw_average_plots(folder, inputs, results)?);
     }
@@ -438,7 +442,7 @@ fn write_average(
         sweep: m0.sweep.clone(),
         settings: Settings {
             smoothing: results.response.smoothing,
-            plots: job.plots,
+            plots: job.plots && PLOTS_BUILT,
             harmonics: 1,
             bands: !results.bands.is_empty(),
             calibration: None,
@@ -463,12 +467,12 @@ fn write_average(
 
 /// The plots of an average: every position's response with their power
 /// average, and the band parameters with their spread.
+#[cfg(feature = "plots")]
 fn draw_average_plots(
     folder: &MeasurementFolder,
     inputs: &[Input],
     results: &Results,
 ) -> Result<Vec<FileEntry>> {
-    let mut files = Vec::new();
     let grid = &results.response.frequency_hz;
     let title = format!("average of {} positions", inputs.len());
     let positions: Vec<(String, Vec<f64>)> = inputs
@@ -481,20 +485,20 @@ fn draw_average_plots(
             )
         })
         .collect();
-    let tmp = folder.temp_path("plots/response.png");
-    plot::compare::average_response_png(
-        &tmp,
-        &title,
-        grid,
-        &positions,
-        &results.response.magnitude_db,
-        &results.response.smoothing.label(),
-    )?;
-    files.push(folder.commit_entry(&tmp, "plots/response.png")?);
-    if !results.bands.is_empty() {
-        let tmp = folder.temp_path("plots/reverberation.png");
-        plot::compare::average_reverberation_png(&tmp, &title, &results.bands)?;
-        files.push(folder.commit_entry(&tmp, "plots/reverberation.png")?);
+    let smoothing = results.response.smoothing.label();
+    let input = plot::AveragePlotInput {
+        title: &title,
+        frequency_hz: grid,
+        positions: &positions,
+        average: &results.response.magnitude_db,
+        smoothing: &smoothing,
+        bands: &results.bands,
+    };
+    let mut files = Vec::new();
+    for kind in input.kinds() {
+        let tmp = folder.temp_path(kind.file());
+        plot::draw_average(kind, &tmp, &input)?;
+        files.push(folder.commit_entry(&tmp, kind.file())?);
     }
     Ok(files)
 }
@@ -795,6 +799,99 @@ fn compare_target(t: &crate::session::TargetJob, r: &CompareResponse) -> Result<
     })
 }
 
+/// The bands the comparison's reverberation plot draws: per band, T30
+/// where every input has it, else T20, with the stored verdicts.
+#[cfg(feature = "plots")]
+fn reverberation_points(rows: &[BandRow]) -> Vec<plot::BandPoints> {
+    let mut points = Vec::new();
+    for fraction in [Fraction::Octave, Fraction::Third] {
+        let of = |p: Parameter| -> Vec<&BandRow> {
+            rows.iter()
+                .filter(|r| r.fraction == fraction && r.parameter == p)
+                .collect()
+        };
+        let (t30, t20) = (of(Parameter::T30), of(Parameter::T20));
+        for (i, r) in t30.iter().enumerate() {
+            let row = if r.values.iter().all(Option::is_some) {
+                Some(*r)
+            } else {
+                t20.get(i).copied()
+            };
+            if let Some(row) = row {
+                points.push(plot::BandPoints {
+                    center_hz: row.center_hz,
+                    fraction: row.fraction,
+                    parameter: row.parameter,
+                    values: row.values.clone(),
+                    verdict: row.changes.verdict.clone(),
+                });
+            }
+        }
+    }
+    points
+}
+
+/// The plots of a comparison: the responses over each other, their
+/// differences, and the decay times per band with the audible changes
+/// ringed.
+#[cfg(feature = "plots")]
+fn draw_comparison_plots(
+    job: &CompareJob,
+    folder: &MeasurementFolder,
+    inputs: &[Input],
+    cmp: &Comparison,
+) -> Result<Vec<FileEntry>> {
+    let labels: Vec<String> = inputs.iter().map(|i| i.record.label.clone()).collect();
+    let nan = |v: &Vec<Option<f64>>| v.iter().map(|x| x.unwrap_or(f64::NAN)).collect::<Vec<_>>();
+    let curves: Vec<(String, Vec<f64>)> = labels
+        .iter()
+        .cloned()
+        .zip(cmp.response.magnitude_db.iter().map(nan))
+        .collect();
+    let diffs: Vec<(String, Vec<f64>)> = labels
+        .iter()
+        .cloned()
+        .zip(cmp.response.difference_db.iter().map(nan))
+        .skip(1)
+        .collect();
+    let title = labels.join(" vs ");
+    // the target drawn level-aligned to the first response
+    let overlay = job
+        .target
+        .as_ref()
+        .zip(cmp.target.as_ref())
+        .and_then(|(t, ct)| {
+            let r = ct.per_input.first()?.as_ref()?;
+            Some(plot::TargetOverlay {
+                curve: t.target.curve(
+                    &cmp.response.frequency_hz,
+                    (r.range_hz[0], r.range_hz[1]),
+                    -r.level_offset_db,
+                ),
+                label: format!("target ({})", t.file.name),
+            })
+        });
+    let bands = reverberation_points(&cmp.bands);
+    let input = plot::ComparisonPlotInput {
+        title: &title,
+        labels: &labels,
+        frequency_hz: &cmp.response.frequency_hz,
+        responses: &curves,
+        differences: &diffs,
+        smoothing: &cmp.response.smoothing,
+        target: overlay.as_ref(),
+        bands: &bands,
+        mark_label: "ring: audible (beyond the 5 % JND and the uncertainty)",
+    };
+    let mut files = Vec::new();
+    for kind in input.kinds() {
+        let tmp = folder.temp_path(kind.file());
+        plot::draw_comparison(kind, &tmp, &input)?;
+        files.push(folder.commit_entry(&tmp, kind.file())?);
+    }
+    Ok(files)
+}
+
 fn write_comparison(
     job: &CompareJob,
     folder: &MeasurementFolder,
@@ -802,74 +899,15 @@ fn write_comparison(
     cmp: &Comparison,
 ) -> Result<Vec<String>> {
     folder.create()?;
-    let mut files = Vec::new();
-    files.push(folder.derived_entry("comparison.json", &to_json(cmp)?)?);
-    files.push(folder.derived_entry("comparison.csv", &comparison_csv(cmp)?)?);
+    // the plots follow, with the plots feature
+    #[cfg_attr(not(feature = "plots"), allow(unused_mut))]
+    let mut files = vec![
+        folder.derived_entry("comparison.json", &to_json(cmp)?)?,
+        folder.derived_entry("comparison.csv", &comparison_csv(cmp)?)?,
+    ];
+    #[cfg(feature = "plots")]
     if job.plots {
-        let labels: Vec<String> = inputs.iter().map(|i| i.record.label.clone()).collect();
-        let nan =
-            |v: &Vec<Option<f64>>| v.iter().map(|x| x.unwrap_or(f64::NAN)).collect::<Vec<_>>();
-        let curves: Vec<(String, Vec<f64>)> = labels
-            .iter()
-            .cloned()
-            .zip(cmp.response.magnitude_db.iter().map(nan))
-            .collect();
-        let diffs: Vec<(String, Vec<f64>)> = labels
-            .iter()
-            .cloned()
-            .zip(cmp.response.difference_db.iter().map(nan))
-            .skip(1)
-            .collect();
-        let title = labels.join(" vs ");
-        for (rel, which) in [
-            ("plots/compare-response.png", 0),
-            ("plots/compare-difference.png", 1),
-            ("plots/compare-reverberation.png", 2),
-        ] {
-            let tmp = folder.temp_path(rel);
-            match which {
-                0 => {
-                    // the target drawn level-aligned to the first response
-                    let overlay =
-                        job.target
-                            .as_ref()
-                            .zip(cmp.target.as_ref())
-                            .and_then(|(t, ct)| {
-                                let r = ct.per_input.first()?.as_ref()?;
-                                Some(plot::TargetOverlay {
-                                    curve: t.target.curve(
-                                        &cmp.response.frequency_hz,
-                                        (r.range_hz[0], r.range_hz[1]),
-                                        -r.level_offset_db,
-                                    ),
-                                    label: format!("target ({})", t.file.name),
-                                })
-                            });
-                    plot::compare::overlay_png(
-                        &tmp,
-                        &title,
-                        &cmp.response.frequency_hz,
-                        &curves,
-                        &cmp.response.smoothing,
-                        overlay.as_ref(),
-                    )?
-                }
-                1 => plot::compare::difference_png(
-                    &tmp,
-                    &title,
-                    &cmp.response.frequency_hz,
-                    &diffs,
-                    &labels[0],
-                )?,
-                _ => {
-                    if !cmp.bands.iter().any(|b| b.fraction != Fraction::Broadband) {
-                        continue;
-                    }
-                    plot::compare::reverberation_png(&tmp, &title, &labels, &cmp.bands)?
-                }
-            }
-            files.push(folder.commit_entry(&tmp, rel)?);
-        }
+        files.extend(draw_comparison_plots(job, folder, inputs, cmp)?);
     }
     let manifest = ComparisonManifest {
         schema_version: SCHEMA_VERSION,

@@ -249,7 +249,7 @@ fn manifest(
         sweep: m.design.clone(),
         settings: Settings {
             smoothing: m.config.smoothing,
-            plots: m.plots,
+            plots: m.plots && crate::model::plot_kind::PLOTS_BUILT,
             harmonics: m.config.harmonics,
             bands: m.config.bands,
             mic_correction: m.mic_correction.clone(),

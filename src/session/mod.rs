@@ -16,7 +16,10 @@ use std::path::{Path, PathBuf};
 use crate::analysis::target::{self, Target};
 use crate::analysis::{self, Analysis, AnalysisConfig, Distortion};
 use crate::error::{Error, Result};
+use crate::model::plot_kind::PLOTS_BUILT;
+use crate::model::units::format_hz;
 use crate::model::{Code, Parameter, Warnings};
+#[cfg(feature = "plots")]
 use crate::plot;
 use crate::signal::sweep::SweepDesign;
 use crate::signal::wav::{self, SampleEncoding, WavData};
@@ -368,77 +371,11 @@ fn write_folder(
     if let Some(r) = &a.room {
         files.push(folder.derived_entry("bands.csv", &bands_csv(r)?)?);
     }
-    if job.plots {
-        for rel in plot_files(a) {
-            let tmp = folder.temp_path(rel);
-            if rel.ends_with("spectrogram.png") {
-                if let Some(sg) = &a.spectrogram {
-                    plot::spectrogram_png(&tmp, &job.title, sg)?;
-                }
-            } else if rel.ends_with("decay-spectrum.png") {
-                if let (Some(slices), Some(g)) = (&a.decay_spectrum, a.gate) {
-                    plot::decay_spectrum_png(
-                        &tmp,
-                        &job.title,
-                        &a.response.frequency_hz,
-                        slices,
-                        (g.resolution_hz, g.resolved_to_hz),
-                    )?;
-                }
-            } else if rel.ends_with("phase.png") || rel.ends_with("group-delay.png") {
-                if rel.ends_with("phase.png") {
-                    plot::phase_png(&tmp, &job.title, &a.response.frequency_hz, &a.phase)?;
-                } else {
-                    plot::group_delay_png(
-                        &tmp,
-                        &job.title,
-                        &a.response.frequency_hz,
-                        &a.phase,
-                        a.delay_s,
-                    )?;
-                }
-            } else if rel.ends_with("decay.png") || rel.ends_with("reverberation.png") {
-                if let Some(r) = &a.room {
-                    if rel.ends_with("decay.png") {
-                        plot::decay_png(&tmp, &job.title, r)?;
-                    } else {
-                        plot::reverberation_png(&tmp, &job.title, r)?;
-                    }
-                }
-            } else if rel.ends_with("distortion.png") {
-                if let Some(d) = &a.distortion {
-                    plot::distortion_png(&tmp, &job.title, &a.response, d)?;
-                }
-            } else if rel.ends_with("response.png") {
-                let overlay = job.target.as_ref().zip(target).map(|(t, (r, shift))| {
-                    let range = (r.report.range_hz[0], r.report.range_hz[1]);
-                    plot::TargetOverlay {
-                        curve: t.target.curve(&a.response.frequency_hz, range, *shift),
-                        label: target_label(r),
-                    }
-                });
-                plot::response_png(
-                    &tmp,
-                    &job.title,
-                    &a.response.frequency_hz,
-                    &a.response.magnitude_db,
-                    &a.response.phase_deg,
-                    &a.response.smoothing.label(),
-                    a.gate.map(|g| (g.resolution_hz, g.resolved_to_hz)),
-                    overlay.as_ref(),
-                )?;
-            } else {
-                plot::impulse_png(
-                    &tmp,
-                    &job.title,
-                    &a.impulse.samples,
-                    a.impulse.start_s,
-                    a.delay_s,
-                    a.sample_rate_hz,
-                )?;
-            }
-            files.push(folder.commit_entry(&tmp, rel)?);
-        }
+    // without the plots feature, no PNGs: the manifest says so
+    let plots = job.plots && PLOTS_BUILT;
+    #[cfg(feature = "plots")]
+    if plots {
+        files.extend(draw_plots(job, folder, a, target)?);
     }
     let manifest = Manifest {
         schema_version: SCHEMA_VERSION,
@@ -455,7 +392,7 @@ fn write_folder(
         sweep: job.design.clone(),
         settings: Settings {
             smoothing: job.config.smoothing,
-            plots: job.plots,
+            plots,
             harmonics: job.config.harmonics,
             bands: job.config.bands,
             mic_correction: job.mic_correction.clone(),
@@ -481,7 +418,38 @@ fn write_folder(
         .collect())
 }
 
+/// Draws every plot the analysis has into the folder; returns their
+/// manifest entries.
+#[cfg(feature = "plots")]
+fn draw_plots(
+    job: &Job,
+    folder: &MeasurementFolder,
+    a: &Analysis,
+    target: Option<&(TargetRecord, f64)>,
+) -> Result<Vec<FileEntry>> {
+    let overlay = job.target.as_ref().zip(target).map(|(t, (r, shift))| {
+        let range = (r.report.range_hz[0], r.report.range_hz[1]);
+        plot::TargetOverlay {
+            curve: t.target.curve(&a.response.frequency_hz, range, *shift),
+            label: target_label(r),
+        }
+    });
+    let input = plot::MeasurementPlotInput {
+        title: &job.title,
+        analysis: a,
+        target: overlay.as_ref(),
+    };
+    let mut files = Vec::new();
+    for kind in input.kinds() {
+        let tmp = folder.temp_path(kind.file());
+        plot::draw_measurement(kind, &tmp, &input)?;
+        files.push(folder.commit_entry(&tmp, kind.file())?);
+    }
+    Ok(files)
+}
+
 /// The legend entry of the target on the response plot.
+#[cfg(feature = "plots")]
 fn target_label(r: &TargetRecord) -> String {
     let name = std::path::Path::new(&r.file)
         .file_name()
@@ -509,10 +477,10 @@ pub fn target_summary(r: &TargetRecord) -> String {
     format!(
         "target {}: {} to {} Hz ({how}): max deviation {:.2} dB at {} Hz, mean {:.2} dB{inside}",
         r.file,
-        plot::format_hz(r.report.range_hz[0]),
-        plot::format_hz(r.report.range_hz[1]),
+        format_hz(r.report.range_hz[0]),
+        format_hz(r.report.range_hz[1]),
         r.report.max_abs_db,
-        plot::format_hz(r.report.worst_hz.round()),
+        format_hz(r.report.worst_hz.round()),
         r.report.mean_abs_db,
     )
 }
@@ -541,30 +509,6 @@ fn sensitivity_record(
             ),
         },
     }
-}
-
-/// The plots an analysis draws.
-fn plot_files(a: &Analysis) -> Vec<&'static str> {
-    let mut v = vec![
-        "plots/response.png",
-        "plots/impulse.png",
-        "plots/phase.png",
-        "plots/group-delay.png",
-    ];
-    if a.distortion.is_some() {
-        v.push("plots/distortion.png");
-    }
-    if a.decay_spectrum.is_some() {
-        v.push("plots/decay-spectrum.png");
-    }
-    if a.spectrogram.is_some() {
-        v.push("plots/spectrogram.png");
-    }
-    if a.room.is_some() {
-        v.push("plots/decay.png");
-        v.push("plots/reverberation.png");
-    }
-    v
 }
 
 /// distortion.csv: one row per excitation frequency up to half the sweep's

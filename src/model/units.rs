@@ -1,0 +1,125 @@
+//! Numbers as people read them: frequencies, times, decimals, smoothing.
+//!
+//! Plain text formats shared by the plots, the terminal and the report;
+//! nothing here draws.
+
+/// "20", "500", "1k", "12.5k": a frequency in Hz, short, for an axis or a
+/// sentence that says "Hz" after it.
+pub fn format_hz(f: f64) -> String {
+    if f >= 1000.0 {
+        let k = f / 1000.0;
+        if (k - k.round()).abs() < 1e-6 {
+            format!("{}k", k.round())
+        } else {
+            format!("{k:.1}k")
+        }
+    } else if (f - f.round()).abs() < 1e-6 {
+        format!("{}", f.round())
+    } else {
+        format!("{f:.1}")
+    }
+}
+
+/// A time in seconds as "350 ms" below one second, "1.25 s" from one
+/// second on.
+pub fn seconds(v: f64) -> String {
+    if v < 1.0 {
+        format!("{:.0} ms", v * 1e3)
+    } else {
+        format!("{v:.2} s")
+    }
+}
+
+/// `v` with `decimals` decimals, never "-0".
+pub fn num(v: f64, decimals: usize) -> String {
+    let s = format!("{v:.decimals$}");
+    if s.starts_with('-') && s[1..].chars().all(|c| c == '0' || c == '.') {
+        s[1..].to_string()
+    } else {
+        s
+    }
+}
+
+/// `v` with `decimals` decimals and an explicit sign ("+0.12", "-0.30", "0.00").
+pub fn signed(v: f64, decimals: usize) -> String {
+    let s = num(v, decimals);
+    if s.starts_with('-') || s.chars().all(|c| c == '0' || c == '.') {
+        s
+    } else {
+        format!("+{s}")
+    }
+}
+
+/// A frequency for people: "31.5 Hz", "125 Hz", "1 kHz", "12.5 kHz".
+pub fn hz(f: f64) -> String {
+    if f >= 1000.0 {
+        format!("{} kHz", trim(f / 1000.0, 2))
+    } else if f >= 100.0 {
+        format!("{} Hz", num(f, 0))
+    } else {
+        format!("{} Hz", trim(f, 1))
+    }
+}
+
+/// `v` with at most `decimals` decimals, trailing zeros dropped.
+pub fn trim(v: f64, decimals: usize) -> String {
+    let s = num(v, decimals);
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
+}
+
+/// A smoothing label of a results file in words: "none" → "no smoothing",
+/// "1/6" → "1/6-octave smoothing", "1/3 of 1/24" (an average smoothed
+/// further) → "1/3-octave smoothing of the 1/24-octave curves".
+pub fn smoothing_words(s: &str) -> String {
+    if s == "none" {
+        "no smoothing".into()
+    } else if let Some((outer, inner)) = s.split_once(" of ") {
+        format!("{outer}-octave smoothing of the {inner}-octave curves")
+    } else {
+        format!("{s}-octave smoothing")
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn hz_labels() {
+        assert_eq!(format_hz(20.0), "20");
+        assert_eq!(format_hz(1000.0), "1k");
+        assert_eq!(format_hz(12_500.0), "12.5k");
+        assert_eq!(format_hz(31.5), "31.5");
+    }
+
+    #[test]
+    fn numbers_read_as_people_write_them() {
+        assert_eq!(num(-0.0004, 3), "0.000");
+        assert_eq!(num(-0.4, 0), "0");
+        assert_eq!(num(-1.26, 1), "-1.3");
+        assert_eq!(signed(0.123, 2), "+0.12");
+        assert_eq!(signed(-0.001, 2), "0.00");
+        assert_eq!(hz(31.5), "31.5 Hz");
+        assert_eq!(hz(125.0), "125 Hz");
+        assert_eq!(hz(1000.0), "1 kHz");
+        assert_eq!(hz(1250.0), "1.25 kHz");
+        assert_eq!(hz(12_500.0), "12.5 kHz");
+        assert_eq!(hz(18_129.38), "18.13 kHz");
+    }
+
+    #[test]
+    fn times_and_smoothing_in_words() {
+        assert_eq!(seconds(0.35), "350 ms");
+        assert_eq!(seconds(1.254), "1.25 s");
+        assert_eq!(smoothing_words("none"), "no smoothing");
+        assert_eq!(smoothing_words("1/6"), "1/6-octave smoothing");
+        assert_eq!(
+            smoothing_words("1/3 of 1/24"),
+            "1/3-octave smoothing of the 1/24-octave curves"
+        );
+    }
+}

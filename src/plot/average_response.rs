@@ -1,0 +1,66 @@
+//! The power average of several positions over the positions.
+
+use std::path::Path;
+
+use plotters::prelude::*;
+
+use super::axes::{db_range, draw_log_panel};
+use super::theme::{BLUE, canvas, plot_error};
+use crate::error::Result;
+use crate::model::units::smoothing_words;
+
+/// The average of several positions over the positions themselves.
+pub fn average_response_png(
+    path: &Path,
+    title: &str,
+    frequency_hz: &[f64],
+    positions: &[(String, Vec<f64>)],
+    average: &[f64],
+    smoothing: &str,
+) -> Result<()> {
+    let (root, body) = canvas(path, &format!("Frequency response — {title}"))?;
+    let f1 = frequency_hz.first().copied().unwrap_or(20.0);
+    let f2 = frequency_hz.last().copied().unwrap_or(20_000.0);
+    let all: Vec<f64> = positions
+        .iter()
+        .flat_map(|c| c.1.iter().copied())
+        .chain(average.iter().copied())
+        .collect();
+    let (lo, hi) = db_range(&all, 10.0, 40.0);
+    let faint = RGBColor(160, 175, 190);
+    let mut series: Vec<_> = positions
+        .iter()
+        .enumerate()
+        .map(|(k, (label, v))| {
+            (
+                frequency_hz,
+                v.as_slice(),
+                faint,
+                if k == 0 {
+                    format!("positions ({label} …)")
+                } else {
+                    String::new()
+                },
+            )
+        })
+        .collect();
+    series.push((
+        frequency_hz,
+        average,
+        BLUE,
+        format!("power average of {} positions", positions.len()),
+    ));
+    draw_log_panel(
+        &body,
+        (f1, f2),
+        (lo, hi),
+        &format!("Magnitude (dB), {}", smoothing_words(smoothing)),
+        true,
+        None,
+        &series,
+        None,
+    )
+    .map_err(plot_error(path))?;
+    root.present().map_err(plot_error(path))?;
+    Ok(())
+}

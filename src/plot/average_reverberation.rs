@@ -1,0 +1,82 @@
+//! The mean T30 per band over positions with its spread.
+
+use std::path::Path;
+
+use plotters::prelude::*;
+
+use super::axes::{band_axis, band_chart, legend};
+use super::theme::{BLUE, canvas, plot_error};
+use crate::analysis::room::BandResult;
+use crate::error::Result;
+use crate::model::{Fraction, Parameter};
+
+/// Mean T30 per band over positions with ± one standard deviation.
+pub fn average_reverberation_png(path: &Path, title: &str, bands: &[BandResult]) -> Result<()> {
+    let (root, body) = canvas(path, &format!("Reverberation time per band — {title}"))?;
+    let get = |fraction: Fraction| -> Vec<(f64, f64, f64)> {
+        bands
+            .iter()
+            .filter(|b| b.fraction == fraction)
+            .filter_map(|b| {
+                let t = b.get(Parameter::T30)?;
+                let s = b
+                    .spread
+                    .as_ref()
+                    .and_then(|s| s.get(&Parameter::T30))
+                    .and_then(|s| s.std)
+                    .unwrap_or(0.0);
+                Some((b.center_hz, t, s))
+            })
+            .collect()
+    };
+    let oct = get(Fraction::Octave);
+    let third = get(Fraction::Third);
+    let centres: Vec<f64> = bands.iter().map(|b| b.center_hz).collect();
+    let (f_lo, f_hi) = band_axis(&centres);
+    let y_max = oct
+        .iter()
+        .chain(&third)
+        .map(|p| p.1 + p.2)
+        .fold(0.1f64, f64::max)
+        * 1.25;
+    let y_max = (y_max * 10.0).ceil() / 10.0;
+    let draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+        let mut chart = band_chart(
+            &body,
+            (f_lo, f_hi),
+            y_max,
+            "Band centre frequency (Hz)",
+            "T30 (s), mean over positions",
+        )?;
+        let grey = RGBColor(150, 150, 150);
+        chart
+            .draw_series(LineSeries::new(
+                third.iter().map(|p| (p.0, p.1)),
+                grey.stroke_width(1),
+            ))?
+            .label("one-third octaves")
+            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], grey));
+        chart
+            .draw_series(LineSeries::new(
+                oct.iter().map(|p| (p.0, p.1)),
+                BLUE.stroke_width(2),
+            ))?
+            .label("octaves, with ± one standard deviation over positions")
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], BLUE.stroke_width(3)));
+        chart.draw_series(
+            oct.iter()
+                .map(|p| Circle::new((p.0, p.1), 5, BLUE.filled())),
+        )?;
+        chart.draw_series(oct.iter().map(|p| {
+            PathElement::new(
+                vec![(p.0, p.1 - p.2), (p.0, p.1 + p.2)],
+                BLUE.stroke_width(2),
+            )
+        }))?;
+        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        Ok(())
+    };
+    draw().map_err(plot_error(path))?;
+    root.present().map_err(plot_error(path))?;
+    Ok(())
+}

@@ -1,0 +1,105 @@
+//! The impulse response near its peak above its energy-time curve.
+
+use std::path::Path;
+
+use plotters::prelude::*;
+
+use super::axes::{chart_builder, legend, styled_mesh};
+use super::theme::{BLUE, FONT, ORANGE, SIZE, plot_error, register_font};
+use crate::analysis::etc;
+use crate::error::Result;
+
+/// Largest value per block, so a long curve keeps its peaks when drawn
+/// with about `points` points. Returns (index of block start, value).
+fn block_max(values: &[f64], points: usize) -> Vec<(usize, f64)> {
+    let block = (values.len() / points.max(1)).max(1);
+    values
+        .chunks(block)
+        .enumerate()
+        .map(|(i, c)| {
+            (
+                i * block,
+                c.iter().cloned().fold(f64::NEG_INFINITY, f64::max),
+            )
+        })
+        .collect()
+}
+
+/// Draws the impulse response near its peak (linear, normalised) above its
+/// energy-time curve in dB to a PNG. `start_s` is the time of `ir[0]`.
+pub fn impulse_png(
+    path: &Path,
+    title: &str,
+    ir: &[f64],
+    start_s: f64,
+    delay_s: f64,
+    sample_rate_hz: u32,
+) -> Result<()> {
+    register_font();
+    let fs = f64::from(sample_rate_hz);
+    let root = BitMapBackend::new(path, SIZE).into_drawing_area();
+    root.fill(&WHITE).map_err(plot_error(path))?;
+    let (head, body) = root.split_vertically(50);
+    head.draw(&Text::new(
+        format!("Impulse response — {title}"),
+        (20, 14),
+        (FONT, 24).into_font(),
+    ))
+    .map_err(plot_error(path))?;
+    let (top, bottom) = body.split_vertically(body.dim_in_pixel().1 / 2);
+    let t_ms = |i: usize| (start_s + i as f64 / fs) * 1e3;
+    let peak = ir.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(1e-300);
+    // top: from 5 ms before the peak to 60 ms after it
+    let d_ms = delay_s * 1e3;
+    let (a, b) = (d_ms - 5.0, d_ms + 60.0);
+    let draw_top = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+        let mut chart = chart_builder(&top, 50).build_cartesian_2d(a..b, -1.05..1.05)?;
+        styled_mesh(&mut chart)
+            .x_desc("Time after the start of the recording (ms)")
+            .y_desc("Amplitude (re peak)")
+            .x_label_formatter(&|v: &f64| format!("{v:.0}"))
+            .y_label_formatter(&|v: &f64| format!("{:.1}", (v * 10.0).round() / 10.0 + 0.0))
+            .draw()?;
+        let pts = ir
+            .iter()
+            .enumerate()
+            .map(|(i, v)| (t_ms(i), v / peak))
+            .filter(|(t, _)| *t >= a && *t <= b);
+        chart
+            .draw_series(LineSeries::new(pts, BLUE.stroke_width(1)))?
+            .label(format!("impulse response, peak at {d_ms:.3} ms"))
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], BLUE.stroke_width(3)));
+        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        Ok(())
+    };
+    draw_top().map_err(plot_error(path))?;
+    let etc_db = etc::energy_time_curve_db(ir, -120.0);
+    let reduced = block_max(&etc_db, 2000);
+    let floor = {
+        let mut sorted: Vec<f64> = etc_db.clone();
+        sorted.sort_by(|x, y| x.total_cmp(y));
+        let median = sorted.get(sorted.len() / 2).copied().unwrap_or(-100.0);
+        ((median - 20.0) / 10.0).floor() * 10.0
+    };
+    let (ta, tb) = (t_ms(0), t_ms(ir.len().saturating_sub(1)));
+    let draw_bottom = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+        let mut chart =
+            chart_builder(&bottom, 50).build_cartesian_2d(ta..tb, floor.max(-120.0)..3.0)?;
+        styled_mesh(&mut chart)
+            .x_desc("Time after the start of the recording (ms)")
+            .y_desc("Energy (dB re peak)")
+            .x_label_formatter(&|v: &f64| format!("{v:.0}"))
+            .y_label_formatter(&|v: &f64| format!("{v:.0}"))
+            .draw()?;
+        let pts = reduced.iter().map(|(i, v)| (t_ms(*i), *v));
+        chart
+            .draw_series(LineSeries::new(pts, ORANGE.stroke_width(1)))?
+            .label("energy-time curve (squared envelope)")
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], ORANGE.stroke_width(3)));
+        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        Ok(())
+    };
+    draw_bottom().map_err(plot_error(path))?;
+    root.present().map_err(plot_error(path))?;
+    Ok(())
+}
