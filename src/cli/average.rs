@@ -6,8 +6,8 @@ use std::path::PathBuf;
 use clap::Args as ClapArgs;
 
 use crate::cli::common;
-use crate::error::Result;
-use crate::session::compare::{self, AverageJob};
+use gliss::error::Result;
+use gliss::session::compare::{self, AverageJob};
 
 /// Options of `gliss average`.
 #[derive(Debug, ClapArgs)]

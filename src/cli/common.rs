@@ -4,16 +4,28 @@ use std::path::Path;
 
 use clap::Args as ClapArgs;
 
-use crate::analysis::calibration::{Calibration, Drive};
-use crate::analysis::correction::Correction;
-use crate::analysis::gate::Gate;
-use crate::analysis::target::Target;
-use crate::analysis::{AnalysisConfig, Smoothing, distortion};
-use crate::error::{Error, Result};
-use crate::session::TargetJob;
-use crate::session::folder::sha256_hex;
-use crate::session::records::FileEntry;
-use crate::signal::sweep::{SweepDesign, SweepParams};
+use gliss::analysis::calibration::{Calibration, Drive};
+use gliss::analysis::correction::Correction;
+use gliss::analysis::gate::Gate;
+use gliss::analysis::target::Target;
+use gliss::analysis::{AnalysisConfig, Smoothing, distortion};
+use gliss::error::{Error, Result};
+use gliss::session::TargetJob;
+use gliss::session::folder::sha256_hex;
+use gliss::session::records::FileEntry;
+use gliss::signal::sweep::{SweepDesign, SweepParams};
+
+/// The refusal of a command that needs the sound card in a build without
+/// it: `what` is what could not run, `instead` what works without one.
+#[cfg(not(feature = "soundcard"))]
+pub fn no_soundcard(what: &str, instead: &str) -> Error {
+    Error::new(
+        gliss::ErrorKind::Device,
+        format!(
+            "this build of gliss has no sound-card support, so {what} cannot run; {instead}build gliss with its default features (the `soundcard` feature; on Linux it needs the ALSA headers, e.g. libasound2-dev)"
+        ),
+    )
+}
 
 /// The sweep options of `sweep`, `demo` (and later `measure`).
 #[derive(Debug, Clone, ClapArgs)]

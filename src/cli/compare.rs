@@ -4,10 +4,10 @@ use std::path::PathBuf;
 
 use clap::Args as ClapArgs;
 
-use crate::analysis::Smoothing;
 use crate::cli::common;
-use crate::error::Result;
-use crate::session::compare::{self, CompareJob};
+use gliss::analysis::Smoothing;
+use gliss::error::Result;
+use gliss::session::compare::{self, CompareJob};
 
 /// Options of `gliss compare`.
 #[derive(Debug, ClapArgs)]
@@ -97,7 +97,7 @@ pub fn run(a: Args) -> Result<()> {
             };
             println!(
                 "  {:>6} Hz  T30 {a0:.2} s -> {ak:.2} s ({:+.0} %): {verdict}",
-                crate::plot::format_hz(r.center_hz),
+                gliss::plot::format_hz(r.center_hz),
                 100.0 * r.relative_change[k].unwrap_or(0.0)
             );
         }
@@ -111,8 +111,8 @@ pub fn run(a: Args) -> Result<()> {
                     i.label,
                     r.max_abs_db,
                     r.mean_abs_db,
-                    crate::plot::format_hz(r.range_hz[0].round()),
-                    crate::plot::format_hz(r.range_hz[1].round()),
+                    gliss::plot::format_hz(r.range_hz[0].round()),
+                    gliss::plot::format_hz(r.range_hz[1].round()),
                     r.inside_share
                         .map(|s| format!(", {:.0} % within tolerance", 100.0 * s))
                         .unwrap_or_default()

@@ -4,13 +4,13 @@ use std::path::PathBuf;
 
 use clap::Args as ClapArgs;
 
-use crate::audio::virtual_system::VirtualSystem;
-use crate::audio::{NoSink, PlayRecord, Playback};
 use crate::cli::common::{self, OutputArgs, SweepArgs};
-use crate::error::{Error, Result};
-use crate::session::compare::{self, AverageJob, CompareJob};
-use crate::session::{self, Job, Outcome, records::Source};
-use crate::signal::wav::{SampleEncoding, decode_wav, encode_wav};
+use gliss::audio::virtual_system::VirtualSystem;
+use gliss::audio::{NoSink, PlayRecord, Playback};
+use gliss::error::{Error, Result};
+use gliss::session::compare::{self, AverageJob, CompareJob};
+use gliss::session::{self, Job, Outcome, records::Source};
+use gliss::signal::wav::{SampleEncoding, decode_wav, encode_wav};
 
 /// Options of `gliss demo`.
 #[derive(Debug, ClapArgs)]
@@ -268,7 +268,7 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
             .and_then(|x| x.delta_area_m2[1]);
         println!(
             "  {:>6} Hz  T30 {t0:.2} s -> {t1:.2} s{}{}",
-            crate::plot::format_hz(r.center_hz),
+            gliss::plot::format_hz(r.center_hz),
             area.map_or(String::new(), |x| format!(", {x:+.1} m² absorption")),
             if r.exceeds_jnd[1] == Some(true) {
                 ", audible"

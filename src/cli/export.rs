@@ -5,9 +5,9 @@ use std::path::PathBuf;
 
 use clap::Args as ClapArgs;
 
-use crate::analysis::Smoothing;
-use crate::error::Result;
-use crate::session::export::{self, Format, What};
+use gliss::analysis::Smoothing;
+use gliss::error::Result;
+use gliss::session::export::{self, Format, What};
 
 /// Options of `gliss export`.
 #[derive(Debug, ClapArgs)]

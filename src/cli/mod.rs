@@ -87,7 +87,7 @@ pub fn main() -> ExitCode {
         Err(e) => {
             eprintln!("error: {e}");
             let code = match e.kind() {
-                crate::ErrorKind::InvalidParameter => EXIT_USAGE,
+                gliss::ErrorKind::InvalidParameter => EXIT_USAGE,
                 _ => EXIT_FAILURE,
             };
             ExitCode::from(code)

@@ -6,10 +6,10 @@ use std::path::{Path, PathBuf};
 
 use clap::Args as ClapArgs;
 
-use crate::error::{Error, ErrorKind, Result};
-use crate::report::{self, Content, FileCheck, FileState, Folder, Plot};
-use crate::session::folder::sha256_hex;
-use crate::session::records::Manifest;
+use gliss::error::{Error, ErrorKind, Result};
+use gliss::report::{self, Content, FileCheck, FileState, Folder, Plot};
+use gliss::session::folder::sha256_hex;
+use gliss::session::records::Manifest;
 
 /// Options of `gliss report`.
 #[derive(Debug, ClapArgs)]
@@ -164,7 +164,7 @@ pub fn read_folder(dir: &Path) -> Result<Folder> {
                 "{name}: manifest.json is not a gliss manifest ({e}); give folders written by gliss"
             ))
         })?;
-        let results = crate::session::read_results(dir).map_err(|e| {
+        let results = gliss::session::read_results(dir).map_err(|e| {
             Error::input(format!(
                 "{}; re-analyse the raw files of {name} (gliss analyze ... --overwrite)",
                 e.message()
