@@ -12,7 +12,7 @@
 //! (`src/main.rs` and its `cli` modules) parses arguments, draws the
 //! progress bar and handles Ctrl-C, and calls these functions. Cargo
 //! features: `soundcard` (the sound card through cpal,
-//! [`audio::soundcard`]), `plots` (PNG plots) and `cli` (the binary's
+//! `audio::soundcard`), `plots` (PNG plots) and `cli` (the binary's
 //! dependencies); all on by default. `cargo build --no-default-features
 //! --lib` is the pure analysis library, which needs no ALSA headers.
 #![warn(missing_docs)]
