@@ -6,7 +6,8 @@ use gliss::analysis::{AnalysisConfig, Smoothing, analyze};
 use gliss::signal::biquad::Biquad;
 use gliss::signal::sweep::SweepParams;
 
-fn main() -> gliss::Result<()> {
+/// Runs the measurement (public so that the integration tests run it too).
+pub fn main() -> gliss::Result<()> {
     let design = SweepParams {
         requested_length_s: 2.0,
         tail_s: 0.5,

@@ -148,6 +148,36 @@ pub fn db20(x: f64) -> f64 {
 
 /// Runs the analysis of one recorded channel against the stimulus that
 /// was played (`stimulus` = the sweep file's samples) and its design.
+///
+/// A wire, a recording that equals the sweep, reads 0 dB and no delay:
+///
+/// ```
+/// use gliss::analysis::{AnalysisConfig, Smoothing, analyze};
+/// use gliss::signal::sweep::SweepParams;
+///
+/// let design = SweepParams {
+///     requested_length_s: 1.0,
+///     tail_s: 0.5,
+///     ..SweepParams::default()
+/// }
+/// .design()?;
+/// let sweep = design.generate();
+/// let config = AnalysisConfig {
+///     smoothing: Smoothing::None,
+///     harmonics: 1,
+///     bands: false,
+///     ..AnalysisConfig::default()
+/// };
+/// let a = analyze(&sweep, &sweep, &design, &config)?;
+/// assert!(a.delay_s.abs() < 1e-6, "delay {} s", a.delay_s);
+/// let r = &a.response;
+/// for (f, db) in r.frequency_hz.iter().zip(&r.magnitude_db) {
+///     if (100.0..=10_000.0).contains(f) {
+///         assert!(db.abs() < 0.05, "{f} Hz: {db} dB");
+///     }
+/// }
+/// # Ok::<(), gliss::Error>(())
+/// ```
 pub fn analyze(
     recording: &[f64],
     stimulus: &[f64],

@@ -1,9 +1,11 @@
 //! Play-and-record devices. A device plays a mono signal on chosen output
 //! channels while it records all of its input channels, and hands every
 //! captured block to a [`RawSink`] as it arrives, so that the raw recording
-//! is on disk while it is being made. The sound card ([`soundcard`]) and the
-//! virtual system ([`virtual_system`]) are the two implementations.
+//! is on disk while it is being made. The sound card (`soundcard`, with the
+//! cargo feature `soundcard`) and the virtual system ([`virtual_system`],
+//! always there) are the two implementations.
 
+#[cfg(feature = "soundcard")]
 pub mod soundcard;
 pub mod virtual_system;
 

@@ -4,6 +4,44 @@
 //! The scenario is the project's own invention: the "Kestrel 5" two-way
 //! monitor (virtual) on a stand, measured at 1.2 m in a bare 4.6 × 3.8 ×
 //! 2.6 m rehearsal room (virtual). Nothing here is a model of a real product.
+//!
+//! It plays and records like a sound card, through [`PlayRecord`]:
+//!
+//! ```
+//! use std::sync::atomic::AtomicBool;
+//!
+//! use gliss::audio::virtual_system::VirtualSystem;
+//! use gliss::audio::{NoSink, PlayRecord, Playback};
+//! use gliss::signal::sweep::SweepParams;
+//!
+//! let design = SweepParams {
+//!     requested_length_s: 1.0,
+//!     tail_s: 0.5,
+//!     ..SweepParams::default()
+//! }
+//! .design()?;
+//! let sweep = design.generate();
+//! let mut system = VirtualSystem::default();
+//! let stop = AtomicBool::new(false);
+//! let capture = system.play_record(
+//!     &Playback {
+//!         signal: &sweep,
+//!         sample_rate_hz: 48_000,
+//!         output_channels: &[0],
+//!         stop: &stop,
+//!     },
+//!     &mut NoSink,
+//!     &mut |_| {},
+//! )?;
+//! // one microphone, the whole sweep and more, nothing lost or stopped
+//! assert_eq!(capture.channels.len(), 1);
+//! assert!(capture.channels[0].len() >= sweep.len());
+//! assert_eq!(capture.lost_frames, 0);
+//! assert!(!capture.stopped && capture.fault.is_none());
+//! // the loudspeaker is heard: the recording is not silent
+//! assert!(capture.channels[0].iter().any(|v| v.abs() > 1e-3));
+//! # Ok::<(), gliss::Error>(())
+//! ```
 
 use rand::{SeedableRng, rngs::StdRng};
 use rand_distr::{Distribution, Normal};

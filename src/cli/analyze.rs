@@ -5,9 +5,9 @@ use std::path::PathBuf;
 use clap::Args as ClapArgs;
 
 use crate::cli::common::{self, OutputArgs};
-use crate::error::{Error, Result};
-use crate::session::{self, Job, records::Source, sweep_file};
-use crate::signal::wav::{self, decode_wav};
+use gliss::error::{Error, Result};
+use gliss::session::{self, Job, records::Source, sweep_file};
+use gliss::signal::wav::{self, decode_wav};
 
 /// Options of `gliss analyze`.
 #[derive(Debug, ClapArgs)]

@@ -6,8 +6,8 @@ use std::path::PathBuf;
 use clap::Args as ClapArgs;
 
 use crate::cli::common;
-use crate::error::Result;
-use crate::session::compare::{self, AverageJob};
+use gliss::error::Result;
+use gliss::session::compare::{self, AverageJob};
 
 /// Options of `gliss average`.
 #[derive(Debug, ClapArgs)]
@@ -60,7 +60,7 @@ pub fn run(a: Args) -> Result<()> {
         println!("  {f}");
     }
     if let Some(b) = results.broadband.as_ref() {
-        if let Some(t) = b.get(crate::model::Parameter::T30) {
+        if let Some(t) = b.get(gliss::model::Parameter::T30) {
             println!("broadband T30 {t:.2} s (mean over positions)");
         }
     }

@@ -6,12 +6,17 @@ use std::path::PathBuf;
 
 use clap::Args as ClapArgs;
 
-use crate::analysis::calibration;
-use crate::audio::soundcard::{Request, SoundCard};
-use crate::audio::{PlayRecord, Playback};
-use crate::error::{Error, ErrorKind, Result};
-use crate::session::measure::RawWavSink;
-use crate::signal::wav::{SampleEncoding, WavData, read_wav};
+use gliss::analysis::calibration;
+#[cfg(feature = "soundcard")]
+use gliss::audio::soundcard::{Request, SoundCard};
+#[cfg(feature = "soundcard")]
+use gliss::audio::{PlayRecord, Playback};
+use gliss::error::{Error, ErrorKind, Result};
+#[cfg(feature = "soundcard")]
+use gliss::session::measure::RawWavSink;
+#[cfg(feature = "soundcard")]
+use gliss::signal::wav::SampleEncoding;
+use gliss::signal::wav::{WavData, read_wav};
 
 /// Options of `gliss calibrate`.
 #[derive(Debug, ClapArgs)]
@@ -48,8 +53,20 @@ pub struct Args {
     pub out: PathBuf,
 }
 
+/// A build without the sound card cannot record the tone.
+#[cfg(not(feature = "soundcard"))]
+fn record_tone(a: &Args, _: f64, _: &std::path::Path) -> Result<WavData> {
+    // the recording options have nothing to act on here
+    let _ = (&a.device, a.rate);
+    Err(super::common::no_soundcard(
+        "gliss calibrate --record",
+        "record the calibrator's tone with any recorder and pass the WAV file instead, or ",
+    ))
+}
+
 /// Records `seconds` of every input of the sound card into `tone` (created
 /// new), playing silence; returns the recording.
+#[cfg(feature = "soundcard")]
 fn record_tone(a: &Args, seconds: f64, tone: &std::path::Path) -> Result<WavData> {
     if !(seconds.is_finite() && (1.0..=60.0).contains(&seconds)) {
         return Err(Error::parameter(format!(
@@ -146,9 +163,9 @@ pub fn run(a: Args) -> Result<()> {
         )));
     }
     let x = &data.channels[a.channel - 1];
-    crate::analysis::check_signal(x, "the calibrator recording")?;
+    gliss::analysis::check_signal(x, "the calibrator recording")?;
     let c = calibration::calibrate(x, f64::from(data.sample_rate_hz), a.level)?;
-    let json = crate::session::to_json(&c)?;
+    let json = gliss::session::to_json(&c)?;
     let mut f = OpenOptions::new()
         .write(true)
         .create_new(true)

@@ -4,16 +4,28 @@ use std::path::Path;
 
 use clap::Args as ClapArgs;
 
-use crate::analysis::calibration::{Calibration, Drive};
-use crate::analysis::correction::Correction;
-use crate::analysis::gate::Gate;
-use crate::analysis::target::Target;
-use crate::analysis::{AnalysisConfig, Smoothing, distortion};
-use crate::error::{Error, Result};
-use crate::session::TargetJob;
-use crate::session::folder::sha256_hex;
-use crate::session::records::FileEntry;
-use crate::signal::sweep::{SweepDesign, SweepParams};
+use gliss::analysis::calibration::{Calibration, Drive};
+use gliss::analysis::correction::Correction;
+use gliss::analysis::gate::Gate;
+use gliss::analysis::target::Target;
+use gliss::analysis::{AnalysisConfig, Smoothing, distortion};
+use gliss::error::{Error, Result};
+use gliss::session::TargetJob;
+use gliss::session::folder::sha256_hex;
+use gliss::session::records::FileEntry;
+use gliss::signal::sweep::{SweepDesign, SweepParams};
+
+/// The refusal of a command that needs the sound card in a build without
+/// it: `what` is what could not run, `instead` what works without one.
+#[cfg(not(feature = "soundcard"))]
+pub fn no_soundcard(what: &str, instead: &str) -> Error {
+    Error::new(
+        gliss::ErrorKind::Device,
+        format!(
+            "this build of gliss has no sound-card support, so {what} cannot run; {instead}build gliss with its default features (the `soundcard` feature; on Linux it needs the ALSA headers, e.g. libasound2-dev)"
+        ),
+    )
+}
 
 /// The sweep options of `sweep`, `demo` (and later `measure`).
 #[derive(Debug, Clone, ClapArgs)]
@@ -375,7 +387,7 @@ fn read_input(path: &Path) -> Result<(Vec<u8>, FileEntry)> {
     let bytes = std::fs::read(path).map_err(|e| Error::io("read", path, &e))?;
     let entry = FileEntry {
         name: path.display().to_string(),
-        role: crate::folder::schema::FileRole::Input,
+        role: gliss::folder::schema::FileRole::Input,
         sha256: sha256_hex(&bytes),
     };
     Ok((bytes, entry))
@@ -384,8 +396,8 @@ fn read_input(path: &Path) -> Result<(Vec<u8>, FileEntry)> {
 /// The octave-band T30 of input `k` of a comparison against the reference,
 /// one line per band, with the verdict comparison.json stores (and, with a
 /// room volume, the change of absorption area).
-pub fn print_octave_verdicts(cmp: &crate::folder::schema::Comparison, k: usize) {
-    use crate::model::{Fraction, Parameter};
+pub fn print_octave_verdicts(cmp: &gliss::folder::schema::Comparison, k: usize) {
+    use gliss::model::{Fraction, Parameter};
     for r in cmp
         .bands
         .iter()
@@ -405,10 +417,10 @@ pub fn print_octave_verdicts(cmp: &crate::folder::schema::Comparison, k: usize) 
             .get(k)
             .copied()
             .flatten()
-            .map_or("not judged", crate::analysis::compare::Verdict::words);
+            .map_or("not judged", gliss::analysis::compare::Verdict::words);
         println!(
             "  {:>6} Hz  T30 {t0:.2} s -> {t1:.2} s ({:+.0} %){}: {verdict}",
-            crate::model::units::format_hz(r.center_hz),
+            gliss::model::units::format_hz(r.center_hz),
             100.0 * r.changes.relative_change[k].unwrap_or(0.0),
             area.map_or(String::new(), |x| format!(", {x:+.1} m² absorption")),
         );

@@ -4,10 +4,10 @@ use std::path::PathBuf;
 
 use clap::Args as ClapArgs;
 
-use crate::analysis::Smoothing;
 use crate::cli::common;
-use crate::error::Result;
-use crate::session::compare::{self, CompareJob};
+use gliss::analysis::Smoothing;
+use gliss::error::Result;
+use gliss::session::compare::{self, CompareJob};
 
 /// Options of `gliss compare`.
 #[derive(Debug, ClapArgs)]
@@ -92,8 +92,8 @@ pub fn run(a: Args) -> Result<()> {
                     i.label,
                     r.max_abs_db,
                     r.mean_abs_db,
-                    crate::model::units::format_hz(r.range_hz[0].round()),
-                    crate::model::units::format_hz(r.range_hz[1].round()),
+                    gliss::model::units::format_hz(r.range_hz[0].round()),
+                    gliss::model::units::format_hz(r.range_hz[1].round()),
                     r.inside_share
                         .map(|s| format!(", {:.0} % within tolerance", 100.0 * s))
                         .unwrap_or_default()

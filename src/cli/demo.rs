@@ -4,13 +4,13 @@ use std::path::PathBuf;
 
 use clap::Args as ClapArgs;
 
-use crate::audio::virtual_system::VirtualSystem;
-use crate::audio::{NoSink, PlayRecord, Playback};
 use crate::cli::common::{self, OutputArgs, SweepArgs};
-use crate::error::{Error, Result};
-use crate::session::compare::{self, AverageJob, CompareJob};
-use crate::session::{self, Job, Outcome, records::Source};
-use crate::signal::wav::{SampleEncoding, decode_wav, encode_wav};
+use gliss::audio::virtual_system::VirtualSystem;
+use gliss::audio::{NoSink, PlayRecord, Playback};
+use gliss::error::{Error, Result};
+use gliss::session::compare::{self, AverageJob, CompareJob};
+use gliss::session::{self, Job, Outcome, records::Source};
+use gliss::signal::wav::{SampleEncoding, decode_wav, encode_wav};
 
 /// Options of `gliss demo`.
 #[derive(Debug, ClapArgs)]

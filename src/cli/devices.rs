@@ -2,8 +2,11 @@
 
 use clap::Args as ClapArgs;
 
-use crate::audio::soundcard::{self, Capabilities};
-use crate::error::{Error, Result};
+#[cfg(feature = "soundcard")]
+use gliss::audio::soundcard::{self, Capabilities};
+#[cfg(feature = "soundcard")]
+use gliss::error::Error;
+use gliss::error::Result;
 
 /// Options of `gliss devices`.
 #[derive(Debug, ClapArgs)]
@@ -18,6 +21,7 @@ pub struct Args {
     pub json: bool,
 }
 
+#[cfg(feature = "soundcard")]
 fn caps_line(c: &Capabilities) -> String {
     let rates: Vec<String> = c
         .sample_rates_hz
@@ -41,7 +45,18 @@ fn caps_line(c: &Capabilities) -> String {
     s
 }
 
+/// Runs `gliss devices` in a build without the sound card: refuses.
+#[cfg(not(feature = "soundcard"))]
+pub fn run(a: Args) -> Result<()> {
+    let _ = a.json;
+    Err(super::common::no_soundcard(
+        "gliss devices",
+        "gliss measure --device virtual works without one; to list sound cards, ",
+    ))
+}
+
 /// Runs `gliss devices`.
+#[cfg(feature = "soundcard")]
 pub fn run(a: Args) -> Result<()> {
     let list = soundcard::list_devices()?;
     if a.json {

@@ -5,14 +5,14 @@ use std::path::PathBuf;
 
 use clap::Args as ClapArgs;
 
-use crate::analysis::Smoothing;
-use crate::error::Result;
-use crate::session::export::{self, Format, What};
+use gliss::analysis::Smoothing;
+use gliss::error::Result;
+use gliss::session::export::{self, Format, What};
 
 /// What each --what holds; the band columns come from the parameters'
 /// own keys.
 fn after_help() -> String {
-    let bands: Vec<&str> = crate::model::Parameter::ALL
+    let bands: Vec<&str> = gliss::model::Parameter::ALL
         .iter()
         .map(|p| p.key())
         .collect();

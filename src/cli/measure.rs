@@ -1,20 +1,24 @@
 //! `gliss measure`: play the sweep through a sound card while recording the
 //! microphone, then analyse.
 
+#[cfg(feature = "soundcard")]
 use std::io::{IsTerminal, Write};
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, Ordering};
 
 use clap::Args as ClapArgs;
 
-use crate::audio::soundcard::{Request, SoundCard};
-use crate::audio::virtual_system::VirtualSystem;
-use crate::audio::{PlayRecord, Progress};
 use crate::cli::common::{self, OutputArgs, SweepArgs};
-use crate::error::{Error, Result};
-use crate::session::measure::{self, MeasureJob};
+#[cfg(feature = "soundcard")]
+use gliss::audio::soundcard::{Request, SoundCard};
+use gliss::audio::virtual_system::VirtualSystem;
+use gliss::audio::{PlayRecord, Progress};
+use gliss::error::{Error, Result};
+use gliss::session::measure::{self, MeasureJob};
+use gliss::signal::sweep::SweepDesign;
 
 /// Above this sweep level `measure` asks before it plays, dBFS.
+#[cfg(feature = "soundcard")]
 pub const CONFIRM_ABOVE_DBFS: f64 = -6.0;
 
 const AFTER_HELP: &str = "\
@@ -102,6 +106,7 @@ fn one_based(v: usize, what: &str) -> Result<usize> {
 }
 
 /// Asks before a loud sweep; refuses when nobody can answer.
+#[cfg(feature = "soundcard")]
 fn confirm_level(level: f64, yes: bool) -> Result<()> {
     if level <= CONFIRM_ABOVE_DBFS || yes {
         return Ok(());
@@ -181,6 +186,37 @@ impl Meter {
     }
 }
 
+/// Asks before a loud sweep, then opens the sound card for `highest_in`
+/// inputs and `highest_out` outputs.
+#[cfg(feature = "soundcard")]
+fn sound_card(
+    a: &Args,
+    design: &SweepDesign,
+    highest_in: usize,
+    highest_out: usize,
+) -> Result<Box<dyn PlayRecord>> {
+    confirm_level(design.params.level_dbfs, a.yes)?;
+    Ok(Box::new(SoundCard::open(&Request {
+        input_device: a.input_device.clone().or_else(|| a.device.clone()),
+        output_device: a.output_device.clone().or_else(|| a.device.clone()),
+        sample_rate_hz: design.params.sample_rate_hz,
+        input_channels: highest_in,
+        output_channels: highest_out,
+        buffer_frames: a.buffer,
+    })?))
+}
+
+/// A build without the sound card refuses every device but the virtual one.
+#[cfg(not(feature = "soundcard"))]
+fn sound_card(a: &Args, _: &SweepDesign, _: usize, _: usize) -> Result<Box<dyn PlayRecord>> {
+    // the sound card's options have nothing to act on here
+    let _ = (&a.input_device, &a.output_device, a.buffer, a.yes);
+    Err(common::no_soundcard(
+        "gliss measure with a sound card",
+        "gliss measure --device virtual measures the simulated system; to measure through a sound card, ",
+    ))
+}
+
 /// Runs `gliss measure`.
 pub fn run(a: Args) -> Result<()> {
     if a.output.overwrite {
@@ -224,9 +260,6 @@ pub fn run(a: Args) -> Result<()> {
         .device
         .as_deref()
         .is_some_and(|d| d.trim().eq_ignore_ascii_case("virtual"));
-    if !is_virtual {
-        confirm_level(design.params.level_dbfs, a.yes)?;
-    }
     let mut device: Box<dyn PlayRecord> = if is_virtual {
         Box::new(VirtualSystem {
             loopback: true,
@@ -235,14 +268,7 @@ pub fn run(a: Args) -> Result<()> {
     } else {
         let highest_in = channel.max(reference.unwrap_or(0)) + 1;
         let highest_out = outputs.iter().copied().max().unwrap_or(0) + 1;
-        Box::new(SoundCard::open(&Request {
-            input_device: a.input_device.clone().or_else(|| a.device.clone()),
-            output_device: a.output_device.clone().or_else(|| a.device.clone()),
-            sample_rate_hz: design.params.sample_rate_hz,
-            input_channels: highest_in,
-            output_channels: highest_out,
-            buffer_frames: a.buffer,
-        })?)
+        sound_card(&a, &design, highest_in, highest_out)?
     };
     let job = MeasureJob {
         out: a.out.clone(),
@@ -318,8 +344,8 @@ pub fn run(a: Args) -> Result<()> {
 /// The measurement record of the folder just written.
 fn outcome_measurement(
     dir: &std::path::Path,
-) -> Option<crate::session::records::MeasurementRecord> {
+) -> Option<gliss::session::records::MeasurementRecord> {
     let text = std::fs::read_to_string(dir.join("manifest.json")).ok()?;
-    let m: crate::session::records::Manifest = serde_json::from_str(&text).ok()?;
+    let m: gliss::session::records::Manifest = serde_json::from_str(&text).ok()?;
     m.measurement
 }

@@ -82,7 +82,7 @@ pub fn main() -> ExitCode {
             return ExitCode::from(code);
         }
     };
-    let unplotted = wants_plots(&cli.command) && !crate::model::plot_kind::PLOTS_BUILT;
+    let unplotted = wants_plots(&cli.command) && !gliss::model::plot_kind::PLOTS_BUILT;
     let result = match cli.command {
         Command::Sweep(a) => sweep::run(a),
         Command::Devices(a) => devices::run(a),
@@ -105,7 +105,7 @@ pub fn main() -> ExitCode {
         Err(e) => {
             eprintln!("error: {e}");
             let code = match e.kind() {
-                crate::ErrorKind::InvalidParameter => EXIT_USAGE,
+                gliss::ErrorKind::InvalidParameter => EXIT_USAGE,
                 _ => EXIT_FAILURE,
             };
             ExitCode::from(code)

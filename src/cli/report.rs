@@ -6,8 +6,8 @@ use std::path::{Path, PathBuf};
 
 use clap::Args as ClapArgs;
 
-use crate::error::{Error, ErrorKind, Result};
-use crate::report::{self, Folder, Plot};
+use gliss::error::{Error, ErrorKind, Result};
+use gliss::report::{self, Folder, Plot};
 
 /// Options of `gliss report`.
 #[derive(Debug, ClapArgs)]
@@ -111,9 +111,9 @@ fn write_out(out: &Path, bytes: &[u8], overwrite: bool) -> Result<()> {
 /// raw files changed (unless `show_changed_raw`: then the report shows the
 /// damage).
 pub fn read_folder(dir: &Path, show_changed_raw: bool) -> Result<Folder> {
-    let f = crate::folder::open_with(
+    let f = gliss::folder::open_with(
         dir,
-        crate::folder::OpenOptions {
+        gliss::folder::OpenOptions {
             allow_changed_raw: show_changed_raw,
         },
     )?;

@@ -7,10 +7,10 @@ use std::path::{Path, PathBuf};
 use clap::Args as ClapArgs;
 
 use crate::cli::common::SweepArgs;
-use crate::error::{Error, ErrorKind, Result};
-use crate::session::folder::sha256_hex;
-use crate::session::sweep_file::{self, SweepFile, WavInfo};
-use crate::signal::wav::{self, SampleEncoding};
+use gliss::error::{Error, ErrorKind, Result};
+use gliss::session::folder::sha256_hex;
+use gliss::session::sweep_file::{self, SweepFile, WavInfo};
+use gliss::signal::wav::{self, SampleEncoding};
 
 /// Options of `gliss sweep`.
 #[derive(Debug, ClapArgs)]
@@ -81,7 +81,7 @@ pub fn run(a: Args) -> Result<()> {
             sha256: sha256_hex(&bytes),
         },
     };
-    let json = crate::session::to_json(&record)?;
+    let json = gliss::session::to_json(&record)?;
     create_new(&a.out, &bytes)?;
     create_new(&side, &json)?;
     println!(

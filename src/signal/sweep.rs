@@ -7,6 +7,30 @@
 //! which makes every harmonic impulse response phase-aligned with the linear
 //! one (A. Novak, L. Simon, F. Kadlec, P. Lotton, IEEE Trans. Instrum. Meas.
 //! 59(8), 2010): L = round(f1·T̃/ln(f2/f1))/f1, actual length T = L·ln(f2/f1).
+//!
+//! ```
+//! use gliss::signal::sweep::SweepParams;
+//!
+//! // 20 Hz to 20 kHz in about 2 s, then 1 s of silence, at 48 kHz
+//! let design = SweepParams {
+//!     requested_length_s: 2.0,
+//!     tail_s: 1.0,
+//!     ..SweepParams::default()
+//! }
+//! .design()?;
+//! // f1·L is an integer: L = round(20·2/ln 1000)/20 = 6/20 s, so the
+//! // sweep lasts T = 0.3·ln 1000 = 2.072 s instead of the 2 s asked for
+//! assert_eq!(design.rate_constant_s, 0.3);
+//! assert!((design.length_s - 0.3 * 1000f64.ln()).abs() < 1e-12);
+//! let x = design.generate();
+//! assert_eq!(x.len(), design.total_samples);
+//! assert_eq!(design.total_samples, design.sweep_samples + 48_000);
+//! // the peak is the level asked for, −20 dBFS = 0.1 (within the sampling
+//! // of the sine's crests)
+//! let peak = x.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+//! assert!((peak - 0.1).abs() < 1e-4);
+//! # Ok::<(), gliss::Error>(())
+//! ```
 
 use serde::{Deserialize, Serialize};
 

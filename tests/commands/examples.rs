@@ -1,13 +1,26 @@
 //! The committed example folders in measurements/ still come out of the
 //! code as it is: every position is analysed again from its raw files, the
 //! averages and the comparison are made again from those, and the numbers
-//! must agree with what is committed.
+//! must agree with what is committed. The example programs in examples/
+//! are compiled into this test binary and run.
 
 use std::path::{Path, PathBuf};
 
 use serde_json::Value;
 
 use crate::util::*;
+
+/// The example programs, compiled in here so that the tests run them.
+#[path = "../../examples/known_filter.rs"]
+mod known_filter;
+#[path = "../../examples/measure_virtual.rs"]
+mod measure_virtual;
+
+#[test]
+fn the_example_programs_run() {
+    known_filter::main().expect("examples/known_filter.rs runs");
+    measure_virtual::main().expect("examples/measure_virtual.rs runs");
+}
 
 fn examples() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("measurements")

@@ -11,9 +11,11 @@ mod device_under_test;
 mod distortion;
 mod examples;
 mod export;
+mod features;
 mod measure;
 mod report;
 mod sensitivity;
+#[cfg(feature = "soundcard")]
 mod sound_server;
 mod sweep;
 mod target;

@@ -220,6 +220,7 @@ fn an_existing_measurement_is_never_measured_over() {
 }
 
 #[test]
+#[cfg(feature = "soundcard")]
 fn a_loud_sweep_needs_confirmation() {
     // above -6 dBFS, with nobody at the terminal (the test's stdin is not
     // one) and no --yes: refused before any device is opened
