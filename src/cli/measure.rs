@@ -345,7 +345,5 @@ pub fn run(a: Args) -> Result<()> {
 fn outcome_measurement(
     dir: &std::path::Path,
 ) -> Option<gliss::session::records::MeasurementRecord> {
-    let text = std::fs::read_to_string(dir.join("manifest.json")).ok()?;
-    let m: gliss::session::records::Manifest = serde_json::from_str(&text).ok()?;
-    m.measurement
+    gliss::folder::read_manifest(dir).ok()?.measurement
 }

@@ -180,6 +180,22 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
     })
 }
 
+/// Reads the manifest of a measurement folder as it is, complete or not
+/// and without checking its files: for what needs only the manifest's
+/// record of the sweep or the files (re-analysing an interrupted
+/// measurement's recording, checking a folder before replacing its derived
+/// files). Everything else opens the folder with [`open`].
+pub fn read_manifest(dir: &Path) -> Result<Manifest> {
+    let path = dir.join("manifest.json");
+    let bytes = fs::read(&path).map_err(|e| Error::io("read", &path, &e))?;
+    serde_json::from_slice(&bytes).map_err(|e| {
+        Error::input(format!(
+            "{} is not a gliss measurement manifest ({e}); give folders written by gliss",
+            path.display()
+        ))
+    })
+}
+
 /// Reads `file` of the folder with its SHA-256; `redo` says how to make it
 /// again when it is missing.
 fn read_content(dir: &Path, file: &str, redo: &str) -> Result<(Vec<u8>, String)> {

@@ -74,13 +74,8 @@ impl MeasurementFolder {
         }
         // the raw files must still be the ones the manifest recorded: a
         // changed one is refused, so its original hash is never replaced
-        let mpath = dir.join("manifest.json");
-        if let Ok(text) = fs::read(&mpath) {
-            let entries: Vec<FileEntry> = serde_json::from_slice::<serde_json::Value>(&text)
-                .ok()
-                .and_then(|v| serde_json::from_value(v.get("files")?.clone()).ok())
-                .unwrap_or_default();
-            crate::folder::check_files(dir, &entries, crate::folder::OpenOptions::default())?;
+        if let Ok(m) = crate::folder::read_manifest(dir) {
+            crate::folder::check_files(dir, &m.files, crate::folder::OpenOptions::default())?;
         }
         for (name, bytes) in raw {
             let path = dir.join(name);

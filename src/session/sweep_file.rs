@@ -62,12 +62,10 @@ pub fn load_design(wav: &Path) -> Result<SweepDesign> {
         })?;
         f.sweep.params
     } else {
-        let manifest = wav.with_file_name("manifest.json");
-        let from_manifest = std::fs::read_to_string(&manifest)
-            .ok()
-            .and_then(|t| serde_json::from_str::<serde_json::Value>(&t).ok())
-            .and_then(|v| v.get("sweep").and_then(|s| s.get("params")).cloned())
-            .and_then(|p| serde_json::from_value::<SweepParams>(p).ok());
+        let from_manifest = wav
+            .parent()
+            .and_then(|d| crate::folder::read_manifest(d).ok())
+            .map(|m| m.sweep.params);
         match from_manifest {
             Some(p) => p,
             None => {

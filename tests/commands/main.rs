@@ -17,6 +17,8 @@ mod report;
 mod sensitivity;
 #[cfg(feature = "soundcard")]
 mod sound_server;
+#[cfg(feature = "plots")]
+mod spine;
 mod sweep;
 mod target;
 mod wire;
