@@ -267,8 +267,7 @@ pub fn judge(parameter: Parameter, values: &[Option<f64>], uncertainty: &[Option
     };
     let v0 = values.first().copied().flatten();
     let u0 = uncertainty.first().copied().flatten();
-    for k in 1..values.len() {
-        let vk = values[k];
+    for (k, &vk) in values.iter().enumerate().skip(1) {
         let d = v0.zip(vk).map(|(a, b)| b - a);
         let jnd = v0.zip(vk).and_then(|(a, b)| exceeds_jnd(parameter, a, b));
         let unc = d

@@ -1,5 +1,5 @@
 //! The measurement folder: one schema for every kind gliss writes
-//! ([`schema`]), the writer that keeps raw files sacred ([`write`]), and
+//! ([`schema`]), the writer that keeps raw files sacred ([`write`](mod@write)), and
 //! one reader, [`open`], through which every later command (re-analysis,
 //! average, compare, export, report) enters a folder.
 //!

@@ -412,7 +412,7 @@ fn response_table(m: &Measurement, smooth: Option<Smoothing>) -> Result<Table> {
     let rec = &m.results.response;
     let mut magnitude = rec.magnitude_db.clone();
     let mut phase = rec.phase_deg.clone();
-    let mut smoothing = rec.smoothing.clone();
+    let mut smoothing = rec.smoothing;
     let resmoothed = smooth.is_some();
     if let Some(s) = smooth {
         let fresh = fresh_response(m, s)?;
