@@ -96,6 +96,14 @@ impl Calibration {
         let drive_rms = 10f64.powf(level_dbfs / 20.0) / std::f64::consts::SQRT_2;
         magnitude_db + 20.0 * (drive_rms * self.pa_per_fs / P_REF_PA).log10()
     }
+
+    /// [`Calibration::spl_db`] of every point of a response.
+    pub fn spl_curve(&self, magnitude_db: &[f64], level_dbfs: f64) -> Vec<f64> {
+        magnitude_db
+            .iter()
+            .map(|&m| self.spl_db(m, level_dbfs))
+            .collect()
+    }
 }
 
 /// The reference drive of a loudspeaker's sensitivity: 2.83 V RMS, 1 W
@@ -135,6 +143,14 @@ impl Drive {
             + self
                 .distance_m
                 .map_or(0.0, |d| 20.0 * (d / REFERENCE_DISTANCE_M).log10())
+    }
+
+    /// The sensitivity curve (dB SPL for the reference drive, at 1 m where
+    /// the distance is known) of an SPL curve measured with a sweep of peak
+    /// `level_dbfs`: each point shifted by [`Drive::sensitivity_offset_db`].
+    pub fn sensitivity_curve(&self, spl_db: &[f64], level_dbfs: f64) -> Vec<f64> {
+        let offset = self.sensitivity_offset_db(level_dbfs);
+        spl_db.iter().map(|s| s + offset).collect()
     }
 }
 
@@ -212,5 +228,21 @@ mod tests {
         let want = 20.0 * (0.1 / std::f64::consts::SQRT_2 / P_REF_PA).log10();
         assert!((c.spl_db(0.0, -20.0) - want).abs() < 1e-9);
         assert!((want - 70.97).abs() < 0.01);
+    }
+
+    #[test]
+    fn the_sensitivity_curve_is_the_spl_shifted_by_drive_and_distance() {
+        // 2.83 V RMS at full scale, a sweep peaking at -6.0206 dBFS (half
+        // the voltage: +6.02 dB to reach 2.83 V) measured at 2 m (+6.02 dB
+        // to refer to 1 m by the inverse-square law): +12.04 dB in all
+        let d = Drive {
+            volts_per_fs: REFERENCE_VOLTS,
+            distance_m: Some(2.0),
+        };
+        let level = -20.0 * 2f64.log10();
+        let s = d.sensitivity_curve(&[80.0, 90.5], level);
+        let want = 40.0 * 2f64.log10();
+        assert!((s[0] - 80.0 - want).abs() < 1e-9);
+        assert!((s[1] - 90.5 - want).abs() < 1e-9);
     }
 }

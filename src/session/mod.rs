@@ -309,7 +309,9 @@ fn compare_target(job: &Job, a: &Analysis) -> Result<Option<(TargetRecord, f64)>
     Ok(Some((record, -shift - report.level_offset_db)))
 }
 
-/// Writes the folder; returns the files written, manifest first.
+/// Writes the folder: the raw files, the impulse response, the results
+/// and the curves, the plots, then the manifest last. Returns the files
+/// written, manifest first.
 fn write_folder(
     job: &Job,
     folder: &MeasurementFolder,
@@ -317,19 +319,7 @@ fn write_folder(
     target: Option<&(TargetRecord, f64)>,
 ) -> Result<Vec<String>> {
     folder.create()?;
-    let mut files = Vec::new();
-    // raw files first: they are the measurement
-    for (name, bytes) in [
-        ("stimulus.wav", &job.stimulus_bytes),
-        ("recording.wav", &job.recording_bytes),
-    ] {
-        let sha256 = folder.write_raw(name, bytes)?;
-        files.push(FileEntry {
-            name: name.into(),
-            role: records::FileRole::Raw,
-            sha256,
-        });
-    }
+    let mut files = write_raw_files(job, folder)?;
     files.push(folder.derived_entry(
         "impulse.wav",
         &wav::encode_wav(
@@ -338,6 +328,42 @@ fn write_folder(
             SampleEncoding::Float,
         ),
     )?);
+    let results = job_results(job, a, target.map(|t| &t.0));
+    files.extend(write_tables(folder, a, &results)?);
+    // without the plots feature, no PNGs: the manifest says so
+    let plots = job.plots && PLOTS_BUILT;
+    #[cfg(feature = "plots")]
+    if plots {
+        files.extend(draw_plots(job, folder, a, target)?);
+    }
+    let manifest = job_manifest(job, a, plots, files);
+    folder.write_derived("manifest.json", &to_json(&manifest)?)?;
+    Ok(std::iter::once("manifest.json".to_string())
+        .chain(manifest.files.into_iter().map(|f| f.name))
+        .collect())
+}
+
+/// Writes the raw files first (they are the measurement), once, and
+/// returns their manifest entries.
+fn write_raw_files(job: &Job, folder: &MeasurementFolder) -> Result<Vec<FileEntry>> {
+    [
+        ("stimulus.wav", &job.stimulus_bytes),
+        ("recording.wav", &job.recording_bytes),
+    ]
+    .into_iter()
+    .map(|(name, bytes)| {
+        Ok(FileEntry {
+            name: name.into(),
+            role: records::FileRole::Raw,
+            sha256: folder.write_raw(name, bytes)?,
+        })
+    })
+    .collect()
+}
+
+/// results.json of a job's analysis: what the delay and 0 dB are
+/// referred to, the SPL and sensitivity with a calibration, the target.
+pub fn job_results(job: &Job, a: &Analysis, target: Option<&TargetRecord>) -> Results {
     let mut results = results_record(a);
     if job.reference.is_some() {
         results.delay_reference =
@@ -349,35 +375,60 @@ fn write_folder(
     }
     if let Some((c, _)) = &job.calibration {
         let level = job.design.params.level_dbfs;
-        results.response.spl_db = a
-            .response
-            .magnitude_db
-            .iter()
-            .map(|&m| c.spl_db(m, level))
-            .collect();
+        results.response.spl_db = c.spl_curve(&a.response.magnitude_db, level);
         if let Some(d) = &job.drive {
             results.response.sensitivity = Some(sensitivity_record(d, level));
-            let offset = d.sensitivity_offset_db(level);
             results.response.sensitivity_db_spl =
-                results.response.spl_db.iter().map(|s| s + offset).collect();
+                d.sensitivity_curve(&results.response.spl_db, level);
         }
     }
-    results.target = target.map(|t| t.0.clone());
-    files.push(folder.derived_entry("results.json", &to_json(&results)?)?);
-    files.push(folder.derived_entry("response.csv", &response_csv(&results.response)?)?);
+    results.target = target.cloned();
+    results
+}
+
+/// results.json, response.csv, and distortion.csv and bands.csv where the
+/// analysis has them.
+fn write_tables(
+    folder: &MeasurementFolder,
+    a: &Analysis,
+    results: &Results,
+) -> Result<Vec<FileEntry>> {
+    let mut files = vec![
+        folder.derived_entry("results.json", &to_json(results)?)?,
+        folder.derived_entry("response.csv", &response_csv(&results.response)?)?,
+    ];
     if let Some(d) = &a.distortion {
         files.push(folder.derived_entry("distortion.csv", &distortion_csv(d, &a.response)?)?);
     }
     if let Some(r) = &a.room {
         files.push(folder.derived_entry("bands.csv", &bands_csv(r)?)?);
     }
-    // without the plots feature, no PNGs: the manifest says so
-    let plots = job.plots && PLOTS_BUILT;
-    #[cfg(feature = "plots")]
-    if plots {
-        files.extend(draw_plots(job, folder, a, target)?);
+    Ok(files)
+}
+
+/// The settings a job analysed with, for the manifest.
+pub fn job_settings(job: &Job, plots: bool) -> Settings {
+    Settings {
+        smoothing: job.config.smoothing,
+        plots,
+        harmonics: job.config.harmonics,
+        bands: job.config.bands,
+        mic_correction: job.mic_correction.clone(),
+        calibration: job.calibration.as_ref().map(|c| c.1.clone()),
+        volts_per_fs: job.drive.map(|d| d.volts_per_fs),
+        distance_m: job.drive.and_then(|d| d.distance_m),
+        target: job.target.as_ref().map(|t| t.file.clone()),
+        target_range_hz: job
+            .target
+            .as_ref()
+            .and_then(|t| t.range.map(|r| [r.0, r.1])),
+        target_absolute: job.target.as_ref().is_some_and(|t| t.absolute),
     }
-    let manifest = Manifest {
+}
+
+/// The manifest of a finished job, listing `files`.
+fn job_manifest(job: &Job, a: &Analysis, plots: bool, files: Vec<FileEntry>) -> Manifest {
+    Manifest {
         schema_version: SCHEMA_VERSION,
         tool: "gliss".into(),
         tool_version: env!("CARGO_PKG_VERSION").into(),
@@ -390,32 +441,13 @@ fn write_folder(
         recording_channels: job.recording.channels.len(),
         recording_encoding: job.recording.encoding.describe(),
         sweep: job.design.clone(),
-        settings: Settings {
-            smoothing: job.config.smoothing,
-            plots,
-            harmonics: job.config.harmonics,
-            bands: job.config.bands,
-            mic_correction: job.mic_correction.clone(),
-            calibration: job.calibration.as_ref().map(|c| c.1.clone()),
-            volts_per_fs: job.drive.map(|d| d.volts_per_fs),
-            distance_m: job.drive.and_then(|d| d.distance_m),
-            target: job.target.as_ref().map(|t| t.file.clone()),
-            target_range_hz: job
-                .target
-                .as_ref()
-                .and_then(|t| t.range.map(|r| [r.0, r.1])),
-            target_absolute: job.target.as_ref().is_some_and(|t| t.absolute),
-        },
+        settings: job_settings(job, plots),
         files,
         measurement: job.measurement.clone(),
         problems: Vec::new(),
         kind: None,
         inputs: Vec::new(),
-    };
-    folder.write_derived("manifest.json", &to_json(&manifest)?)?;
-    Ok(std::iter::once("manifest.json".to_string())
-        .chain(manifest.files.into_iter().map(|f| f.name))
-        .collect())
+    }
 }
 
 /// Draws every plot the analysis has into the folder; returns their
