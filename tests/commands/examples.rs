@@ -10,6 +10,10 @@ use serde_json::Value;
 
 use crate::util::*;
 
+#[path = "../../examples/compare_folders.rs"]
+mod compare_folders;
+#[path = "../../examples/folder_t30.rs"]
+mod folder_t30;
 /// The example programs, compiled in here so that the tests run them.
 #[path = "../../examples/known_filter.rs"]
 mod known_filter;
@@ -20,6 +24,53 @@ mod measure_virtual;
 fn the_example_programs_run() {
     known_filter::main().expect("examples/known_filter.rs runs");
     measure_virtual::main().expect("examples/measure_virtual.rs runs");
+    // their main reads the command line, which here is the test runner's:
+    // run them on the committed folders instead (main is still compiled)
+    let _mains: [fn() -> gliss::Result<()>; 2] = [folder_t30::main, compare_folders::main];
+    let room = examples().join("rehearsal-room");
+    folder_t30::run(&room.join("before-1")).expect("examples/folder_t30.rs runs");
+    compare_folders::run(&room.join("before"), &room.join("after"))
+        .expect("examples/compare_folders.rs runs");
+}
+
+#[test]
+fn the_folder_examples_agree_with_the_committed_files() {
+    let root = examples().join("rehearsal-room");
+    // the T30 the example reads is results.json's
+    let t30 = folder_t30::octave_t30(&root.join("before-1")).unwrap();
+    let r = json(&root.join("before-1/results.json"));
+    let octaves: Vec<&Value> = r["bands"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|b| b["fraction"] == "1/1")
+        .collect();
+    assert_eq!(t30.len(), octaves.len());
+    for ((hz, t), b) in t30.iter().zip(&octaves) {
+        assert_eq!(*hz, b["center_hz"].as_f64().unwrap());
+        assert_eq!(t.as_ref().ok().copied(), b["t30_s"].as_f64(), "{hz} Hz");
+    }
+    // the library's verdict is the one gliss compare stored
+    let verdicts =
+        compare_folders::octave_verdicts(&root.join("before"), &root.join("after")).unwrap();
+    let c = json(&root.join("comparison/comparison.json"));
+    let stored: Vec<(f64, String)> = c["bands"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|b| b["fraction"] == "1/1" && b["parameter"] == "t30_s")
+        .map(|b| {
+            (
+                b["center_hz"].as_f64().unwrap(),
+                b["verdict"][1].as_str().unwrap().to_string(),
+            )
+        })
+        .collect();
+    assert_eq!(verdicts.len(), stored.len());
+    for ((hz, v), (shz, code)) in verdicts.iter().zip(&stored) {
+        assert_eq!(hz, shz);
+        assert_eq!(v.code(), code, "{hz} Hz");
+    }
 }
 
 fn examples() -> PathBuf {
