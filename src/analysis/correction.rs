@@ -16,7 +16,7 @@ pub struct Correction {
 
 impl Correction {
     /// Parses the text of a correction file; an error names the line.
-    pub fn parse(text: &str) -> std::result::Result<Correction, String> {
+    pub fn parse(text: &str) -> crate::Result<Correction> {
         let rows = super::curve_file::parse(
             text,
             super::curve_file::Layout {
@@ -92,14 +92,21 @@ mod tests {
         assert!(
             Correction::parse("# nothing here\n")
                 .unwrap_err()
+                .message()
+                .to_string()
                 .contains("fewer than two")
         );
         assert!(
             Correction::parse("20 1\nhello world\n")
                 .unwrap_err()
+                .message()
+                .to_string()
                 .contains("line 2")
         );
-        let e = Correction::parse("100 1\n50 2\n").unwrap_err();
+        let e = Correction::parse("100 1\n50 2\n")
+            .unwrap_err()
+            .message()
+            .to_string();
         assert!(
             e.contains("line 2") && e.contains("does not increase"),
             "{e}"
@@ -107,6 +114,8 @@ mod tests {
         assert!(
             Correction::parse("0 1\n10 2\n")
                 .unwrap_err()
+                .message()
+                .to_string()
                 .contains("line 1")
         );
         let c = Correction::parse("30 0\n16000 0\n").unwrap();

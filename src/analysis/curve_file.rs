@@ -3,6 +3,8 @@
 //! with `#`, `;` or `*`. The microphone correction ([`super::correction`])
 //! and the target curve ([`super::target`]) are read this way.
 
+use crate::error::Error;
+
 /// The numeric lines of a curve file.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Rows {
@@ -29,7 +31,7 @@ pub struct Layout<'a> {
 /// Parses `text` as a curve file of `layout`; an error names the line.
 /// Frequencies must be above 0 and increasing, every number finite, and
 /// there must be at least two points.
-pub fn parse(text: &str, layout: Layout<'_>) -> std::result::Result<Rows, String> {
+pub fn parse(text: &str, layout: Layout<'_>) -> crate::Result<Rows> {
     let mut rows: Vec<Vec<f64>> = Vec::new();
     let mut lines = Vec::new();
     let mut seen_line = false;
@@ -54,39 +56,41 @@ pub fn parse(text: &str, layout: Layout<'_>) -> std::result::Result<Rows, String
         let nums = match nums {
             Some(v) if (lo..=hi).contains(&v.len()) && v.iter().all(|x| x.is_finite()) => v,
             _ => {
-                return Err(format!(
+                return Err(Error::input(format!(
                     "line {n} is not {} (read {line:?}); mark comments with #",
                     layout.expect
-                ));
+                )));
             }
         };
         if nums[0] <= 0.0 {
-            return Err(format!(
+            return Err(Error::input(format!(
                 "line {n}: the frequency {} Hz must be above 0",
                 nums[0]
-            ));
+            )));
         }
         if let Some(prev) = rows.last() {
             if nums[0] <= prev[0] {
-                return Err(format!(
+                return Err(Error::input(format!(
                     "line {n}: the frequency {} Hz does not increase (the line before has {} Hz); sort the file by frequency",
                     nums[0], prev[0]
-                ));
+                )));
             }
             if layout.same_columns && nums.len() != rows[0].len() {
-                return Err(format!(
+                return Err(Error::input(format!(
                     "line {n} has {} numbers but line {} has {}; give every line the same columns",
                     nums.len(),
                     lines[0],
                     rows[0].len()
-                ));
+                )));
             }
         }
         rows.push(nums);
         lines.push(n);
     }
     if rows.len() < 2 {
-        return Err("holds fewer than two frequency–dB lines; it needs at least two".into());
+        return Err(Error::input(
+            "holds fewer than two frequency–dB lines; it needs at least two",
+        ));
     }
     Ok(Rows { rows, lines })
 }
@@ -113,13 +117,19 @@ mod tests {
         let r = parse("# c\nfrequency_hz,target_db\n20,1\n40,2\n", LAYOUT).unwrap();
         assert_eq!(r.rows, vec![vec![20.0, 1.0], vec![40.0, 2.0]]);
         assert_eq!(r.lines, vec![3, 4]);
-        let e = parse("20 1\nfrequency target\n40 2\n", LAYOUT).unwrap_err();
+        let e = parse("20 1\nfrequency target\n40 2\n", LAYOUT)
+            .unwrap_err()
+            .message()
+            .to_string();
         assert!(e.starts_with("line 2 "), "{e}");
     }
 
     #[test]
     fn columns_must_agree_when_asked() {
-        let e = parse("20 1 3\n40 2\n", LAYOUT).unwrap_err();
+        let e = parse("20 1 3\n40 2\n", LAYOUT)
+            .unwrap_err()
+            .message()
+            .to_string();
         assert!(e.contains("line 2") && e.contains("same columns"), "{e}");
     }
 }

@@ -16,6 +16,7 @@
 //! as `level_offset_db`. Without alignment (`--target-absolute`) the
 //! levels are compared as they are, for calibrated SPL targets.
 
+use crate::error::Error;
 use serde::{Deserialize, Serialize};
 
 use super::curve_file::{self, Layout};
@@ -81,7 +82,7 @@ pub struct TargetCurve {
 
 impl Target {
     /// Parses a target file; an error names the line.
-    pub fn parse(text: &str) -> std::result::Result<Target, String> {
+    pub fn parse(text: &str) -> crate::Result<Target> {
         let rows = curve_file::parse(
             text,
             Layout {
@@ -100,9 +101,9 @@ impl Target {
             };
             if let Some((lo, hi)) = tolerance_db {
                 if lo < 0.0 || hi < 0.0 || lo + hi <= 0.0 {
-                    return Err(format!(
+                    return Err(Error::input(format!(
                         "line {n}: the tolerances must be positive dB below and above the target (e.g. 3 3 for -3/+3 dB); read {lo} and {hi}"
-                    ));
+                    )));
                 }
             }
             points.push(TargetPoint {
@@ -161,22 +162,22 @@ impl Target {
         &self,
         band: (f64, f64),
         requested: Option<(f64, f64)>,
-    ) -> std::result::Result<(f64, f64), String> {
+    ) -> crate::Result<(f64, f64)> {
         let (t1, t2) = self.span_hz();
         let (lo, hi) = (t1.max(band.0), t2.min(band.1));
         if hi <= lo {
-            return Err(format!(
+            return Err(Error::input(format!(
                 "the target covers {t1} to {t2} Hz and the measurement {} to {} Hz: they do not overlap; give a target for the swept band",
                 band.0, band.1
-            ));
+            )));
         }
         match requested {
             None => Ok((lo, hi)),
             Some((a, b)) if a >= lo * (1.0 - 1e-9) && b <= hi * (1.0 + 1e-9) => Ok((a, b)),
-            Some((a, b)) => Err(format!(
+            Some((a, b)) => Err(Error::input(format!(
                 "--target-range {a},{b} reaches beyond {lo} to {hi} Hz, where both the target ({t1} to {t2} Hz) and the sweep ({} to {} Hz) are; narrow it",
                 band.0, band.1
-            )),
+            ))),
         }
     }
 
@@ -251,24 +252,24 @@ pub fn deviation(
     target: &Target,
     range: (f64, f64),
     align: bool,
-) -> std::result::Result<TargetReport, String> {
+) -> crate::Result<TargetReport> {
     let weights = log_weights(frequency_hz, range);
     let mut pts = Vec::with_capacity(weights.len());
     for &(i, w) in &weights {
         let f = frequency_hz[i];
         let t = target.at(f).ok_or_else(|| {
-            format!(
+            Error::input(format!(
                 "the target does not reach {f:.1} Hz; narrow --target-range to the target's span"
-            )
+            ))
         })?;
         pts.push((f, magnitude_db[i], t, w));
     }
     let total: f64 = pts.iter().map(|p| p.3).sum();
     if pts.len() < 2 || total <= 0.0 {
-        return Err(format!(
+        return Err(Error::input(format!(
             "the range {} to {} Hz holds fewer than two points of the response; widen --target-range",
             range.0, range.1
-        ));
+        )));
     }
     let offset = if align {
         pts.iter().map(|p| (p.2.target_db - p.1) * p.3).sum::<f64>() / total
@@ -386,13 +387,25 @@ mod tests {
 
     #[test]
     fn malformed_files_name_the_line() {
-        let e = Target::parse("100 0\n200 zero\n").unwrap_err();
+        let e = Target::parse("100 0\n200 zero\n")
+            .unwrap_err()
+            .message()
+            .to_string();
         assert!(e.starts_with("line 2 "), "{e}");
-        let e = Target::parse("100 0 -1\n200 0 1\n").unwrap_err();
+        let e = Target::parse("100 0 -1\n200 0 1\n")
+            .unwrap_err()
+            .message()
+            .to_string();
         assert!(e.starts_with("line 1:") && e.contains("positive"), "{e}");
-        let e = Target::parse("100 0\n200 0 1\n").unwrap_err();
+        let e = Target::parse("100 0\n200 0 1\n")
+            .unwrap_err()
+            .message()
+            .to_string();
         assert!(e.contains("line 2"), "{e}");
-        let e = Target::parse("100 0 1 1 1\n200 0\n").unwrap_err();
+        let e = Target::parse("100 0 1 1 1\n200 0\n")
+            .unwrap_err()
+            .message()
+            .to_string();
         assert!(e.starts_with("line 1 "), "{e}");
     }
 }

@@ -12,9 +12,10 @@ use crate::error::{Error, Result};
 /// The keyword gliss writes its marks under.
 pub const MARKS_KEYWORD: &str = "gliss-marks";
 
-/// `png` with a tEXt chunk `keyword` = `text` inserted before its IEND
-/// chunk; `None` when `png` does not end in IEND or the keyword is not
-/// 1–79 Latin-1 characters.
+/// `png` with a tEXt chunk `keyword` = `text` inserted right after its
+/// IHDR chunk (so that a decoder reading the header sees it); `None` when
+/// `png` is not a PNG ending in IEND or the keyword is not 1–79 Latin-1
+/// characters.
 pub fn with_text(png: &[u8], keyword: &str, text: &str) -> Option<Vec<u8>> {
     const IEND: [u8; 12] = [0, 0, 0, 0, b'I', b'E', b'N', b'D', 0xae, 0x42, 0x60, 0x82];
     if png.len() < 20 || png[png.len() - 12..] != IEND {
@@ -37,9 +38,14 @@ pub fn with_text(png: &[u8], keyword: &str, text: &str) -> Option<Vec<u8>> {
     typed.extend_from_slice(&data);
     chunk.extend_from_slice(&typed);
     chunk.extend_from_slice(&crc32fast::hash(&typed).to_be_bytes());
-    let mut out = png[..png.len() - 12].to_vec();
+    // the signature (8 bytes), then IHDR: length, type, 13 bytes, CRC
+    const AFTER_IHDR: usize = 8 + 4 + 4 + 13 + 4;
+    if &png[12..16] != b"IHDR" || png.len() < AFTER_IHDR + 12 {
+        return None;
+    }
+    let mut out = png[..AFTER_IHDR].to_vec();
     out.extend_from_slice(&chunk);
-    out.extend_from_slice(&IEND);
+    out.extend_from_slice(&png[AFTER_IHDR..]);
     Some(out)
 }
 

@@ -66,25 +66,26 @@ pub fn read_wav(path: &Path, what: &str) -> Result<WavData> {
 
 /// Decodes WAV bytes; on failure returns the end of a sentence such as
 /// "is not a WAV file".
-pub fn decode_wav(bytes: &[u8]) -> std::result::Result<WavData, String> {
-    let reader = hound::WavReader::new(Cursor::new(bytes)).map_err(describe_hound)?;
+pub fn decode_wav(bytes: &[u8]) -> crate::Result<WavData> {
+    let reader =
+        hound::WavReader::new(Cursor::new(bytes)).map_err(|e| Error::input(describe_hound(e)))?;
     read_all(reader)
 }
 
-fn read_all<R: Read>(reader: hound::WavReader<R>) -> std::result::Result<WavData, String> {
+fn read_all<R: Read>(reader: hound::WavReader<R>) -> crate::Result<WavData> {
     let spec = reader.spec();
     let nch = usize::from(spec.channels);
     if nch == 0 {
-        return Err("has no channels".into());
+        return Err(Error::input("has no channels"));
     }
     let expected = reader.len() as usize;
     let encoding = match spec.sample_format {
         hound::SampleFormat::Float => {
             if spec.bits_per_sample != 32 {
-                return Err(format!(
+                return Err(Error::input(format!(
                     "holds {}-bit float samples; only 32-bit float is supported",
                     spec.bits_per_sample
-                ));
+                )));
             }
             SampleEncoding::Float
         }
@@ -103,25 +104,27 @@ fn read_all<R: Read>(reader: hound::WavReader<R>) -> std::result::Result<WavData
             for s in reader.into_samples::<f32>() {
                 match s {
                     Ok(v) => interleaved.push(f64::from(v)),
-                    Err(_) => return Err(truncated(interleaved.len())),
+                    Err(_) => return Err(Error::input(truncated(interleaved.len()))),
                 }
             }
         }
         SampleEncoding::Int(bits) => {
             if !(8..=32).contains(&bits) {
-                return Err(format!("holds {bits}-bit samples, which gliss cannot read"));
+                return Err(Error::input(format!(
+                    "holds {bits}-bit samples, which gliss cannot read"
+                )));
             }
             let scale = 1.0 / f64::from(1u32 << (bits - 1));
             for s in reader.into_samples::<i32>() {
                 match s {
                     Ok(v) => interleaved.push(f64::from(v) * scale),
-                    Err(_) => return Err(truncated(interleaved.len())),
+                    Err(_) => return Err(Error::input(truncated(interleaved.len()))),
                 }
             }
         }
     }
     if interleaved.len() < expected {
-        return Err(truncated(interleaved.len()));
+        return Err(Error::input(truncated(interleaved.len())));
     }
     let frames = interleaved.len() / nch;
     let mut channels = vec![Vec::with_capacity(frames); nch];
@@ -240,12 +243,20 @@ mod tests {
         assert!(
             decode_wav(b"this is not audio at all, just text")
                 .unwrap_err()
+                .message()
+                .to_string()
                 .contains("not")
         );
         let a = vec![0.1; 1000];
         let bytes = encode_wav(&[&a], 48_000, SampleEncoding::Int(16));
         let cut = &bytes[..bytes.len() / 2];
-        assert!(decode_wav(cut).unwrap_err().contains("truncated"));
+        assert!(
+            decode_wav(cut)
+                .unwrap_err()
+                .message()
+                .to_string()
+                .contains("truncated")
+        );
         assert!(decode_wav(&bytes[..20]).is_err());
     }
 }
