@@ -53,6 +53,15 @@ impl Smoothing {
         }
     }
 
+    /// In words, as plots and reports say it: "1/6-octave smoothing", "no
+    /// smoothing".
+    pub fn words(self) -> String {
+        match self {
+            Smoothing::None => "no smoothing".into(),
+            Smoothing::Fraction(n) => format!("1/{n}-octave smoothing"),
+        }
+    }
+
     /// The width of the averaging band in octaves (0 without smoothing).
     pub fn octaves(self) -> f64 {
         match self {
@@ -321,5 +330,19 @@ mod tests {
         let s = smooth_on_log_grid(&step, 1);
         let want = 10.0 * ((24.0 * 1.0 + 25.0 * 0.25) / 49.0f64).log10();
         assert!((s[48].unwrap() - want).abs() < 1e-9);
+    }
+
+    #[test]
+    fn smoothing_in_words_and_in_files() {
+        assert_eq!(Smoothing::None.words(), "no smoothing");
+        assert_eq!(Smoothing::Fraction(6).words(), "1/6-octave smoothing");
+        // written as its label and read back, never parsed from words
+        let j = serde_json::to_string(&Smoothing::Fraction(24)).unwrap();
+        assert_eq!(j, "\"1/24\"");
+        assert_eq!(
+            serde_json::from_str::<Smoothing>(&j).unwrap(),
+            Smoothing::Fraction(24)
+        );
+        assert!(serde_json::from_str::<Smoothing>("\"1/5\"").is_err());
     }
 }

@@ -426,17 +426,56 @@ pub struct CompareResponse {
     /// Each input's own smoothing.
     #[serde(default)]
     pub input_smoothing: Vec<Smoothing>,
-    /// The smoothing `--smooth` asked for, if any: each response was
-    /// taken again from its impulse response at it, or (an average) smoothed
-    /// further on the grid.
+    /// The smoothing `--smooth` asked for, if any.
     #[serde(default)]
     pub further_smoothing: Option<Smoothing>,
+    /// How the curves got their smoothing.
+    #[serde(default)]
+    pub smoothing_method: SmoothingMethod,
     /// Grid frequencies, Hz.
     pub frequency_hz: Vec<f64>,
     /// Per input, the magnitude in dB (`null` where it has none).
     pub magnitude_db: Vec<Vec<Option<f64>>>,
     /// Per input, its magnitude minus the first's, dB (the first: zeros).
     pub difference_db: Vec<Vec<Option<f64>>>,
+}
+
+/// How the responses of a comparison got their smoothing.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum SmoothingMethod {
+    /// As each input was analysed.
+    #[default]
+    AsAnalysed,
+    /// Taken again from each input's impulse response at the further
+    /// smoothing (exact, finer or coarser).
+    FromImpulse,
+    /// Smoothed further on the log grid (an average has no impulse
+    /// response).
+    FurtherOnGrid,
+}
+
+impl CompareResponse {
+    /// The curves' smoothing in words, from the typed fields.
+    pub fn smoothing_words(&self) -> String {
+        let own = || {
+            let labels: Vec<String> = self.input_smoothing.iter().map(|s| s.label()).collect();
+            let mut distinct = labels.clone();
+            distinct.dedup();
+            distinct.join(", ")
+        };
+        match (self.smoothing_method, self.further_smoothing) {
+            (SmoothingMethod::FromImpulse, Some(s)) => s.words(),
+            (SmoothingMethod::FurtherOnGrid, Some(s)) => {
+                format!("{s}-octave smoothing of the {}-octave curves", own())
+            }
+            _ => match self.input_smoothing.as_slice() {
+                [first, rest @ ..] if rest.iter().all(|s| s == first) => first.words(),
+                [] => "smoothing as analysed".into(),
+                _ => format!("each input's own smoothing ({})", own()),
+            },
+        }
+    }
 }
 
 /// One parameter of one band across the inputs. Arrays hold one entry per
@@ -547,5 +586,33 @@ impl Comparison {
                 })
                 .collect();
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_comparison_says_its_smoothing_in_words_from_the_typed_fields() {
+        let mut r = CompareResponse {
+            input_smoothing: vec![Smoothing::Fraction(6), Smoothing::Fraction(6)],
+            ..CompareResponse::default()
+        };
+        assert_eq!(r.smoothing_words(), "1/6-octave smoothing");
+        r.further_smoothing = Some(Smoothing::Fraction(3));
+        r.smoothing_method = SmoothingMethod::FurtherOnGrid;
+        assert_eq!(
+            r.smoothing_words(),
+            "1/3-octave smoothing of the 1/6-octave curves"
+        );
+        r.smoothing_method = SmoothingMethod::FromImpulse;
+        assert_eq!(r.smoothing_words(), "1/3-octave smoothing");
+        r.smoothing_method = SmoothingMethod::AsAnalysed;
+        r.input_smoothing[1] = Smoothing::Fraction(24);
+        assert_eq!(
+            r.smoothing_words(),
+            "each input's own smoothing (1/6, 1/24)"
+        );
     }
 }

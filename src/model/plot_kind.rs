@@ -4,7 +4,7 @@
 //! Adding a plot is adding a variant here (and its chart in `plot`); the
 //! folder writers, the report's order and its captions follow from it.
 
-use super::units::{hz, num, smoothing_words};
+use super::units::{hz, num};
 
 /// Whether this build of gliss draws plots (the `plots` cargo feature).
 /// Without it, the folder writers skip the PNGs and record
@@ -48,7 +48,8 @@ pub enum PlotKind {
 /// folder has; a caption uses only the facts of its own kind.
 #[derive(Debug, Clone, Default)]
 pub struct CaptionFacts<'a> {
-    /// The response's smoothing label ("none", "1/6", "1/3 of 1/24").
+    /// The response's smoothing in words ("1/6-octave smoothing", "no
+    /// smoothing"), as `Smoothing::words` says it.
     pub smoothing: &'a str,
     /// What 0 dB of the magnitude means, in words.
     pub magnitude_reference: &'a str,
@@ -177,7 +178,7 @@ impl PlotKind {
             )
         });
         let delay = format!("{} ms", num(f.delay_s * 1e3, 3));
-        let smoothing = smoothing_words(f.smoothing);
+        let smoothing = f.smoothing;
         match self {
             PlotKind::Response => format!(
                 "Frequency response: level against frequency with {smoothing}; {}.{gate}",
@@ -310,7 +311,7 @@ mod tests {
     #[test]
     fn captions_say_the_facts() {
         let f = CaptionFacts {
-            smoothing: "1/6",
+            smoothing: "1/6-octave smoothing",
             magnitude_reference: "0 dB = the recording equals the sweep",
             gate_hz: Some((200.0, 20_000.0)),
             delay_s: 0.002_5,

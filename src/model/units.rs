@@ -1,4 +1,4 @@
-//! Numbers as people read them: frequencies, times, decimals, smoothing.
+//! Numbers as people read them: frequencies, times, decimals.
 //!
 //! Plain text formats shared by the plots, the terminal and the report;
 //! nothing here draws.
@@ -71,19 +71,6 @@ pub fn trim(v: f64, decimals: usize) -> String {
     }
 }
 
-/// A smoothing label of a results file in words: "none" → "no smoothing",
-/// "1/6" → "1/6-octave smoothing", "1/3 of 1/24" (an average smoothed
-/// further) → "1/3-octave smoothing of the 1/24-octave curves".
-pub fn smoothing_words(s: &str) -> String {
-    if s == "none" {
-        "no smoothing".into()
-    } else if let Some((outer, inner)) = s.split_once(" of ") {
-        format!("{outer}-octave smoothing of the {inner}-octave curves")
-    } else {
-        format!("{s}-octave smoothing")
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -112,14 +99,8 @@ mod tests {
     }
 
     #[test]
-    fn times_and_smoothing_in_words() {
+    fn times_in_words() {
         assert_eq!(seconds(0.35), "350 ms");
         assert_eq!(seconds(1.254), "1.25 s");
-        assert_eq!(smoothing_words("none"), "no smoothing");
-        assert_eq!(smoothing_words("1/6"), "1/6-octave smoothing");
-        assert_eq!(
-            smoothing_words("1/3 of 1/24"),
-            "1/3-octave smoothing of the 1/24-octave curves"
-        );
     }
 }

@@ -7,7 +7,6 @@ use plotters::prelude::*;
 use super::axes::{db_range, draw_log_panel};
 use super::theme::{BLUE, canvas, plot_error};
 use crate::error::Result;
-use crate::model::units::smoothing_words;
 
 /// The average of several positions over the positions themselves.
 pub fn average_response_png(
@@ -54,7 +53,7 @@ pub fn average_response_png(
         &body,
         (f1, f2),
         (lo, hi),
-        &format!("Magnitude (dB), {}", smoothing_words(smoothing)),
+        &format!("Magnitude (dB), {smoothing}"),
         true,
         None,
         &series,

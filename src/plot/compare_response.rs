@@ -5,7 +5,6 @@ use std::path::Path;
 use super::axes::{TargetOverlay, db_range, draw_log_panel};
 use super::theme::{canvas, input_colour, plot_error};
 use crate::error::Result;
-use crate::model::units::smoothing_words;
 
 /// The responses of a comparison over each other.
 pub fn compare_response_png(
@@ -41,7 +40,7 @@ pub fn compare_response_png(
         &body,
         (f1, f2),
         (lo, hi),
-        &format!("Magnitude (dB), {}", smoothing_words(smoothing)),
+        &format!("Magnitude (dB), {smoothing}"),
         true,
         None,
         &series,

@@ -105,7 +105,7 @@ pub fn draw_measurement(
             f,
             &a.response.magnitude_db,
             &a.response.phase_deg,
-            &a.response.smoothing.label(),
+            &a.response.smoothing.words(),
             a.gate.map(|g| (g.resolution_hz, g.resolved_to_hz)),
             input.target,
         ),
@@ -154,7 +154,7 @@ pub struct AveragePlotInput<'a> {
     pub positions: &'a [(String, Vec<f64>)],
     /// The power average on the grid, dB.
     pub average: &'a [f64],
-    /// The average's smoothing label ("1/6", "1/3 of 1/24", "none").
+    /// The average's smoothing in words.
     pub smoothing: &'a str,
     /// The averaged bands (with their spread over the positions).
     pub bands: &'a [BandResult],
@@ -202,7 +202,7 @@ pub struct ComparisonPlotInput<'a> {
     /// Each input but the reference: its label and its magnitude minus
     /// the reference's, dB.
     pub differences: &'a [(String, Vec<f64>)],
-    /// The responses' smoothing label.
+    /// The responses' smoothing in words.
     pub smoothing: &'a str,
     /// A target to draw over the responses, if one was given.
     pub target: Option<&'a TargetOverlay>,

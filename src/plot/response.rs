@@ -33,11 +33,6 @@ pub fn response_png(
         }
     }
     let (lo, hi) = db_range(&levels, 10.0, 40.0);
-    let smoothing_label = if smoothing == "none" {
-        "no smoothing".to_string()
-    } else {
-        format!("{smoothing}-octave smoothing")
-    };
     draw_log_panel(
         &top,
         (f1, f2),
@@ -49,7 +44,7 @@ pub fn response_png(
             frequency_hz,
             magnitude_db,
             BLUE,
-            format!("magnitude, {smoothing_label}"),
+            format!("magnitude, {smoothing}"),
         )],
         target,
     )

@@ -234,14 +234,7 @@ mod tests {
             kind: FolderKind::Comparison,
             inputs: vec![input("before"), input("after")],
             common_band_hz: [20.0, 20000.0],
-            response: CompareResponse {
-                smoothing: "1/6".into(),
-                input_smoothing: Vec::new(),
-                further_smoothing: None,
-                frequency_hz: Vec::new(),
-                magnitude_db: Vec::new(),
-                difference_db: Vec::new(),
-            },
+            response: CompareResponse::default(),
             bands: vec![BandRow {
                 center_hz: 31.5,
                 fraction: Fraction::Octave,

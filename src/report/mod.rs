@@ -397,7 +397,7 @@ fn caption(p: &Plot, m: &Manifest, r: &Results) -> String {
     } else {
         &PlotKind::MEASUREMENT
     };
-    let smoothing = r.response.smoothing.label();
+    let smoothing = r.response.smoothing.words();
     let facts = CaptionFacts {
         smoothing: &smoothing,
         magnitude_reference: &r.response.magnitude_reference,

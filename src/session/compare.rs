@@ -14,7 +14,7 @@ use crate::error::{Error, ErrorKind, Result};
 use crate::folder::schema::{
     AbsorptionRow, AverageRecord, BandRow, CompareResponse, CompareTarget, Comparison,
     ComparisonManifest, FileEntry, FolderKind, InputRecord, Manifest, ResponseRecord, Results,
-    SCHEMA_VERSION, Settings, Source,
+    SCHEMA_VERSION, Settings, SmoothingMethod, Source,
 };
 use crate::folder::{self, MeasurementFolder};
 use crate::model::plot_kind::PLOTS_BUILT;
@@ -485,7 +485,7 @@ fn draw_average_plots(
             )
         })
         .collect();
-    let smoothing = results.response.smoothing.label();
+    let smoothing = results.response.smoothing.words();
     let input = plot::AveragePlotInput {
         title: &title,
         frequency_hz: grid,
@@ -621,6 +621,7 @@ fn compare_responses(
     };
     let mut mags = on_grid(inputs, &grid, |r| &r.magnitude_db);
     let mut smoothing = own.clone();
+    let mut smoothing_method = SmoothingMethod::AsAnalysed;
     if let Some(want) = want {
         if inputs.iter().all(|i| i.results.impulse.is_some()) {
             // every input keeps its impulse response: smooth each again from
@@ -637,6 +638,7 @@ fn compare_responses(
                 })
                 .collect::<Result<Vec<_>>>()?;
             smoothing = want.label();
+            smoothing_method = SmoothingMethod::FromImpulse;
         } else if want == Smoothing::None {
             return Err(Error::parameter(
                 "--smooth none needs every folder's impulse response, and an average has none; leave --smooth out, or give a fraction such as 1/3",
@@ -655,6 +657,7 @@ fn compare_responses(
             if want.octaves() > widest + 1e-9 {
                 mags = mags.iter().map(|m| smooth_on_log_grid(m, n)).collect();
                 smoothing = format!("1/{n} of {own}");
+                smoothing_method = SmoothingMethod::FurtherOnGrid;
             }
         }
     }
@@ -671,6 +674,7 @@ fn compare_responses(
         smoothing,
         input_smoothing,
         further_smoothing: want,
+        smoothing_method,
         frequency_hz: grid,
         magnitude_db: mags,
         difference_db,
@@ -878,7 +882,7 @@ fn draw_comparison_plots(
         frequency_hz: &cmp.response.frequency_hz,
         responses: &curves,
         differences: &diffs,
-        smoothing: &cmp.response.smoothing,
+        smoothing: &cmp.response.smoothing_words(),
         target: overlay.as_ref(),
         bands: &bands,
         mark_label: "ring: audible (beyond the 5 % JND and the uncertainty)",
