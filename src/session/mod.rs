@@ -678,6 +678,33 @@ pub fn results_record(a: &Analysis) -> Results {
     }
 }
 
+/// The analysis settings a manifest records, from what chose them: the
+/// analysis configuration, whether plots are drawn (with [`PLOTS_BUILT`]
+/// already applied), and the files and drive given. One builder for every
+/// manifest of a measurement, finished or not.
+pub fn settings_record(
+    config: &AnalysisConfig,
+    plots: bool,
+    mic_correction: Option<&FileEntry>,
+    calibration: Option<&FileEntry>,
+    drive: Option<crate::analysis::calibration::Drive>,
+    target: Option<&TargetJob>,
+) -> Settings {
+    Settings {
+        smoothing: config.smoothing,
+        plots,
+        harmonics: config.harmonics,
+        bands: config.bands,
+        mic_correction: mic_correction.cloned(),
+        calibration: calibration.cloned(),
+        volts_per_fs: drive.map(|d| d.volts_per_fs),
+        distance_m: drive.and_then(|d| d.distance_m),
+        target: target.map(|t| t.file.clone()),
+        target_range_hz: target.and_then(|t| t.range.map(|r| [r.0, r.1])),
+        target_absolute: target.is_some_and(|t| t.absolute),
+    }
+}
+
 /// Pretty JSON with a final newline.
 pub fn to_json<T: serde::Serialize>(v: &T) -> Result<Vec<u8>> {
     let mut s = serde_json::to_vec_pretty(v)
