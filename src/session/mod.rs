@@ -408,22 +408,14 @@ fn write_tables(
 
 /// The settings a job analysed with, for the manifest.
 pub fn job_settings(job: &Job, plots: bool) -> Settings {
-    Settings {
-        smoothing: job.config.smoothing,
+    settings_record(
+        &job.config,
         plots,
-        harmonics: job.config.harmonics,
-        bands: job.config.bands,
-        mic_correction: job.mic_correction.clone(),
-        calibration: job.calibration.as_ref().map(|c| c.1.clone()),
-        volts_per_fs: job.drive.map(|d| d.volts_per_fs),
-        distance_m: job.drive.and_then(|d| d.distance_m),
-        target: job.target.as_ref().map(|t| t.file.clone()),
-        target_range_hz: job
-            .target
-            .as_ref()
-            .and_then(|t| t.range.map(|r| [r.0, r.1])),
-        target_absolute: job.target.as_ref().is_some_and(|t| t.absolute),
-    }
+        job.mic_correction.as_ref(),
+        job.calibration.as_ref().map(|c| &c.1),
+        job.drive,
+        job.target.as_ref(),
+    )
 }
 
 /// The manifest of a finished job, listing `files`.
