@@ -6,7 +6,8 @@ use clap::Args as ClapArgs;
 
 use crate::cli::common::{self, OutputArgs};
 use gliss::error::{Error, Result};
-use gliss::session::{self, Job, records::Source, sweep_file};
+use gliss::folder::schema::Source;
+use gliss::session::{self, Job, sweep_file};
 use gliss::signal::wav::{self, decode_wav};
 
 /// Options of `gliss analyze`.

@@ -10,9 +10,9 @@ use gliss::analysis::gate::Gate;
 use gliss::analysis::target::Target;
 use gliss::analysis::{AnalysisConfig, Smoothing, distortion};
 use gliss::error::{Error, Result};
+use gliss::folder::schema::FileEntry;
+use gliss::folder::sha256_hex;
 use gliss::session::TargetJob;
-use gliss::session::folder::sha256_hex;
-use gliss::session::records::FileEntry;
 use gliss::signal::sweep::{SweepDesign, SweepParams};
 
 /// The refusal of a command that needs the sound card in a build without

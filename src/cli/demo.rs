@@ -8,8 +8,9 @@ use crate::cli::common::{self, OutputArgs, SweepArgs};
 use gliss::audio::virtual_system::VirtualSystem;
 use gliss::audio::{NoSink, PlayRecord, Playback};
 use gliss::error::{Error, Result};
+use gliss::folder::schema::Source;
 use gliss::session::compare::{self, AverageJob, CompareJob};
-use gliss::session::{self, Job, Outcome, records::Source};
+use gliss::session::{self, Job, Outcome};
 use gliss::signal::wav::{SampleEncoding, decode_wav, encode_wav};
 
 /// Options of `gliss demo`.

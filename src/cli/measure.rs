@@ -342,8 +342,6 @@ pub fn run(a: Args) -> Result<()> {
 }
 
 /// The measurement record of the folder just written.
-fn outcome_measurement(
-    dir: &std::path::Path,
-) -> Option<gliss::session::records::MeasurementRecord> {
+fn outcome_measurement(dir: &std::path::Path) -> Option<gliss::folder::schema::MeasurementRecord> {
     gliss::folder::read_manifest(dir).ok()?.measurement
 }

@@ -8,7 +8,7 @@ use clap::Args as ClapArgs;
 
 use crate::cli::common::SweepArgs;
 use gliss::error::{Error, ErrorKind, Result};
-use gliss::session::folder::sha256_hex;
+use gliss::folder::sha256_hex;
 use gliss::session::sweep_file::{self, SweepFile, WavInfo};
 use gliss::signal::wav::{self, SampleEncoding};
 

@@ -17,7 +17,7 @@ use crate::analysis::{self, ImpulsePlacement, Smoothing};
 use crate::error::{Error, ErrorKind, Result};
 use crate::signal::wav::decode_wav;
 
-use super::records::{Manifest, Results};
+use crate::folder::schema::{Manifest, Results};
 use crate::folder::sha256_hex;
 use crate::model::Parameter;
 
@@ -336,7 +336,7 @@ pub fn table(m: &Measurement, what: What, smooth: Option<Smoothing>) -> Result<T
 }
 
 /// Where the impulse response is; an average has none.
-fn impulse_record(m: &Measurement) -> Result<&crate::session::records::ImpulseRecord> {
+fn impulse_record(m: &Measurement) -> Result<&crate::folder::schema::ImpulseRecord> {
     m.results.impulse.as_ref().ok_or_else(|| {
         Error::input(format!(
             "{} is an average over positions and has no impulse response; export it from one of the position folders, or export the response as it is (without --smooth)",
@@ -540,7 +540,7 @@ pub fn to_json(t: &Table, m: &Measurement) -> Result<Vec<u8>> {
     }
     let mut out = json!({
         "format": "gliss export",
-        "schema_version": super::records::SCHEMA_VERSION,
+        "schema_version": crate::folder::schema::SCHEMA_VERSION,
         "what": t.what.label(),
         "source": {
             "folder": m.dir.display().to_string(),

@@ -11,11 +11,11 @@ use std::sync::atomic::AtomicBool;
 use crate::analysis::AnalysisConfig;
 use crate::audio::{Capture, PlayRecord, Playback, Progress, RawSink};
 use crate::error::{Error, ErrorKind, Result};
-use crate::model::Code;
-use crate::session::folder::{self, MeasurementFolder};
-use crate::session::records::{
+use crate::folder::schema::{
     FileEntry, Manifest, MeasurementRecord, SCHEMA_VERSION, Source, TakeRecord,
 };
+use crate::folder::{self, MeasurementFolder};
+use crate::model::Code;
 use crate::session::{Job, Outcome, analyse_into, settings_record, to_json};
 use crate::signal::sweep::SweepDesign;
 use crate::signal::wav::{SampleEncoding, WavData, decode_wav, encode_wav};

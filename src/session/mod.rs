@@ -6,11 +6,6 @@ pub mod export;
 pub mod measure;
 pub mod sweep_file;
 
-// the folder's schema and writer live in `crate::folder`; these paths are
-// kept for the command line and the tests
-pub use crate::folder::schema as records;
-pub use crate::folder::write as folder;
-
 use std::path::{Path, PathBuf};
 
 use crate::analysis::target::{self, Target};
@@ -24,8 +19,8 @@ use crate::plot;
 use crate::signal::sweep::SweepDesign;
 use crate::signal::wav::{self, SampleEncoding, WavData};
 
-use folder::MeasurementFolder;
-use records::{
+use crate::folder::MeasurementFolder;
+use crate::folder::schema::{
     FileEntry, ImpulseRecord, Manifest, ResponseRecord, Results, SCHEMA_VERSION, SensitivityRecord,
     Settings, Source, TargetRecord,
 };
@@ -67,7 +62,7 @@ pub struct Job {
     /// is then divided by it instead of the sweep as written.
     pub reference: Option<usize>,
     /// How a device measurement ran, for the manifest.
-    pub measurement: Option<records::MeasurementRecord>,
+    pub measurement: Option<crate::folder::schema::MeasurementRecord>,
     /// The drive voltage and microphone distance for a sensitivity (only
     /// with a calibration).
     pub drive: Option<crate::analysis::calibration::Drive>,
@@ -354,7 +349,7 @@ fn write_raw_files(job: &Job, folder: &MeasurementFolder) -> Result<Vec<FileEntr
     .map(|(name, bytes)| {
         Ok(FileEntry {
             name: name.into(),
-            role: records::FileRole::Raw,
+            role: crate::folder::schema::FileRole::Raw,
             sha256: folder.write_raw(name, bytes)?,
         })
     })

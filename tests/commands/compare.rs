@@ -127,7 +127,7 @@ fn the_average_is_the_power_mean_and_the_band_values_their_mean_and_spread() {
     let manifest_a = std::fs::read(d.join("a/manifest.json")).unwrap();
     assert_eq!(
         inputs[0]["sha256"].as_str().unwrap(),
-        gliss::session::folder::sha256_hex(&manifest_a)
+        gliss::folder::sha256_hex(&manifest_a)
     );
     assert_eq!(abc["average"]["positions"], 3);
     assert_eq!(abc["average"]["grade"], "survey");

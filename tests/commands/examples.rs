@@ -252,7 +252,7 @@ fn the_committed_folders_hold_what_their_manifests_say() {
             let bytes = std::fs::read(d.join(f["name"].as_str().unwrap())).unwrap();
             assert_eq!(
                 f["sha256"].as_str().unwrap(),
-                gliss::session::folder::sha256_hex(&bytes),
+                gliss::folder::sha256_hex(&bytes),
                 "{}/{}",
                 d.display(),
                 f["name"]

@@ -282,7 +282,7 @@ fn assert_honest_leftovers(dir: &Path, frames: usize, why: &str) {
         let bytes = std::fs::read(dir.join(name)).unwrap();
         assert_eq!(
             f["sha256"].as_str().unwrap(),
-            gliss::session::folder::sha256_hex(&bytes),
+            gliss::folder::sha256_hex(&bytes),
             "{name}"
         );
     }
