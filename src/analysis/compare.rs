@@ -257,6 +257,15 @@ pub struct Changes {
 /// unknown). A change exceeds the uncertainty when it is larger than twice
 /// the combined standard uncertainty √(u₀² + u²) (a coverage factor of 2,
 /// common practice).
+///
+/// ```
+/// use gliss::analysis::compare::{Verdict, judge};
+/// use gliss::model::Parameter;
+/// // T30 1.14 s → 1.06 s is 7 %, beyond the 5 % just-noticeable
+/// // difference, but each value is only known to ±0.06 s
+/// let c = judge(Parameter::T30, &[Some(1.14), Some(1.06)], &[Some(0.06), Some(0.06)]);
+/// assert_eq!(c.verdict[1], Some(Verdict::WithinUncertainty));
+/// ```
 pub fn judge(parameter: Parameter, values: &[Option<f64>], uncertainty: &[Option<f64>]) -> Changes {
     let mut out = Changes {
         change: vec![None],

@@ -84,6 +84,22 @@ pub struct OpenOptions {
 
 /// Opens a folder that gliss wrote: it must be complete and its raw files
 /// must be the ones its manifest recorded.
+///
+/// ```
+/// use gliss::model::{Fraction, Parameter};
+/// let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+///     .join("measurements/rehearsal-room/before-1");
+/// let f = gliss::folder::open(&dir)?;
+/// let (_, results) = f.measurement("give a measurement folder")?;
+/// let t30_1k = results
+///     .bands
+///     .iter()
+///     .find(|b| b.is(Fraction::Octave, 1000.0))
+///     .and_then(|b| b.get(Parameter::T30))
+///     .expect("the example room has a T30 at 1 kHz");
+/// assert!(t30_1k > 0.3 && t30_1k < 1.0);
+/// # Ok::<(), gliss::Error>(())
+/// ```
 pub fn open(dir: &Path) -> Result<Folder> {
     open_with(dir, OpenOptions::default())
 }
