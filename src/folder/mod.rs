@@ -183,6 +183,7 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
             "{name}/results.json is not a gliss results file ({e}); analyse its raw files again (gliss analyze ... --overwrite)"
         ))
     })?;
+    check_consistent(dir, &manifest, &results)?;
     Ok(Folder {
         dir: dir.to_path_buf(),
         kind: manifest.kind.unwrap_or(FolderKind::Measurement),
@@ -210,6 +211,26 @@ pub fn read_manifest(dir: &Path) -> Result<Manifest> {
             path.display()
         ))
     })
+}
+
+/// A manifest and results that contradict each other, or a rate no sound
+/// card records at, are a folder that lies: refused, naming what.
+fn check_consistent(dir: &Path, m: &Manifest, r: &Results) -> Result<()> {
+    let name = dir.display();
+    let (lo, hi) = crate::signal::sweep::RATE_RANGE_HZ;
+    if m.sample_rate_hz != r.sample_rate_hz || !(lo..=hi).contains(&r.sample_rate_hz) {
+        return Err(Error::input(format!(
+            "{name} does not hold together: its manifest says {} Hz and its results {} Hz (gliss measures at {lo} to {hi} Hz); analyse its raw files again into a new folder",
+            m.sample_rate_hz, r.sample_rate_hz
+        )));
+    }
+    if m.sweep.params.sample_rate_hz != m.sample_rate_hz {
+        return Err(Error::input(format!(
+            "{name} does not hold together: its sweep is at {} Hz but the folder at {} Hz; analyse its raw files again into a new folder",
+            m.sweep.params.sample_rate_hz, m.sample_rate_hz
+        )));
+    }
+    Ok(())
 }
 
 /// Reads `file` of the folder with its SHA-256; `redo` says how to make it

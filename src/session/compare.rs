@@ -251,6 +251,7 @@ pub struct Written {
 pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
     check_average_job(job)?;
     let inputs = read_inputs(&job.inputs, &job.labels)?;
+    refuse_repeated_positions(&inputs)?;
     if inputs.iter().any(|i| i.results.average.is_some()) {
         return Err(Error::input(
             "one of the folders is already an average; average the position folders themselves",
@@ -261,6 +262,40 @@ pub fn average(job: &AverageJob) -> Result<(Results, Written)> {
     let files = write_average(job, &folder, &inputs, &results)?;
     let warnings = results.warnings.clone();
     Ok((results, Written { files, warnings }))
+}
+
+/// An average counts each position once: the same folder given twice, or
+/// two folders holding the same recording (a copy), are refused by name.
+fn refuse_repeated_positions(inputs: &[Input]) -> Result<()> {
+    let recording = |i: &Input| {
+        i.manifest
+            .files
+            .iter()
+            .find(|f| f.name == "recording.wav")
+            .map(|f| f.sha256.clone())
+    };
+    for (k, a) in inputs.iter().enumerate() {
+        for b in &inputs[..k] {
+            let same_folder = match (a.dir.canonicalize(), b.dir.canonicalize()) {
+                (Ok(x), Ok(y)) => x == y,
+                _ => a.dir == b.dir,
+            };
+            let same_recording = recording(a).is_some() && recording(a) == recording(b);
+            if same_folder || same_recording {
+                return Err(Error::input(format!(
+                    "{} and {} are the same measurement ({}); an average counts each microphone position once: give each position's folder once",
+                    b.dir.display(),
+                    a.dir.display(),
+                    if same_folder {
+                        "the same folder"
+                    } else {
+                        "the same recording.wav"
+                    }
+                )));
+            }
+        }
+    }
+    Ok(())
 }
 
 /// The counts `gliss average` needs, checked before anything is read.

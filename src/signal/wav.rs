@@ -69,10 +69,13 @@ pub fn read_wav(path: &Path, what: &str) -> Result<WavData> {
 pub fn decode_wav(bytes: &[u8]) -> crate::Result<WavData> {
     let reader =
         hound::WavReader::new(Cursor::new(bytes)).map_err(|e| Error::input(describe_hound(e)))?;
-    read_all(reader)
+    read_all(reader, bytes.len())
 }
 
-fn read_all<R: Read>(reader: hound::WavReader<R>) -> crate::Result<WavData> {
+/// Reads every sample; `available` is the number of bytes the file has, so
+/// that a header promising more data than there is cannot make gliss
+/// reserve memory for it.
+fn read_all<R: Read>(reader: hound::WavReader<R>, available: usize) -> crate::Result<WavData> {
     let spec = reader.spec();
     let nch = usize::from(spec.channels);
     if nch == 0 {
@@ -91,7 +94,9 @@ fn read_all<R: Read>(reader: hound::WavReader<R>) -> crate::Result<WavData> {
         }
         hound::SampleFormat::Int => SampleEncoding::Int(spec.bits_per_sample),
     };
-    let mut interleaved: Vec<f64> = Vec::with_capacity(expected);
+    // no more samples than the bytes could hold, whatever the header says
+    let bytes_per_sample = usize::from(spec.bits_per_sample).div_ceil(8).max(1);
+    let mut interleaved: Vec<f64> = Vec::with_capacity(expected.min(available / bytes_per_sample));
     let truncated = |got: usize| {
         format!(
             "is truncated: its header promises {} frames but the data ends after {}; export or copy the file again",

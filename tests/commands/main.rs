@@ -13,6 +13,7 @@ mod examples;
 mod export;
 mod features;
 mod measure;
+mod mistakes;
 mod report;
 mod sensitivity;
 #[cfg(feature = "soundcard")]

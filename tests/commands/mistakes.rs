@@ -1,0 +1,145 @@
+//! Everyday mistakes that must be refused with one clear line and change
+//! nothing: one position given twice to an average, a folder whose
+//! manifest contradicts itself or lost a raw file, a WAV whose header
+//! promises far more data than the file holds.
+
+use std::path::Path;
+use std::process::Command;
+
+use crate::util::{json, make_sweep, ok, refused, snapshot};
+
+fn two_positions(dir: &Path) {
+    for (name, seed) in [("a", "1"), ("b", "2")] {
+        ok(
+            dir,
+            &[
+                "demo",
+                "--single",
+                "--out",
+                name,
+                "--no-plots",
+                "--seed",
+                seed,
+            ],
+        );
+    }
+}
+
+/// Copies the folder `from` to `to` (files one level deep and plots/).
+fn copy_folder(from: &Path, to: &Path) {
+    std::fs::create_dir_all(to.join("plots")).unwrap();
+    for e in std::fs::read_dir(from).unwrap().flatten() {
+        if e.path().is_file() {
+            std::fs::copy(e.path(), to.join(e.file_name())).unwrap();
+        }
+    }
+}
+
+#[test]
+fn an_average_counts_each_position_once() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    two_positions(d);
+    copy_folder(&d.join("a"), &d.join("a-copy"));
+    let before = snapshot(d);
+    let line = refused(d, &["average", "a", "b", "a", "--out", "avg"]);
+    assert!(
+        line.contains("same measurement") && line.contains("the same folder"),
+        "{line}"
+    );
+    let line = refused(d, &["average", "a", "a-copy", "--out", "avg"]);
+    assert!(line.contains("the same recording.wav"), "{line}");
+    assert_eq!(snapshot(d), before, "nothing written");
+    // two different positions still average
+    ok(d, &["average", "a", "b", "--out", "avg", "--no-plots"]);
+}
+
+#[test]
+fn a_folder_whose_manifest_lies_is_refused_by_every_reader() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    two_positions(d);
+    // a sample rate no sound card records at
+    let mut m = json(&d.join("a/manifest.json"));
+    m["sample_rate_hz"] = 7.into();
+    std::fs::write(d.join("a/manifest.json"), m.to_string()).unwrap();
+    // a raw file the manifest lists but that is gone
+    std::fs::remove_file(d.join("b/recording.wav")).unwrap();
+    let before = snapshot(d);
+    for args in [
+        vec!["average", "a", "b", "--out", "x"],
+        vec!["compare", "a", "b", "--out", "x"],
+        vec!["export", "a", "--what", "bands", "--out", "x.csv"],
+        vec!["report", "a", "--out", "x.html"],
+    ] {
+        let line = refused(d, &args);
+        assert!(
+            line.contains("a does not hold together") && line.contains("7 Hz"),
+            "{args:?}: {line}"
+        );
+    }
+    for args in [
+        vec!["export", "b", "--what", "bands", "--out", "x.csv"],
+        vec!["report", "b", "--out", "x.html"],
+    ] {
+        let line = refused(d, &args);
+        assert!(
+            line.contains("recording.wav is missing"),
+            "{args:?}: {line}"
+        );
+    }
+    assert_eq!(snapshot(d), before, "nothing written");
+}
+
+/// A 16-bit mono WAV of `frames` samples whose header claims `claimed`
+/// bytes of data.
+fn lying_wav(frames: usize, claimed: u32) -> Vec<u8> {
+    let data: Vec<u8> = (0..frames)
+        .flat_map(|i| (((i % 64) as i16 - 32) * 100).to_le_bytes())
+        .collect();
+    let mut w = Vec::new();
+    w.extend_from_slice(b"RIFF");
+    w.extend_from_slice(&claimed.saturating_add(36).to_le_bytes());
+    w.extend_from_slice(b"WAVEfmt ");
+    w.extend_from_slice(&16u32.to_le_bytes());
+    w.extend_from_slice(&1u16.to_le_bytes()); // PCM
+    w.extend_from_slice(&1u16.to_le_bytes()); // mono
+    w.extend_from_slice(&48_000u32.to_le_bytes());
+    w.extend_from_slice(&96_000u32.to_le_bytes());
+    w.extend_from_slice(&2u16.to_le_bytes());
+    w.extend_from_slice(&16u16.to_le_bytes());
+    w.extend_from_slice(b"data");
+    w.extend_from_slice(&claimed.to_le_bytes());
+    w.extend_from_slice(&data);
+    w
+}
+
+#[cfg(unix)]
+#[test]
+fn a_header_promising_gigabytes_gets_the_truncated_error_within_a_memory_limit() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    make_sweep(d, "sweep.wav", &[]);
+    // 4 kB of samples, a header promising 4 GB
+    std::fs::write(d.join("big.wav"), lying_wav(2048, 0xFFFF_FF00)).unwrap();
+    let before = snapshot(d);
+    // about 1 GB of address space: reserving what the header promises
+    // (8 bytes per sample: 17 GB) would abort instead of refusing
+    let o = Command::new("sh")
+        .current_dir(d)
+        .arg("-c")
+        .arg("ulimit -v 1000000; exec \"$0\" \"$@\"")
+        .arg(env!("CARGO_BIN_EXE_gliss"))
+        .args(["analyze", "big.wav", "--sweep", "sweep.wav", "--out", "x"])
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(1), "{err}");
+    let lines: Vec<&str> = err.lines().collect();
+    assert_eq!(lines.len(), 1, "{err}");
+    assert!(
+        lines[0].starts_with("error: ") && lines[0].contains("truncated"),
+        "{err}"
+    );
+    assert_eq!(snapshot(d), before, "nothing written");
+}
