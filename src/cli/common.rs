@@ -110,7 +110,7 @@ pub struct OutputArgs {
     pub profile: Profile,
     /// Fractional-octave smoothing of the frequency response: 1/1, 1/2,
     /// 1/3, 1/6, 1/12, 1/24, 1/48, or none [default: 1/6, speaker 1/12].
-    #[arg(long, value_name = "1/N|none")]
+    #[arg(long, value_name = "1/N|none", allow_hyphen_values = true)]
     pub smooth: Option<String>,
     /// Separate the harmonic distortion orders 2..N from the same sweep
     /// (N up to 9); 1 analyses the linear response only.

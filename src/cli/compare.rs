@@ -35,7 +35,7 @@ pub struct Args {
     /// Smooth the responses for the overlay, e.g. 1/3 or none: each is
     /// taken again from its impulse.wav (an average, which has none, can
     /// only be smoothed further) [default: as the folders are].
-    #[arg(long, value_name = "1/N")]
+    #[arg(long, value_name = "1/N", allow_hyphen_values = true)]
     pub smooth: Option<String>,
     /// The room's volume in m³: adds the change of equivalent absorption
     /// area per band.

@@ -48,7 +48,7 @@ pub struct Args {
     /// 1/24, 1/48) or none, from the unsmoothed response taken again from
     /// impulse.wav by the analysis's own stages [default: the response as
     /// results.json holds it, at the folder's smoothing]. Response only.
-    #[arg(long, value_name = "1/N|none")]
+    #[arg(long, value_name = "1/N|none", allow_hyphen_values = true)]
     pub smooth: Option<String>,
     /// csv or json [default: json when --out ends in .json, else csv].
     #[arg(long, value_name = "csv|json")]

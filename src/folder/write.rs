@@ -103,6 +103,16 @@ impl MeasurementFolder {
     /// Creates the folder and its plots/ subfolder.
     pub fn create(&self) -> Result<()> {
         let plots = self.dir.join("plots");
+        // a link named plots would send the PNGs outside the folder
+        if fs::symlink_metadata(&plots).is_ok_and(|m| m.file_type().is_symlink()) {
+            return Err(Error::new(
+                ErrorKind::AlreadyExists,
+                format!(
+                    "{} is a link to another place; gliss writes only inside the measurement folder: remove the link, or choose another --out",
+                    plots.display()
+                ),
+            ));
+        }
         fs::create_dir_all(&plots).map_err(|e| Error::io("create the folder", &plots, &e))
     }
 
@@ -211,5 +221,20 @@ mod tests {
         // and with it, only when the raw files agree
         assert!(MeasurementFolder::check(&dir, true, &[("recording.wav", b"one")]).is_ok());
         assert!(MeasurementFolder::check(&dir, true, &[("recording.wav", b"two")]).is_err());
+    }
+
+    #[cfg(unix)]
+    #[test]
+    fn a_plots_link_to_elsewhere_is_refused() {
+        let t = tempfile::tempdir().unwrap();
+        let elsewhere = t.path().join("elsewhere");
+        fs::create_dir(&elsewhere).unwrap();
+        let dir = t.path().join("m");
+        fs::create_dir(&dir).unwrap();
+        std::os::unix::fs::symlink(&elsewhere, dir.join("plots")).unwrap();
+        let f = MeasurementFolder { dir: dir.clone() };
+        let e = f.create().unwrap_err();
+        assert!(e.message().contains("is a link"), "{e}");
+        assert_eq!(fs::read_dir(&elsewhere).unwrap().count(), 0);
     }
 }

@@ -67,6 +67,17 @@ pub fn read_wav(path: &Path, what: &str) -> Result<WavData> {
 /// Decodes WAV bytes; on failure returns the end of a sentence such as
 /// "is not a WAV file".
 pub fn decode_wav(bytes: &[u8]) -> crate::Result<WavData> {
+    // the smallest WAV (RIFF, fmt and data headers) is 44 bytes
+    if bytes.len() < 44 {
+        return Err(Error::input(if bytes.is_empty() {
+            "is empty (0 bytes); record or export it again".to_string()
+        } else {
+            format!(
+                "is {} bytes long, too short to be a WAV file (at least 44); record or export it again",
+                bytes.len()
+            )
+        }));
+    }
     let reader =
         hound::WavReader::new(Cursor::new(bytes)).map_err(|e| Error::input(describe_hound(e)))?;
     read_all(reader, bytes.len())

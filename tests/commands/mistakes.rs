@@ -143,3 +143,47 @@ fn a_header_promising_gigabytes_gets_the_truncated_error_within_a_memory_limit()
     );
     assert_eq!(snapshot(d), before, "nothing written");
 }
+
+#[test]
+fn messages_say_what_was_wrong_in_the_users_terms() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    make_sweep(d, "sweep.wav", &[]);
+    // a file of no bytes at all
+    std::fs::write(d.join("nothing.wav"), b"").unwrap();
+    let line = refused(
+        d,
+        &[
+            "analyze",
+            "nothing.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "x",
+        ],
+    );
+    assert!(line.contains("nothing.wav is empty (0 bytes)"), "{line}");
+    // a negative fraction reaches gliss's own check, not the parser's
+    for args in [
+        vec![
+            "analyze",
+            "sweep.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "x",
+            "--smooth",
+            "-1/3",
+        ],
+        vec![
+            "export", "x", "--what", "response", "--smooth", "-1/3", "--out", "-",
+        ],
+    ] {
+        let line = refused(d, &args);
+        assert!(
+            line.contains("--smooth \"-1/3\" is not understood"),
+            "{args:?}: {line}"
+        );
+    }
+    assert!(!d.join("x").exists());
+}
