@@ -75,6 +75,7 @@ pub fn calibrate(x: &[f64], fs: f64, level_db_spl: f64) -> Result<Calibration> {
             100.0 * band / total.max(f64::MIN_POSITIVE)
         )));
     }
+    check_tone(seg, fs, tone_hz, &power, df)?;
     let p_rms = P_REF_PA * 10f64.powf(level_db_spl / 20.0);
     let pa_per_fs = p_rms / tone_rms_fs;
     Ok(Calibration {
@@ -86,6 +87,79 @@ pub fn calibrate(x: &[f64], fs: f64, level_db_spl: f64) -> Result<Calibration> {
         pa_per_fs,
         full_scale_db_spl: 20.0 * (pa_per_fs / std::f64::consts::SQRT_2 / P_REF_PA).log10(),
     })
+}
+
+/// The most harmonic distortion a calibrator's tone may carry, %:
+/// calibrators are specified at 1 to 2 % or less (common practice), so
+/// more means the input overloads or the calibrator is faulty.
+pub const MAX_TONE_THD_PERCENT: f64 = 3.0;
+/// The most the tone's level may swing over the recording (200 ms blocks,
+/// max − min), dB: a seated calibrator holds its level to about 0.1 dB.
+pub const MAX_TONE_SWING_DB: f64 = 1.0;
+/// The tones calibrators give, Hz: 1 kHz (sound calibrators) and 250 Hz
+/// (pistonphones); common practice.
+pub const CALIBRATOR_TONES_HZ: [f64; 2] = [250.0, 1000.0];
+
+/// Refuses a tone that cannot calibrate: clipped, distorted, unsteady or
+/// at a frequency no calibrator gives, each with the measured figure.
+fn check_tone(seg: &[f64], fs: f64, tone_hz: f64, power: &[f64], df: f64) -> Result<()> {
+    let clipped = seg
+        .iter()
+        .filter(|v| v.abs() >= crate::analysis::CLIP_LEVEL)
+        .count();
+    if clipped > 0 {
+        let peak = seg.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        return Err(Error::input(format!(
+            "the calibrator's tone clips ({clipped} samples at or above -0.1 dBFS, peak {:.2} dBFS); lower the input gain and record the tone again",
+            20.0 * peak.log10()
+        )));
+    }
+    if !CALIBRATOR_TONES_HZ
+        .iter()
+        .any(|&f| (tone_hz / f - 1.0).abs() < 0.05)
+    {
+        return Err(Error::input(format!(
+            "the tone is at {tone_hz:.0} Hz, and calibrators give 1 kHz (or 250 Hz for a pistonphone); check that the recording is of the calibrator"
+        )));
+    }
+    let band_power = |f: f64| -> f64 {
+        let lo = ((f * 2f64.powf(-1.0 / 6.0)) / df) as usize;
+        let hi = (((f * 2f64.powf(1.0 / 6.0)) / df) as usize).min(power.len() - 1);
+        if lo > hi {
+            0.0
+        } else {
+            power[lo..=hi].iter().sum()
+        }
+    };
+    let fundamental = band_power(tone_hz);
+    let harmonics: f64 = (2..=5)
+        .map(|h| f64::from(h) * tone_hz)
+        .filter(|&f| f * 2f64.powf(1.0 / 6.0) < fs / 2.0)
+        .map(band_power)
+        .sum();
+    let thd = 100.0 * (harmonics / fundamental).sqrt();
+    if thd > MAX_TONE_THD_PERCENT {
+        return Err(Error::input(format!(
+            "the calibrator's tone is distorted (THD {thd:.1} %, more than {MAX_TONE_THD_PERCENT} %): the input overloads or the calibrator is faulty; lower the input gain and record it again"
+        )));
+    }
+    let block = ((0.2 * fs) as usize).max(1);
+    let levels: Vec<f64> = seg
+        .chunks_exact(block)
+        .map(|c| 10.0 * (c.iter().map(|v| v * v).sum::<f64>() / c.len() as f64).log10())
+        .collect();
+    let (lo, hi) = levels
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &l| {
+            (a.min(l), b.max(l))
+        });
+    if levels.len() >= 2 && hi - lo > MAX_TONE_SWING_DB {
+        return Err(Error::input(format!(
+            "the calibrator's tone is unsteady (its level swings {:.1} dB over the recording, more than {MAX_TONE_SWING_DB} dB): seat the calibrator firmly on the microphone and record it again",
+            hi - lo
+        )));
+    }
+    Ok(())
 }
 
 impl Calibration {
@@ -244,5 +318,62 @@ mod tests {
         let want = 40.0 * 2f64.log10();
         assert!((s[0] - 80.0 - want).abs() < 1e-9);
         assert!((s[1] - 90.5 - want).abs() < 1e-9);
+    }
+
+    fn tone(f: f64, amp: f64, secs: f64, shape: impl Fn(f64, f64) -> f64) -> Vec<f64> {
+        let fs = 48_000.0;
+        (0..(secs * fs) as usize)
+            .map(|i| {
+                let t = i as f64 / fs;
+                shape(amp * (std::f64::consts::TAU * f * t).sin(), t)
+            })
+            .collect()
+    }
+
+    #[test]
+    fn a_tone_that_cannot_calibrate_is_refused_with_its_figure() {
+        let fs = 48_000.0;
+        // clean: passes, and reads the closed form (a sine of peak 0.1 has
+        // RMS 0.1/√2)
+        let c = calibrate(&tone(1000.0, 0.1, 2.0, |x, _| x), fs, 94.0).unwrap();
+        assert!((c.tone_rms_fs - 0.1 / 2f64.sqrt()).abs() < 1e-3 * 0.1);
+        // clipped at full scale
+        let e = calibrate(&tone(1000.0, 3.0, 2.0, |x, _| x.clamp(-1.0, 1.0)), fs, 94.0)
+            .unwrap_err()
+            .message()
+            .to_string();
+        assert!(e.contains("clips"), "{e}");
+        // 10 % of 3rd harmonic (closed form: THD = 10 %)
+        let e = calibrate(
+            &tone(1000.0, 0.1, 2.0, |x, t| {
+                x + 0.01 * (std::f64::consts::TAU * 3000.0 * t).sin()
+            }),
+            fs,
+            94.0,
+        )
+        .unwrap_err()
+        .message()
+        .to_string();
+        assert!(e.contains("THD 10.0 %"), "{e}");
+        // a 440 Hz tone is no calibrator's
+        let e = calibrate(&tone(440.0, 0.1, 2.0, |x, _| x), fs, 94.0)
+            .unwrap_err()
+            .message()
+            .to_string();
+        assert!(e.contains("440 Hz"), "{e}");
+        // a level that swings ±2 dB at 2 Hz
+        let e = calibrate(
+            &tone(1000.0, 0.1, 2.0, |x, t| {
+                x * 10f64.powf(2.0 * (std::f64::consts::TAU * 2.0 * t).sin() / 20.0)
+            }),
+            fs,
+            94.0,
+        )
+        .unwrap_err()
+        .message()
+        .to_string();
+        assert!(e.contains("unsteady"), "{e}");
+        // a pistonphone's 250 Hz passes
+        assert!(calibrate(&tone(250.0, 0.1, 2.0, |x, _| x), fs, 114.0).is_ok());
     }
 }

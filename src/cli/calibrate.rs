@@ -186,10 +186,10 @@ pub fn run(a: Args) -> Result<()> {
     f.write_all(&json)
         .map_err(|e| Error::io("write", &a.out, &e))?;
     println!(
-        "wrote {}: a {:.1} Hz tone at {:.1} dBFS RMS reads {} dB SPL; 0 dBFS (a full-scale sine) is {:.1} dB SPL",
+        "wrote {}: a {:.1} Hz tone at {:.1} dBFS reads {} dB SPL; a full-scale sine (0 dBFS: dBFS here are RMS re a full-scale sine's RMS) reads {:.1} dB SPL",
         a.out.display(),
         c.tone_hz,
-        20.0 * c.tone_rms_fs.log10(),
+        20.0 * (c.tone_rms_fs * std::f64::consts::SQRT_2).log10(),
         c.level_db_spl,
         c.full_scale_db_spl
     );

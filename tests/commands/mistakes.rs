@@ -187,3 +187,34 @@ fn messages_say_what_was_wrong_in_the_users_terms() {
     }
     assert!(!d.join("x").exists());
 }
+
+#[test]
+fn a_clipped_calibrator_tone_is_refused_with_its_figure() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    // a 1 kHz tone driven 10 dB past full scale and clipped there
+    let clipped: Vec<f64> = (0..96_000)
+        .map(|i| {
+            let x = 3.16 * (std::f64::consts::TAU * 1000.0 * i as f64 / 48_000.0).sin();
+            x.clamp(-1.0, 1.0)
+        })
+        .collect();
+    crate::util::write_wav_f32(&d.join("tone.wav"), 48_000, &[clipped]);
+    let before = snapshot(d);
+    let line = refused(
+        d,
+        &[
+            "calibrate",
+            "tone.wav",
+            "--level",
+            "94",
+            "--out",
+            "cal.json",
+        ],
+    );
+    assert!(
+        line.contains("tone clips") && line.contains("dBFS"),
+        "{line}"
+    );
+    assert_eq!(snapshot(d), before, "no calibration written");
+}
