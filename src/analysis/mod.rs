@@ -19,6 +19,7 @@ pub mod distortion;
 pub mod etc;
 pub mod gate;
 pub mod phase;
+pub mod presence;
 pub mod response;
 pub mod room;
 pub mod smoothing;

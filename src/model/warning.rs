@@ -106,6 +106,9 @@ codes! {
     DistortionHigh = "distortion-high", Problem, Distortion;
     /// The harmonic responses run into the linear one.
     HarmonicOverlap = "harmonic-overlap", Caution, Distortion;
+    /// Another channel of the recording holds the sweep far more clearly
+    /// than the analysed one.
+    OtherChannelClearer = "other-channel-clearer", Caution, Files;
     /// The sweep file differs from the sweep its .json describes.
     SweepFileDiffers = "sweep-file-differs", Caution, Files;
     /// The sensitivity holds at the microphone's distance, not at 1 m.

@@ -168,6 +168,7 @@ pub fn check_inputs(job: &Job) -> Result<Warnings> {
             stim.channels.len()
         )));
     }
+    check_channel(job, &mut warnings)?;
     // the file must hold the sweep its parameters describe (within its
     // quantisation step)
     let want = job.design.generate();
@@ -189,6 +190,44 @@ pub fn check_inputs(job: &Job) -> Result<Warnings> {
         );
     }
     Ok(warnings)
+}
+
+/// Refuses a recording analysed on a channel that holds no sweep while
+/// another does (naming it), and warns where another channel holds the
+/// sweep far more clearly (an undeclared loopback, or the microphone).
+fn check_channel(job: &Job, warnings: &mut Warnings) -> Result<()> {
+    use crate::analysis::presence::{ChannelCheck, check_channels};
+    match check_channels(
+        &job.recording.channels,
+        &job.stimulus.channels[0],
+        job.channel,
+        job.reference,
+    ) {
+        ChannelCheck::Fine => Ok(()),
+        ChannelCheck::Wrong { analysed, other } => Err(Error::input(format!(
+            "channel {} of the recording holds no sweep (it matches the sweep {:.3}), but channel {} does ({:.2}): analyse it with --channel {}",
+            analysed.0 + 1,
+            analysed.1,
+            other.0 + 1,
+            other.1,
+            other.0 + 1
+        ))),
+        ChannelCheck::OtherClearer { analysed, other } => {
+            warnings.add(
+                Code::OtherChannelClearer,
+                format!(
+                    "channel {} of the recording holds the sweep far more clearly than the analysed channel {} (it matches the sweep {:.2} against {:.2}): if it is a loopback, give --reference {}; if the microphone is on it, --channel {}",
+                    other.0 + 1,
+                    analysed.0 + 1,
+                    other.1,
+                    analysed.1,
+                    other.0 + 1,
+                    other.0 + 1
+                ),
+            );
+            Ok(())
+        }
+    }
 }
 
 /// Runs a job: checks, analyses, then writes the folder. Nothing is

@@ -218,3 +218,88 @@ fn a_clipped_calibrator_tone_is_refused_with_its_figure() {
     );
     assert_eq!(snapshot(d), before, "no calibration written");
 }
+
+#[test]
+fn the_microphone_on_another_channel_is_named() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    make_sweep(d, "sweep.wav", &["--length", "1", "--tail", "0.5"]);
+    let (_, s) = crate::util::read_wav(&d.join("sweep.wav"));
+    let s = &s[0];
+    // channel 1 holds a little noise, channel 2 the sweep (a wire)
+    let noise: Vec<f64> = (0..s.len())
+        .map(|i| 1e-3 * (((i * 7919) % 1000) as f64 / 500.0 - 1.0))
+        .collect();
+    crate::util::write_wav_f32(&d.join("swapped.wav"), 48_000, &[noise, s.clone()]);
+    let before = snapshot(d);
+    let line = refused(
+        d,
+        &[
+            "analyze",
+            "swapped.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "x",
+        ],
+    );
+    assert!(
+        line.contains("channel 1 of the recording holds no sweep") && line.contains("--channel 2"),
+        "{line}"
+    );
+    assert_eq!(snapshot(d), before, "nothing written");
+    ok(
+        d,
+        &[
+            "analyze",
+            "swapped.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "x",
+            "--channel",
+            "2",
+            "--no-plots",
+        ],
+    );
+    assert!(
+        json(&d.join("x/results.json"))["delay_s"]
+            .as_f64()
+            .unwrap()
+            .abs()
+            < 1e-4
+    );
+    // a reverberant microphone on 1 beside an undeclared loopback on 2:
+    // analysed, with a warning that names the loopback
+    let tail: Vec<f64> = (0..12_000)
+        .map(|i| {
+            let v = ((i * 7919 + 13) % 2001) as f64 / 1000.0 - 1.0;
+            v * 10f64.powf(-3.0 * i as f64 / 48_000.0)
+        })
+        .collect();
+    let mut room = gliss::signal::fft::convolve(s, &tail);
+    room.truncate(s.len());
+    crate::util::write_wav_f32(&d.join("loop.wav"), 48_000, &[room, s.clone()]);
+    ok(
+        d,
+        &[
+            "analyze",
+            "loop.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "y",
+            "--no-plots",
+        ],
+    );
+    let r = json(&d.join("y/results.json"));
+    let codes: Vec<&str> = r["warning_codes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c.as_str().unwrap())
+        .collect();
+    assert!(codes.contains(&"other-channel-clearer"), "{codes:?}");
+    let w = r["warnings"].to_string();
+    assert!(w.contains("--reference 2"), "{w}");
+}
