@@ -117,6 +117,12 @@ pub struct Analysis {
     pub warnings: Warnings,
 }
 
+/// The least decay (s after the sound arrives) a recording must hold for
+/// the band parameters: below it the recording was stopped with the sweep
+/// and the decay is cut off (our choice: even a dead booth decays for
+/// longer than 0.1 s at low frequencies).
+pub const MIN_RECORDED_DECAY_S: f64 = 0.1;
+
 /// Checks a signal for emptiness, non-finite samples and silence; returns
 /// its peak absolute value. `what` names it in messages.
 pub fn check_signal(x: &[f64], what: &str) -> Result<f64> {
@@ -357,10 +363,32 @@ pub fn analyze(
         d
     });
 
+    // how much of the room's decay the recording holds after the sound
+    // arrived: a recording stopped at the end of the sweep holds none
+    let recorded_decay_s = (tail_end as f64 - ipeak as f64) / fs;
+    let tail_cut = recorded_decay_s < MIN_RECORDED_DECAY_S;
+    if tail_cut && config.bands {
+        warnings.add(
+            Code::TailCut,
+            format!(
+                "the recording stops {:.2} s after the sound arrives: the room's decay was cut off with it, so no band parameter can be measured; record the sweep's silent tail as well ({} s in this sweep file)",
+                recorded_decay_s.max(0.0),
+                design.params.tail_s
+            ),
+        );
+    }
     // the room analysis sees the response without its final fade-out
     let room = config.bands.then(|| {
         let fade = (len / 20).max(8).min(len);
-        let r = room::analyze(&ir[..len - fade], fs, f1, f2);
+        let mut r = room::analyze(&ir[..len - fade], fs, f1, f2);
+        if tail_cut {
+            room::withhold_all(
+                &mut r,
+                Code::BandTailCut,
+                "the recording ends before the decay: nothing measured",
+            );
+            return r;
+        }
         let missing = r
             .bands
             .iter()

@@ -222,6 +222,26 @@ fn band_decay(
     (r, Some((time, level, fits)))
 }
 
+/// Withholds every value of every band (and of the broadband values) with
+/// one reason, for a response that cannot be trusted as a whole.
+pub fn withhold_all(room: &mut Room, code: Code, why: &str) {
+    for b in room
+        .bands
+        .iter_mut()
+        .chain(std::iter::once(&mut room.broadband))
+    {
+        let label = match b.fraction {
+            Fraction::Broadband => "broadband".to_string(),
+            f => format!("{} Hz ({f}-octave)", b.center_hz),
+        };
+        b.values = Values::none();
+        b.curvature_percent = None;
+        b.warnings = Warnings::new();
+        b.warnings.add(code, format!("{label}: {why}"));
+    }
+    room.curves.clear();
+}
+
 /// Runs the room analysis of `ir` (sample rate `fs`) for the sweep band
 /// [f1, f2].
 pub fn analyze(ir: &[f64], fs: f64, f1: f64, f2: f64) -> Room {

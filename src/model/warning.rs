@@ -96,6 +96,10 @@ codes! {
     MicCorrectionCoverage = "mic-correction-coverage", Caution, Calibration;
     /// The gate resolves the response only above a frequency.
     GateResolution = "gate-resolution", Note, Gate;
+    /// The recording stops with the sweep: the room's decay is cut off.
+    TailCut = "tail-cut", Problem, NoiseFloor;
+    /// A band: the recording ends before the decay.
+    BandTailCut = "band-tail-cut", Caution, NoiseFloor;
     /// Some bands lack some decay parameters (see the bands).
     BandsIncomplete = "bands-incomplete", Note, NoiseFloor;
     /// Some bands decay along more than one slope (see the bands).

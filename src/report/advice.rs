@@ -88,7 +88,11 @@ pub fn reason_for<'a>(warnings: &'a [Warning], label: &str) -> Option<&'a str> {
     warnings
         .iter()
         .find(|w| names(&w.message, label))
-        .or_else(|| warnings.iter().find(|w| w.code == Code::BandNoDecay))
+        .or_else(|| {
+            warnings
+                .iter()
+                .find(|w| matches!(w.code, Code::BandNoDecay | Code::BandTailCut))
+        })
         .map(|w| w.message.as_str())
 }
 

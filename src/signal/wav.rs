@@ -73,7 +73,7 @@ pub fn decode_wav(bytes: &[u8]) -> crate::Result<WavData> {
             "is empty (0 bytes); record or export it again".to_string()
         } else {
             format!(
-                "is {} bytes long, too short to be a WAV file (at least 44); record or export it again",
+                "is {} bytes long: not a WAV file (a WAV file has at least 44 bytes); record or export it again",
                 bytes.len()
             )
         }));

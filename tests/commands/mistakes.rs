@@ -303,3 +303,41 @@ fn the_microphone_on_another_channel_is_named() {
     let w = r["warnings"].to_string();
     assert!(w.contains("--reference 2"), "{w}");
 }
+
+#[test]
+fn a_recording_stopped_with_the_sweep_says_its_decay_was_cut() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    make_sweep(d, "sweep.wav", &["--length", "1", "--tail", "1"]);
+    let (_, s) = crate::util::read_wav(&d.join("sweep.wav"));
+    // a room (T60 0.8 s) heard through the whole sweep file ...
+    let tail: Vec<f64> = (0..38_400)
+        .map(|i| {
+            let v = ((i * 7919 + 13) % 2001) as f64 / 1000.0 - 1.0;
+            v * 10f64.powf(-3.0 * i as f64 / (0.8 * 48_000.0))
+        })
+        .collect();
+    let mut room = gliss::signal::fft::convolve(&s[0], &tail);
+    // ... but the recorder stopped 10 ms after the sweep's end
+    let sweep_len = s[0].len() - 48_000;
+    room.truncate(sweep_len + 480);
+    let peak = room.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    let room: Vec<f64> = room.iter().map(|v| 0.5 * v / peak).collect();
+    crate::util::write_wav_f32(&d.join("cut.wav"), 48_000, &[room]);
+    ok(
+        d,
+        &["analyze", "cut.wav", "--sweep", "sweep.wav", "--out", "x"],
+    );
+    let r = json(&d.join("x/results.json"));
+    let codes = r["warning_codes"].to_string();
+    assert!(codes.contains("\"tail-cut\""), "{codes}");
+    assert!(r["warnings"].to_string().contains("decay was cut off"));
+    // no EDT (nor anything else) from a decay that was never recorded
+    for b in r["bands"].as_array().unwrap() {
+        for p in ["edt_s", "t20_s", "t30_s", "c80_db", "d50"] {
+            assert!(b[p].is_null(), "{} {p}: {}", b["center_hz"], b[p]);
+        }
+        assert_eq!(b["warning_codes"][0], "band-tail-cut");
+    }
+    assert!(r["broadband"]["edt_s"].is_null());
+}
