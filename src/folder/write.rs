@@ -203,6 +203,12 @@ fn busy(dir: &Path, pid: Option<u32>) -> Error {
     )
 }
 
+/// Whether `e` is an empty plots/ (what a run cut off right after making
+/// the folder leaves): it does not make the folder hold anything.
+fn is_empty_plots(e: &fs::DirEntry) -> bool {
+    e.file_name() == "plots" && fs::read_dir(e.path()).is_ok_and(|mut d| d.next().is_none())
+}
+
 /// Removes the temporary files (`.partial-*`) in `dir` and `dir/plots`:
 /// with the lock held, they are what a run that died left behind.
 fn remove_stale_partials(dir: &Path) -> Result<()> {
@@ -261,7 +267,7 @@ impl MeasurementFolder {
         let mut entries = fs::read_dir(dir)
             .map_err(|e| Error::io("read the folder", dir, &e))?
             .flatten()
-            .filter(|e| e.file_name() != LOCK_FILE);
+            .filter(|e| e.file_name() != LOCK_FILE && !is_empty_plots(e));
         if entries.next().is_none() {
             return Ok(folder);
         }
@@ -514,7 +520,8 @@ mod tests {
         fs::write(dir.join("plots/.partial-99999-response.png"), b"half").unwrap();
         // a stale lock file, not held by anyone, is no obstacle
         fs::write(dir.join(LOCK_FILE), b"99999").unwrap();
-        let f = MeasurementFolder::check(&dir, true, &[]).unwrap();
+        // without --overwrite too: once they are gone, the folder is empty
+        let f = MeasurementFolder::check(&dir, false, &[]).unwrap();
         assert!(!dir.join(".partial-99999-results.json").exists());
         assert!(!dir.join("plots/.partial-99999-response.png").exists());
         // this run's temporary names carry its process id
