@@ -84,7 +84,7 @@ fn write_out(out: &Path, bytes: &[u8], overwrite: bool) -> Result<()> {
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "report.html".into());
-    let tmp = out.with_file_name(format!(".partial-{name}"));
+    let tmp = out.with_file_name(format!(".partial-{}-{name}", std::process::id()));
     let mut f = fs::File::create(&tmp).map_err(|e| Error::io("create", &tmp, &e))?;
     f.write_all(bytes)
         .and_then(|()| f.sync_all())

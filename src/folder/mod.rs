@@ -5,8 +5,12 @@
 //!
 //! [`open`] reads manifest.json, refuses an incomplete folder, checks every
 //! file the manifest lists against its SHA-256 and refuses a folder whose
-//! raw files are not the ones it recorded, then reads results.json or
-//! comparison.json into the shared types.
+//! raw files are not the ones it recorded or whose results.json (or
+//! comparison.json) is not the one it lists (an interrupted re-analysis),
+//! then reads results.json or comparison.json into the shared types. It
+//! takes no lock: a writer commits by renaming the manifest into place last
+//! (see [`write`](mod@write)), so a reader sees the old folder, the new one,
+//! or a refusal.
 
 pub mod schema;
 pub mod write;
@@ -124,10 +128,25 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
             "{name}/manifest.json is not valid JSON ({e}); the folder is damaged: analyse its raw files again into a new folder"
         ))
     })?;
+    let is_comparison =
+        |v: Option<&serde_json::Value>| v.and_then(serde_json::Value::as_str) == Some("comparison");
+    let comparison = is_comparison(value.get("kind"))
+        || is_comparison(value.get("source").and_then(|s| s.get("kind")));
+    let again = if comparison {
+        "gliss compare ... --overwrite"
+    } else if value.get("kind").and_then(serde_json::Value::as_str) == Some("average") {
+        "gliss average ... --overwrite"
+    } else {
+        "gliss analyze ... --overwrite"
+    };
+    let problems = value.get("problems").and_then(|p| p.as_array());
     if value.get("complete").and_then(serde_json::Value::as_bool) == Some(false) {
-        let why = value
-            .get("problems")
-            .and_then(|p| p.as_array())
+        if problems.is_some_and(|p| p.iter().any(|x| x.as_str() == Some(write::REPLACING))) {
+            return Err(Error::input(format!(
+                "{name} holds an interrupted re-analysis: its derived files were being replaced when that run stopped; run the analysis again with --overwrite ({again}; the raw files are kept)"
+            )));
+        }
+        let why = problems
             .map(|p| {
                 p.iter()
                     .filter_map(|x| x.as_str())
@@ -140,10 +159,6 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
             "{name} is an incomplete measurement ({why}); it has no results: measure again, or analyse its recording.wav with gliss analyze into a new folder"
         )));
     }
-    let is_comparison =
-        |v: Option<&serde_json::Value>| v.and_then(serde_json::Value::as_str) == Some("comparison");
-    let comparison = is_comparison(value.get("kind"))
-        || is_comparison(value.get("source").and_then(|s| s.get("kind")));
     let not_ours = |e: serde_json::Error| {
         Error::input(format!(
             "{name}/manifest.json is not a gliss manifest ({e}); give folders written by gliss"
@@ -153,6 +168,7 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
         let manifest: ComparisonManifest = serde_json::from_value(value).map_err(not_ours)?;
         let files = check_files(dir, &manifest.files, options)?;
         let (bytes, sha) = read_content(dir, "comparison.json", "run gliss compare again")?;
+        content_matches(dir, "comparison.json", &sha, &files, again)?;
         let mut c: Comparison = serde_json::from_slice(&bytes).map_err(|e| {
             Error::input(format!(
                 "{name}/comparison.json does not parse ({e}); run gliss compare again into a new folder"
@@ -178,6 +194,7 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
         "results.json",
         "analyse its raw files again (gliss analyze ... --overwrite)",
     )?;
+    content_matches(dir, "results.json", &sha, &files, again)?;
     let results: Results = serde_json::from_slice(&bytes).map_err(|e| {
         Error::input(format!(
             "{name}/results.json is not a gliss results file ({e}); analyse its raw files again (gliss analyze ... --overwrite)"
@@ -246,6 +263,27 @@ fn read_content(dir: &Path, file: &str, redo: &str) -> Result<(Vec<u8>, String)>
     })?;
     let sha = sha256_hex(&bytes);
     Ok((bytes, sha))
+}
+
+/// Refuses a folder whose `file` (results.json or comparison.json, SHA-256
+/// `sha`) is not the one its manifest lists: a re-analysis that was cut off
+/// between writing it and its manifest (or an edit). `again` is the command
+/// that makes the folder again.
+fn content_matches(
+    dir: &Path,
+    file: &str,
+    sha: &str,
+    files: &[FileCheck],
+    again: &str,
+) -> Result<()> {
+    let listed = files.iter().find(|f| f.entry.name == file);
+    if listed.is_some_and(|f| !f.entry.sha256.eq_ignore_ascii_case(sha)) {
+        return Err(Error::input(format!(
+            "{}/{file} does not match the SHA-256 its manifest recorded: a re-analysis was interrupted (or the file was changed); run the analysis again with --overwrite ({again}; the raw files are kept)",
+            dir.display()
+        )));
+    }
+    Ok(())
 }
 
 /// Checks every file the manifest lists (inside the folder) against its

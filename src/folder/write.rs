@@ -1,8 +1,30 @@
 //! The measurement folder on disk: raw files written once and never
-//! replaced, derived files written to a temporary name and renamed.
+//! replaced, derived files written to a temporary name and renamed, one
+//! writer at a time, the manifest last.
+//!
+//! **One writer.** [`MeasurementFolder::check`] takes an exclusive lock on
+//! `.lock` inside the folder (making the folder if it does not exist yet)
+//! before it looks at anything, and the [`MeasurementFolder`] holds it
+//! until it is dropped, after the manifest is written. A second run is
+//! refused while the first holds it. The lock is released when the file
+//! closes, so a run that dies (`kill -9`) leaves no stale lock, only a
+//! `.lock` file the next run reuses. On drop the lock file is removed (on
+//! Unix, while still held; the next run checks that the file it locked is
+//! still the one at `.lock`) and so is a folder this run made and left
+//! empty. Readers never see `.lock`: it is not listed in the manifest and
+//! [`crate::folder::open`] reads only what the manifest lists.
+//!
+//! **The commit point.** The manifest is written last, through a temporary
+//! name and a rename. Before replacing the derived files of a complete
+//! folder (`--overwrite`), [`MeasurementFolder::create`] first rewrites its
+//! manifest as incomplete ([`REPLACING`]); a run cut off after that leaves a
+//! folder that [`crate::folder::open`] refuses as an interrupted
+//! re-analysis, never a complete manifest over files it does not describe.
+//! Temporary files are named `.partial-PID-NAME`; the next run, holding
+//! the lock, removes those a dead run left behind.
 
 use std::fs;
-use std::io::Write;
+use std::io::{Read, Seek, Write};
 use std::path::{Path, PathBuf};
 
 use sha2::{Digest, Sha256};
@@ -12,6 +34,18 @@ use crate::folder::schema::{FileEntry, FileRole};
 
 /// Names of the raw files of a measurement folder.
 pub const RAW_FILES: [&str; 2] = ["stimulus.wav", "recording.wav"];
+
+/// The lock file inside a folder being written (never listed in a
+/// manifest).
+pub const LOCK_FILE: &str = ".lock";
+
+/// The prefix of a derived file being written; `.partial-PID-NAME`.
+pub const PARTIAL_PREFIX: &str = ".partial-";
+
+/// The problem a manifest names while its folder's derived files are being
+/// replaced; it stays if that run never finishes.
+pub const REPLACING: &str =
+    "its derived files are being replaced by a new analysis (or that analysis was interrupted)";
 
 /// SHA-256 of `bytes` as lowercase hex.
 pub fn sha256_hex(bytes: &[u8]) -> String {
@@ -28,24 +62,194 @@ fn derived(rel: &str, bytes: &[u8]) -> FileEntry {
     }
 }
 
-/// A measurement folder about to be written.
-#[derive(Debug, Clone)]
+/// The exclusive lock on a folder being written, released on drop.
+///
+/// The lock is an advisory whole-file lock taken with the `fs4` crate:
+/// `flock(2)` on Unix (Linux, macOS) and `LockFileEx` on Windows, without
+/// libc or any system library (it goes through rustix and windows-sys),
+/// and it works at our minimum Rust version (1.85), before
+/// `std::fs::File::try_lock` was stable (1.89). The operating system
+/// releases it when the process ends however it ends, so a killed run never
+/// leaves the folder locked.
+#[derive(Debug)]
+struct FolderLock {
+    /// The open, locked `.lock`; closing it releases the lock.
+    file: fs::File,
+    /// Its path.
+    path: PathBuf,
+    /// The folders this run made to hold the lock (the folder first, then
+    /// its missing parents), removed on drop if they are still empty.
+    made: Vec<PathBuf>,
+}
+
+impl FolderLock {
+    /// Locks `dir` (making it and its missing parents if needed), or
+    /// refuses when another run holds it.
+    fn acquire(dir: &Path) -> Result<Self> {
+        let path = dir.join(LOCK_FILE);
+        // a run that is just removing the folder it made can make one open
+        // fail or lock a file that is no longer at `.lock`: try again
+        for _ in 0..20 {
+            let made = missing_dirs(dir);
+            fs::create_dir_all(dir).map_err(|e| Error::io("create the folder", dir, &e))?;
+            let file = match fs::OpenOptions::new()
+                .read(true)
+                .write(true)
+                .create(true)
+                .truncate(false)
+                .open(&path)
+            {
+                Ok(f) => f,
+                Err(e) if e.kind() == std::io::ErrorKind::NotFound => continue,
+                Err(e) if e.kind() == std::io::ErrorKind::PermissionDenied && path.exists() => {
+                    // Windows: the holder is removing it
+                    return Err(busy(dir, None));
+                }
+                Err(e) => return Err(Error::io("create the lock file", &path, &e)),
+            };
+            match fs4::FileExt::try_lock(&file) {
+                Ok(()) => {}
+                Err(fs4::TryLockError::WouldBlock) => {
+                    return Err(busy(dir, holder_pid(&file)));
+                }
+                Err(fs4::TryLockError::Error(e)) => {
+                    return Err(Error::io("lock", &path, &e));
+                }
+            }
+            if !still_at(&file, &path) {
+                continue;
+            }
+            let mut lock = FolderLock { file, path, made };
+            lock.write_pid();
+            return Ok(lock);
+        }
+        Err(busy(dir, None))
+    }
+
+    /// Writes this process's id into the lock file, for the refusal of a
+    /// second run (best effort: the lock itself is what counts).
+    fn write_pid(&mut self) {
+        let _ = self.file.set_len(0).and_then(|()| {
+            self.file.rewind()?;
+            write!(self.file, "{}", std::process::id())?;
+            self.file.flush()
+        });
+    }
+}
+
+impl Drop for FolderLock {
+    fn drop(&mut self) {
+        // Unix: unlink while still holding the lock; a run that opened the
+        // old file meanwhile sees it is no longer at `.lock` and opens
+        // again. Windows keeps the (unlocked) file: removing it there could
+        // not be told apart by the next run.
+        #[cfg(unix)]
+        let _ = fs::remove_file(&self.path);
+        let dir = self.path.parent().unwrap_or(Path::new("."));
+        if !self.made.is_empty() && !dir.join("manifest.json").exists() {
+            // a run that made the folder and wrote nothing takes it away
+            let _ = fs::remove_dir(dir.join("plots"));
+            for d in &self.made {
+                if fs::remove_dir(d).is_err() {
+                    break;
+                }
+            }
+        }
+    }
+}
+
+/// `dir` and those of its parents that do not exist, deepest first.
+fn missing_dirs(dir: &Path) -> Vec<PathBuf> {
+    dir.ancestors()
+        .take_while(|d| !d.as_os_str().is_empty() && !d.exists())
+        .map(Path::to_path_buf)
+        .collect()
+}
+
+/// Whether the open `file` is still the file at `path` (not removed and
+/// replaced since it was opened).
+#[cfg(unix)]
+fn still_at(file: &fs::File, path: &Path) -> bool {
+    use std::os::unix::fs::MetadataExt;
+    match (file.metadata(), fs::metadata(path)) {
+        (Ok(a), Ok(b)) => a.dev() == b.dev() && a.ino() == b.ino(),
+        _ => false,
+    }
+}
+
+/// Whether the open `file` is still the file at `path`: on Windows the
+/// lock file is never removed, so it is.
+#[cfg(not(unix))]
+fn still_at(_file: &fs::File, path: &Path) -> bool {
+    path.exists()
+}
+
+/// The process id the holder wrote into the lock file, if it can be read.
+fn holder_pid(mut file: &fs::File) -> Option<u32> {
+    let mut s = String::new();
+    file.read_to_string(&mut s).ok()?;
+    s.trim().parse().ok()
+}
+
+/// The refusal of a folder another run is writing.
+fn busy(dir: &Path, pid: Option<u32>) -> Error {
+    let who = pid.map_or_else(String::new, |p| format!(" (pid {p})"));
+    Error::new(
+        ErrorKind::AlreadyExists,
+        format!(
+            "{} is being written by another gliss run{who}; wait for it or choose another --out",
+            dir.display()
+        ),
+    )
+}
+
+/// Whether `e` is an empty plots/ (what a run cut off right after making
+/// the folder leaves): it does not make the folder hold anything.
+fn is_empty_plots(e: &fs::DirEntry) -> bool {
+    e.file_name() == "plots" && fs::read_dir(e.path()).is_ok_and(|mut d| d.next().is_none())
+}
+
+/// Removes the temporary files (`.partial-*`) in `dir` and `dir/plots`:
+/// with the lock held, they are what a run that died left behind.
+fn remove_stale_partials(dir: &Path) -> Result<()> {
+    for d in [dir.to_path_buf(), dir.join("plots")] {
+        let Ok(entries) = fs::read_dir(&d) else {
+            continue;
+        };
+        for e in entries.flatten() {
+            let stale = e.file_name().to_string_lossy().starts_with(PARTIAL_PREFIX)
+                && e.file_type().is_ok_and(|t| t.is_file());
+            if stale {
+                let p = e.path();
+                fs::remove_file(&p).map_err(|e| Error::io("remove the leftover", &p, &e))?;
+            }
+        }
+    }
+    Ok(())
+}
+
+/// A measurement folder about to be written, locked for this run until it
+/// is dropped.
+#[derive(Debug)]
 pub struct MeasurementFolder {
     dir: PathBuf,
+    /// Held from the check until the folder is dropped.
+    _lock: FolderLock,
 }
 
 impl MeasurementFolder {
-    /// Checks that `dir` can take a new measurement: it must not exist, or
-    /// be empty, or — with `overwrite` — hold only a measurement whose raw
-    /// files equal `raw` (name, bytes), which are then kept. Writes nothing.
+    /// Locks `dir` for this run and checks that it can take a new
+    /// measurement: it must not exist, or be empty, or — with `overwrite` —
+    /// hold only a measurement whose raw files equal `raw` (name, bytes),
+    /// which are then kept.
+    ///
+    /// Refused when another gliss run is writing `dir`. To hold the lock a
+    /// missing folder is made (with `.lock` in it); dropping the result
+    /// takes an empty folder it made away again, so a refused run leaves
+    /// nothing behind. Leftover temporary files of a run that died are
+    /// removed; nothing else is written.
     pub fn check(dir: &Path, overwrite: bool, raw: &[(&str, &[u8])]) -> Result<Self> {
-        let folder = MeasurementFolder {
-            dir: dir.to_path_buf(),
-        };
-        if !dir.exists() {
-            return Ok(folder);
-        }
-        if !dir.is_dir() {
+        if dir.exists() && !dir.is_dir() {
             return Err(Error::new(
                 ErrorKind::AlreadyExists,
                 format!(
@@ -54,7 +258,16 @@ impl MeasurementFolder {
                 ),
             ));
         }
-        let mut entries = fs::read_dir(dir).map_err(|e| Error::io("read the folder", dir, &e))?;
+        let lock = FolderLock::acquire(dir)?;
+        let folder = MeasurementFolder {
+            dir: dir.to_path_buf(),
+            _lock: lock,
+        };
+        remove_stale_partials(dir)?;
+        let mut entries = fs::read_dir(dir)
+            .map_err(|e| Error::io("read the folder", dir, &e))?
+            .flatten()
+            .filter(|e| e.file_name() != LOCK_FILE && !is_empty_plots(e));
         if entries.next().is_none() {
             return Ok(folder);
         }
@@ -100,7 +313,11 @@ impl MeasurementFolder {
         &self.dir
     }
 
-    /// Creates the folder and its plots/ subfolder.
+    /// Creates the folder and its plots/ subfolder, and — the first step of
+    /// replacing a folder's derived files — marks a complete manifest
+    /// already there as being replaced ([`REPLACING`]), so that a run cut
+    /// off from here on leaves a folder readers refuse as interrupted
+    /// rather than a complete manifest over files it does not describe.
     pub fn create(&self) -> Result<()> {
         let plots = self.dir.join("plots");
         // a link named plots would send the PNGs outside the folder
@@ -113,7 +330,46 @@ impl MeasurementFolder {
                 ),
             ));
         }
-        fs::create_dir_all(&plots).map_err(|e| Error::io("create the folder", &plots, &e))
+        fs::create_dir_all(&plots).map_err(|e| Error::io("create the folder", &plots, &e))?;
+        self.mark_replacing()
+    }
+
+    /// Rewrites a complete manifest.json as incomplete, naming
+    /// [`REPLACING`] as its problem and keeping everything else (the
+    /// recorded hashes of the raw files among it).
+    fn mark_replacing(&self) -> Result<()> {
+        let path = self.dir.join("manifest.json");
+        let Ok(bytes) = fs::read(&path) else {
+            return Ok(());
+        };
+        let Ok(mut m) = serde_json::from_slice::<serde_json::Value>(&bytes) else {
+            return Ok(());
+        };
+        if m.get("complete").and_then(serde_json::Value::as_bool) != Some(true) {
+            return Ok(());
+        }
+        m["complete"] = serde_json::Value::Bool(false);
+        m["problems"] = serde_json::json!([REPLACING]);
+        let bytes = serde_json::to_vec_pretty(&m).map_err(|e| {
+            Error::new(
+                ErrorKind::Io,
+                format!("could not mark {} as being replaced: {e}", path.display()),
+            )
+        })?;
+        self.write_durable("manifest.json", &bytes)
+    }
+
+    /// Writes the derived file `rel` through a temporary name, with its
+    /// bytes on disk before the rename (the manifest, whose rename is the
+    /// commit point).
+    fn write_durable(&self, rel: &str, bytes: &[u8]) -> Result<()> {
+        let tmp = self.temp_path(rel);
+        let mut f = fs::File::create(&tmp).map_err(|e| Error::io("create", &tmp, &e))?;
+        f.write_all(bytes)
+            .and_then(|()| f.sync_all())
+            .map_err(|e| Error::io("write", &tmp, &e))?;
+        drop(f);
+        self.commit(&tmp, rel)
     }
 
     /// Writes a raw file once: if it already exists with the same bytes it
@@ -146,15 +402,16 @@ impl MeasurementFolder {
         Ok(hash)
     }
 
-    /// A temporary path for the derived file `rel` (keeps its extension,
-    /// which some writers need).
+    /// A temporary path for the derived file `rel`: `.partial-PID-NAME`
+    /// beside it, unique to this run (it keeps the extension, which some
+    /// writers need).
     pub fn temp_path(&self, rel: &str) -> PathBuf {
         let path = self.dir.join(rel);
         let name = path
             .file_name()
             .map(|n| n.to_string_lossy().into_owned())
             .unwrap_or_default();
-        path.with_file_name(format!(".partial-{name}"))
+        path.with_file_name(format!("{PARTIAL_PREFIX}{}-{name}", std::process::id()))
     }
 
     /// Moves a finished temporary file into place as `rel`.
@@ -169,8 +426,12 @@ impl MeasurementFolder {
         fs::rename(temp, &path).map_err(|e| Error::io("move into place", &path, &e))
     }
 
-    /// Writes the derived file `rel` through a temporary name.
+    /// Writes the derived file `rel` through a temporary name (the
+    /// manifest also synced to disk before its rename).
     pub fn write_derived(&self, rel: &str, bytes: &[u8]) -> Result<()> {
+        if rel == "manifest.json" {
+            return self.write_durable(rel, bytes);
+        }
         let tmp = self.temp_path(rel);
         fs::write(&tmp, bytes).map_err(|e| Error::io("write", &tmp, &e))?;
         self.commit(&tmp, rel)
@@ -216,11 +477,93 @@ mod tests {
         assert_eq!(fs::read(dir.join("recording.wav")).unwrap(), b"one");
         assert!(f.write_derived("recording.wav", b"x").is_err());
         assert_eq!(fs::read(dir.join("recording.wav")).unwrap(), b"one");
+        drop(f); // the writer's lock goes with it
         // a non-empty folder is refused without --overwrite
         assert!(MeasurementFolder::check(&dir, false, &[]).is_err());
         // and with it, only when the raw files agree
         assert!(MeasurementFolder::check(&dir, true, &[("recording.wav", b"one")]).is_ok());
         assert!(MeasurementFolder::check(&dir, true, &[("recording.wav", b"two")]).is_err());
+    }
+
+    #[test]
+    fn a_second_writer_of_a_locked_folder_is_refused() {
+        let t = tempfile::tempdir().unwrap();
+        let dir = t.path().join("new/m");
+        let first = MeasurementFolder::check(&dir, false, &[]).unwrap();
+        assert!(
+            dir.join(LOCK_FILE).is_file(),
+            "the lock lives in the folder"
+        );
+        let e = MeasurementFolder::check(&dir, false, &[]).unwrap_err();
+        let pid = format!("(pid {})", std::process::id());
+        assert!(
+            e.message()
+                .contains("is being written by another gliss run")
+                && e.message().contains(&pid)
+                && e.message().contains("choose another --out"),
+            "{e}"
+        );
+        // --overwrite does not get past it either
+        assert!(MeasurementFolder::check(&dir, true, &[]).is_err());
+        drop(first);
+        // the folder (and its parent) this run made and left empty are gone
+        assert!(!t.path().join("new").exists());
+        // released on drop: the next run takes it
+        let again = MeasurementFolder::check(&dir, false, &[]).unwrap();
+        again.create().unwrap();
+        again.write_derived("manifest.json", b"{}").unwrap();
+        drop(again);
+        assert!(
+            dir.join("manifest.json").is_file(),
+            "a written folder stays"
+        );
+        #[cfg(unix)]
+        assert!(!dir.join(LOCK_FILE).exists(), "the lock file goes on drop");
+    }
+
+    #[test]
+    fn leftovers_of_a_dead_run_are_removed_by_the_next() {
+        let t = tempfile::tempdir().unwrap();
+        let dir = t.path().join("m");
+        fs::create_dir_all(dir.join("plots")).unwrap();
+        fs::write(dir.join(".partial-99999-results.json"), b"half").unwrap();
+        fs::write(dir.join("plots/.partial-99999-response.png"), b"half").unwrap();
+        // a stale lock file, not held by anyone, is no obstacle
+        fs::write(dir.join(LOCK_FILE), b"99999").unwrap();
+        // without --overwrite too: once they are gone, the folder is empty
+        let f = MeasurementFolder::check(&dir, false, &[]).unwrap();
+        assert!(!dir.join(".partial-99999-results.json").exists());
+        assert!(!dir.join("plots/.partial-99999-response.png").exists());
+        // this run's temporary names carry its process id
+        let tmp = f.temp_path("plots/response.png");
+        assert_eq!(
+            tmp.file_name().unwrap().to_string_lossy(),
+            format!(".partial-{}-response.png", std::process::id())
+        );
+    }
+
+    #[test]
+    fn replacing_marks_the_old_manifest_before_anything_is_written() {
+        let t = tempfile::tempdir().unwrap();
+        let dir = t.path().join("m");
+        let f = MeasurementFolder::check(&dir, false, &[]).unwrap();
+        f.create().unwrap();
+        f.write_raw("recording.wav", b"one").unwrap();
+        let manifest = serde_json::json!({
+            "complete": true,
+            "files": [{"name": "recording.wav", "role": "raw", "sha256": sha256_hex(b"one")}],
+        });
+        f.write_derived("manifest.json", manifest.to_string().as_bytes())
+            .unwrap();
+        drop(f);
+        let f = MeasurementFolder::check(&dir, true, &[("recording.wav", b"one")]).unwrap();
+        f.create().unwrap();
+        let m: serde_json::Value =
+            serde_json::from_slice(&fs::read(dir.join("manifest.json")).unwrap()).unwrap();
+        assert_eq!(m["complete"], false);
+        assert_eq!(m["problems"][0], REPLACING);
+        assert_eq!(m["files"], manifest["files"], "the raw hashes are kept");
+        assert_eq!(fs::read(dir.join("recording.wav")).unwrap(), b"one");
     }
 
     #[cfg(unix)]
@@ -232,7 +575,7 @@ mod tests {
         let dir = t.path().join("m");
         fs::create_dir(&dir).unwrap();
         std::os::unix::fs::symlink(&elsewhere, dir.join("plots")).unwrap();
-        let f = MeasurementFolder { dir: dir.clone() };
+        let f = MeasurementFolder::check(&dir, false, &[]).unwrap();
         let e = f.create().unwrap_err();
         assert!(e.message().contains("is a link"), "{e}");
         assert_eq!(fs::read_dir(&elsewhere).unwrap().count(), 0);

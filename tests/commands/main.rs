@@ -12,6 +12,7 @@ mod distortion;
 mod examples;
 mod export;
 mod features;
+mod folder_safety;
 mod measure;
 mod mistakes;
 mod report;
