@@ -356,7 +356,25 @@ impl MeasurementFolder {
                 format!("could not mark {} as being replaced: {e}", path.display()),
             )
         })?;
-        self.write_durable("manifest.json", &bytes)
+        self.write_durable("manifest.json", &bytes)?;
+        // the old derived set goes: a re-analysis that draws no plots, or
+        // no distortion, must not leave the old ones lying unlisted beside
+        // the new results (the manifest, marked above, says the folder is
+        // being replaced until the new one is committed)
+        let old: Vec<FileEntry> = m
+            .get("files")
+            .cloned()
+            .and_then(|f| serde_json::from_value(f).ok())
+            .unwrap_or_default();
+        for f in old.iter().filter(|f| f.role == FileRole::Derived) {
+            let inside = Path::new(&f.name)
+                .components()
+                .all(|c| matches!(c, std::path::Component::Normal(_)));
+            if inside && f.name != "manifest.json" {
+                let _ = fs::remove_file(self.dir.join(&f.name));
+            }
+        }
+        Ok(())
     }
 
     /// Writes the derived file `rel` through a temporary name, with its

@@ -341,3 +341,66 @@ fn a_recording_stopped_with_the_sweep_says_its_decay_was_cut() {
     }
     assert!(r["broadband"]["edt_s"].is_null());
 }
+
+#[test]
+fn a_reanalysis_leaves_no_stale_derived_files() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    make_sweep(d, "sweep.wav", &["--length", "1", "--tail", "0.5"]);
+    ok(
+        d,
+        &["analyze", "sweep.wav", "--sweep", "sweep.wav", "--out", "m"],
+    );
+    assert!(d.join("m/plots/response.png").is_file());
+    assert!(d.join("m/distortion.csv").is_file());
+    // again without plots and without distortion orders
+    ok(
+        d,
+        &[
+            "analyze",
+            "sweep.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "m",
+            "--overwrite",
+            "--no-plots",
+            "--harmonics",
+            "1",
+        ],
+    );
+    // what the folder holds is what its manifest lists, nothing older
+    let m = json(&d.join("m/manifest.json"));
+    let mut listed: Vec<String> = m["files"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|f| f["name"].as_str().unwrap().to_string())
+        .collect();
+    listed.push("manifest.json".into());
+    for e in walk(&d.join("m")) {
+        let rel = e
+            .strip_prefix(d.join("m"))
+            .unwrap()
+            .to_string_lossy()
+            .into_owned();
+        assert!(
+            listed.contains(&rel),
+            "{rel} is left over, not in {listed:?}"
+        );
+    }
+}
+
+/// Every file below `dir`.
+fn walk(dir: &Path) -> Vec<std::path::PathBuf> {
+    let mut out = Vec::new();
+    for e in std::fs::read_dir(dir).unwrap().flatten() {
+        let p = e.path();
+        if p.is_dir() {
+            out.extend(walk(&p));
+        } else {
+            out.push(p);
+        }
+    }
+    out
+}
