@@ -271,12 +271,7 @@ fn the_microphone_on_another_channel_is_named() {
     );
     // a reverberant microphone on 1 beside an undeclared loopback on 2:
     // analysed, with a warning that names the loopback
-    let tail: Vec<f64> = (0..12_000)
-        .map(|i| {
-            let v = ((i * 7919 + 13) % 2001) as f64 / 1000.0 - 1.0;
-            v * 10f64.powf(-3.0 * i as f64 / 48_000.0)
-        })
-        .collect();
+    let tail = decaying_noise(12_000, 1.0);
     let mut room = gliss::signal::fft::convolve(s, &tail);
     room.truncate(s.len());
     crate::util::write_wav_f32(&d.join("loop.wav"), 48_000, &[room, s.clone()]);
@@ -311,12 +306,7 @@ fn a_recording_stopped_with_the_sweep_says_its_decay_was_cut() {
     make_sweep(d, "sweep.wav", &["--length", "1", "--tail", "1"]);
     let (_, s) = crate::util::read_wav(&d.join("sweep.wav"));
     // a room (T60 0.8 s) heard through the whole sweep file ...
-    let tail: Vec<f64> = (0..38_400)
-        .map(|i| {
-            let v = ((i * 7919 + 13) % 2001) as f64 / 1000.0 - 1.0;
-            v * 10f64.powf(-3.0 * i as f64 / (0.8 * 48_000.0))
-        })
-        .collect();
+    let tail = decaying_noise(38_400, 0.8);
     let mut room = gliss::signal::fft::convolve(&s[0], &tail);
     // ... but the recorder stopped 10 ms after the sweep's end
     let sweep_len = s[0].len() - 48_000;
@@ -389,6 +379,17 @@ fn a_reanalysis_leaves_no_stale_derived_files() {
             "{rel} is left over, not in {listed:?}"
         );
     }
+}
+
+/// A room's response as a deterministic noise decaying 60 dB in `t60_s`
+/// (at 48 kHz), `len` samples long.
+fn decaying_noise(len: usize, t60_s: f64) -> Vec<f64> {
+    (0..len)
+        .map(|i| {
+            let v = ((i * 7919 + 13) % 2001) as f64 / 1000.0 - 1.0;
+            v * 10f64.powf(-3.0 * i as f64 / (t60_s * 48_000.0))
+        })
+        .collect()
 }
 
 /// Every file below `dir`.
