@@ -27,8 +27,9 @@ near) and start at a low level, with the amplifier turned down; raise it step by
 High-level sweeps with much high-frequency energy can damage tweeters: keep the level \
 modest and the sweep short when measuring a tweeter on its own. Follow local rules on \
 noise exposure. The default level is -20 dBFS; above -6 dBFS gliss asks first (--yes \
-answers for scripts). Ctrl-C stops at once: the output ramps down over 10 ms, the \
-recording so far is kept and the manifest says the measurement is incomplete.
+answers for scripts). Ctrl-C (or a termination signal, SIGTERM, or a hangup) stops at \
+once: the output ramps down over 10 ms, the recording so far is kept and the manifest \
+says the measurement is incomplete.
 
 Wiring: play the sweep on --output-channel (default 1) into the amplifier, record the \
 microphone on --channel. For a loopback reference, play the sweep on a second output too \
@@ -292,8 +293,9 @@ pub fn run(a: Args) -> Result<()> {
         target,
     };
     measure::check(&job, device.as_ref())?;
-    // Ctrl-C stops the measurement instead of killing the process, so that
-    // the output ramps down and the raw file is closed properly
+    // Ctrl-C, SIGTERM and a hangup (ctrlc's "termination" feature) stop
+    // the measurement instead of killing the process, so that the output
+    // ramps down and the raw file is closed properly
     let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
     println!("{}", device.describe());
     println!(

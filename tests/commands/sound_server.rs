@@ -170,6 +170,18 @@ fn without_a_reference_the_response_is_flat_and_the_delay_is_the_latency() {
 
 #[test]
 fn ctrl_c_ramps_down_keeps_the_recording_and_marks_the_manifest_incomplete() {
+    stopped_by("-INT");
+}
+
+#[test]
+fn sigterm_and_a_hangup_stop_like_ctrl_c() {
+    stopped_by("-TERM");
+    stopped_by("-HUP");
+}
+
+/// A measurement stopped by `signal` (as `kill` names it) once a second is
+/// on disk: ramps down, keeps the recording, marks the manifest incomplete.
+fn stopped_by(signal: &str) {
     let _one = SINK.lock().unwrap_or_else(|e| e.into_inner());
     if !sound_server() {
         return;
@@ -205,7 +217,7 @@ fn ctrl_c_ramps_down_keeps_the_recording_and_marks_the_manifest_incomplete() {
         std::thread::sleep(Duration::from_millis(50));
     }
     let killed = Command::new("kill")
-        .args(["-INT", &child.id().to_string()])
+        .args([signal, &child.id().to_string()])
         .status()
         .unwrap();
     assert!(killed.success());
@@ -216,7 +228,10 @@ fn ctrl_c_ramps_down_keeps_the_recording_and_marks_the_manifest_incomplete() {
         "a stopped measurement is not a success"
     );
     assert!(!err.contains("panicked"), "{err}");
-    assert!(err.contains("error:") && err.contains("stopped"), "{err}");
+    assert!(
+        err.contains("error:") && err.contains("stopped"),
+        "{signal}: {err}"
+    );
     let dir = t.path().join("cut");
     let m = json(&dir.join("manifest.json"));
     assert_eq!(m["complete"], false);
