@@ -676,7 +676,7 @@ fn comparison_section(
         out,
         "Audible changes",
         &audible.to_string(),
-        "band values whose change exceeds the just-noticeable difference",
+        "band values whose change exceeds both the just-noticeable difference and the measurement's uncertainty",
     );
     key(
         out,
