@@ -233,7 +233,7 @@ fn check_channel(job: &Job, warnings: &mut Warnings) -> Result<()> {
 /// Runs a job: checks, analyses, then writes the folder. Nothing is
 /// written when the inputs or the folder are refused.
 pub fn run(job: &Job) -> Result<Outcome> {
-    check_inputs(job)?;
+    let warnings = check_inputs(job)?;
     let folder = MeasurementFolder::check(
         &job.out,
         job.overwrite,
@@ -242,13 +242,17 @@ pub fn run(job: &Job) -> Result<Outcome> {
             ("recording.wav", &job.recording_bytes),
         ],
     )?;
-    analyse_into(job, &folder)
+    analyse_checked(job, &folder, warnings)
 }
 
 /// Analyses a job into `folder`, whose raw files may already be there
 /// (a measurement writes them while it records).
 pub fn analyse_into(job: &Job, folder: &MeasurementFolder) -> Result<Outcome> {
-    let mut extra = check_inputs(job)?;
+    analyse_checked(job, folder, check_inputs(job)?)
+}
+
+/// [`analyse_into`] once [`check_inputs`] has passed and said `extra`.
+fn analyse_checked(job: &Job, folder: &MeasurementFolder, mut extra: Warnings) -> Result<Outcome> {
     let divisor = match job.reference {
         Some(r) => {
             let reference = &job.recording.channels[r];
