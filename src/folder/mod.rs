@@ -353,11 +353,25 @@ impl Folder {
     pub fn measurement(&self, why: &str) -> Result<(&Manifest, &Results)> {
         match &self.content {
             Content::Measurement { manifest, results } => Ok((manifest, results)),
-            Content::Comparison { .. } => Err(Error::input(format!(
-                "{} is a comparison, not a measurement; {why}",
-                self.dir.display()
-            ))),
+            Content::Comparison { .. } => Err(self.not_a_measurement(why)),
         }
+    }
+
+    /// [`Folder::measurement`], taking the manifest and results out of the
+    /// folder instead of lending them.
+    pub fn into_measurement(self, why: &str) -> Result<(Manifest, Results)> {
+        match self.content {
+            Content::Measurement { manifest, results } => Ok((*manifest, *results)),
+            Content::Comparison { .. } => Err(self.not_a_measurement(why)),
+        }
+    }
+
+    #[cold]
+    fn not_a_measurement(&self, why: &str) -> Error {
+        Error::input(format!(
+            "{} is a comparison, not a measurement; {why}",
+            self.dir.display()
+        ))
     }
 
     /// The raw files that no longer match the manifest (only when opened

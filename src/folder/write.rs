@@ -287,14 +287,27 @@ impl MeasurementFolder {
         }
         // the raw files must still be the ones the manifest recorded: a
         // changed one is refused, so its original hash is never replaced
-        if let Ok(m) = crate::folder::read_manifest(dir) {
-            crate::folder::check_files(dir, &m.files, crate::folder::OpenOptions::default())?;
-        }
+        let recorded = crate::folder::read_manifest(dir)
+            .map(|m| m.files)
+            .unwrap_or_default();
+        crate::folder::check_files(dir, &recorded, crate::folder::OpenOptions::default())?;
         for (name, bytes) in raw {
             let path = dir.join(name);
-            if path.exists() {
-                let old = fs::read(&path).map_err(|e| Error::io("read", &path, &e))?;
-                if sha256_hex(&old) != sha256_hex(bytes) {
+            // a raw file the manifest lists was just checked against its
+            // hash: compare with that instead of reading the file again
+            let listed = recorded
+                .iter()
+                .find(|e| e.role == FileRole::Raw && e.name == *name)
+                .map(|e| e.sha256.clone());
+            let old = match listed {
+                Some(h) => Some(h),
+                None if path.exists() => Some(sha256_hex(
+                    &fs::read(&path).map_err(|e| Error::io("read", &path, &e))?,
+                )),
+                None => None,
+            };
+            if let Some(old) = old {
+                if !old.eq_ignore_ascii_case(&sha256_hex(bytes)) {
                     return Err(Error::new(
                         ErrorKind::AlreadyExists,
                         format!(

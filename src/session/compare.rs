@@ -60,7 +60,13 @@ impl Input {
 /// a complete measurement or average whose raw files are intact.
 pub fn read_input(dir: &Path, label: Option<&str>) -> Result<Input> {
     let f = folder::open(dir)?;
-    let (manifest, results) = f.measurement("give the measurement folders it compared")?;
+    let record = InputRecord {
+        folder: dir.display().to_string(),
+        label: label.map_or_else(|| f.label(), str::to_string),
+        sha256: f.manifest_sha256.clone(),
+        results_sha256: f.content_sha256.clone(),
+    };
+    let (manifest, results) = f.into_measurement("give the measurement folders it compared")?;
     if results.response.frequency_hz.is_empty()
         || results.response.frequency_hz.len() != results.response.magnitude_db.len()
     {
@@ -71,14 +77,9 @@ pub fn read_input(dir: &Path, label: Option<&str>) -> Result<Input> {
     }
     Ok(Input {
         dir: dir.to_path_buf(),
-        record: InputRecord {
-            folder: dir.display().to_string(),
-            label: label.map_or_else(|| f.label(), str::to_string),
-            sha256: f.manifest_sha256.clone(),
-            results_sha256: f.content_sha256.clone(),
-        },
-        manifest: manifest.clone(),
-        results: results.clone(),
+        record,
+        manifest,
+        results,
     })
 }
 

@@ -99,18 +99,15 @@ pub struct Measurement {
 pub fn open(dir: &Path) -> Result<Measurement> {
     let f = crate::folder::open(dir)?;
     let results_sha256 = f.content_sha256.clone();
-    match f.content {
-        crate::folder::Content::Measurement { manifest, results } => Ok(Measurement {
-            dir: dir.to_path_buf(),
-            manifest: *manifest,
-            results: *results,
-            results_sha256,
-        }),
-        crate::folder::Content::Comparison { .. } => Err(Error::input(format!(
-            "{} is a comparison, not a measurement; export the measurement folders it compared, or read its comparison.csv",
-            dir.display()
-        ))),
-    }
+    let (manifest, results) = f.into_measurement(
+        "export the measurement folders it compared, or read its comparison.csv",
+    )?;
+    Ok(Measurement {
+        dir: dir.to_path_buf(),
+        manifest,
+        results,
+        results_sha256,
+    })
 }
 
 /// The values of one column.

@@ -8,23 +8,6 @@ use std::process::Command;
 
 use crate::util::{json, make_sweep, ok, refused, snapshot};
 
-fn two_positions(dir: &Path) {
-    for (name, seed) in [("a", "1"), ("b", "2")] {
-        ok(
-            dir,
-            &[
-                "demo",
-                "--single",
-                "--out",
-                name,
-                "--no-plots",
-                "--seed",
-                seed,
-            ],
-        );
-    }
-}
-
 /// Copies the folder `from` to `to` (files one level deep and plots/).
 fn copy_folder(from: &Path, to: &Path) {
     std::fs::create_dir_all(to.join("plots")).unwrap();
@@ -39,7 +22,7 @@ fn copy_folder(from: &Path, to: &Path) {
 fn an_average_counts_each_position_once() {
     let t = tempfile::tempdir().unwrap();
     let d = t.path();
-    two_positions(d);
+    crate::util::two_positions(d);
     copy_folder(&d.join("a"), &d.join("a-copy"));
     let before = snapshot(d);
     let line = refused(d, &["average", "a", "b", "a", "--out", "avg"]);
@@ -58,7 +41,7 @@ fn an_average_counts_each_position_once() {
 fn a_folder_whose_manifest_lies_is_refused_by_every_reader() {
     let t = tempfile::tempdir().unwrap();
     let d = t.path();
-    two_positions(d);
+    crate::util::two_positions(d);
     // a sample rate no sound card records at
     let mut m = json(&d.join("a/manifest.json"));
     m["sample_rate_hz"] = 7.into();

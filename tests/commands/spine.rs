@@ -119,20 +119,7 @@ fn damage(path: &Path) {
 fn a_raw_file_changed_by_one_byte_is_refused_by_every_command() {
     let t = tempfile::tempdir().unwrap();
     let dir = t.path();
-    for (name, seed) in [("a", "1"), ("b", "2")] {
-        ok(
-            dir,
-            &[
-                "demo",
-                "--single",
-                "--out",
-                name,
-                "--no-plots",
-                "--seed",
-                seed,
-            ],
-        );
-    }
+    crate::util::two_positions(dir);
     ok(dir, &["compare", "a", "b", "--out", "ab", "--no-plots"]);
     damage(&dir.join("a/recording.wav"));
     let manifest = std::fs::read(dir.join("a/manifest.json")).unwrap();

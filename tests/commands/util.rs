@@ -172,3 +172,22 @@ pub fn analyze_device(dir: &Path, out: &str, args: &[&str]) -> Value {
     ok(dir, &all);
     json(&dir.join(out).join("results.json"))
 }
+
+/// Two single demo measurements, `a` and `b` (seeds 1 and 2, no plots),
+/// in `dir`: two positions of one room.
+pub fn two_positions(dir: &Path) {
+    for (name, seed) in [("a", "1"), ("b", "2")] {
+        ok(
+            dir,
+            &[
+                "demo",
+                "--single",
+                "--out",
+                name,
+                "--no-plots",
+                "--seed",
+                seed,
+            ],
+        );
+    }
+}
