@@ -373,15 +373,6 @@ impl Folder {
             self.dir.display()
         ))
     }
-
-    /// The raw files that no longer match the manifest (only when opened
-    /// with [`OpenOptions::allow_changed_raw`]).
-    pub fn changed_raw_files(&self) -> Vec<&FileCheck> {
-        self.files
-            .iter()
-            .filter(|f| f.entry.role == FileRole::Raw && f.state != FileState::Matches)
-            .collect()
-    }
 }
 
 #[cfg(test)]

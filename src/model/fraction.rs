@@ -50,11 +50,6 @@ impl Fraction {
         }
     }
 
-    /// Whether this is a filter band (not the whole sweep band).
-    pub fn is_band(self) -> bool {
-        self != Fraction::Broadband
-    }
-
     /// The effective bandwidth ISO 3382-2 puts in its uncertainty formula,
     /// Hz: about 0.71·fc for octaves and 0.23·fc for one-third octaves
     /// (seen through a secondary source); none for the whole band.

@@ -219,11 +219,6 @@ impl Warnings {
         self.0.push(Warning::new(code, message));
     }
 
-    /// Whether any warning has `code`.
-    pub fn has(&self, code: Code) -> bool {
-        self.0.iter().any(|w| w.code == code)
-    }
-
     /// The sentences alone.
     pub fn messages(&self) -> Vec<&str> {
         self.0.iter().map(|w| w.message.as_str()).collect()
