@@ -77,9 +77,15 @@ pub struct Capture {
     /// to the output (0 for the virtual system). Without a loopback
     /// reference this is known to about one buffer.
     pub signal_start: usize,
-    /// Frames lost to overruns or underruns (the measurement is invalid
-    /// when this is not zero).
+    /// Input frames known to be lost (dropped because the writer fell
+    /// behind); the measurement is invalid when this is not zero.
     pub lost_frames: u64,
+    /// Overruns, underruns and errors of the driver while streaming: each
+    /// loses an unknown number of frames (the measurement is invalid when
+    /// this is not zero). Counted apart from `lost_frames`, which counts
+    /// frames: a driver that fails thousands of times in a second has not
+    /// lost thousands of frames.
+    pub interruptions: u64,
     /// Set when the measurement was stopped (Ctrl-C) before the signal
     /// ended.
     pub stopped: bool,

@@ -745,6 +745,7 @@ impl PlayRecord for SoundCard {
             sample_rate_hz: rate,
             signal_start: signal_start_frame(sh.signal_start.load(Ordering::Acquire)),
             lost_frames: counters.lost_frames(),
+            interruptions: counters.interruptions(),
             stopped: ending.stopped,
             fault,
             problems,
@@ -1165,10 +1166,15 @@ impl Counters {
         }
     }
 
-    /// Frames lost: an xrun or a driver error loses an unknown number of
-    /// frames, so each counts at least one.
+    /// Frames known to be lost: those the callback dropped.
     fn lost_frames(&self) -> u64 {
-        self.dropped + self.input_xruns + self.output_xruns + self.driver_errors
+        self.dropped
+    }
+
+    /// Events that lost an unknown number of frames: xruns and errors of
+    /// the driver.
+    fn interruptions(&self) -> u64 {
+        self.input_xruns + self.output_xruns + self.driver_errors
     }
 
     /// Each kind of loss, in words.
@@ -1352,14 +1358,14 @@ mod tests {
     fn every_loss_is_named_and_counted_at_least_once() {
         let none = Counters::default();
         assert!(none.problems().is_empty());
-        assert_eq!(none.lost_frames(), 0);
+        assert_eq!((none.lost_frames(), none.interruptions()), (0, 0));
         let one = Counters {
             dropped: 1,
             input_xruns: 1,
             output_xruns: 1,
             driver_errors: 1,
         };
-        assert_eq!(one.lost_frames(), 4);
+        assert_eq!((one.lost_frames(), one.interruptions()), (1, 3));
         assert_eq!(
             one.problems(),
             vec![
@@ -1375,7 +1381,8 @@ mod tests {
             output_xruns: 0,
             driver_errors: 3,
         };
-        assert_eq!(many.lost_frames(), 5);
+        // errors of the driver are counted as events, not as frames
+        assert_eq!((many.lost_frames(), many.interruptions()), (0, 5));
         assert_eq!(
             many.problems(),
             vec![

@@ -469,6 +469,7 @@ impl PlayRecord for VirtualSystem {
             sample_rate_hz: rate,
             signal_start: 0,
             lost_frames: lost,
+            interruptions: 0,
             stopped: stop_at.is_some(),
             fault,
             problems,

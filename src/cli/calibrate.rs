@@ -1,7 +1,5 @@
 //! `gliss calibrate`: a sound calibrator's tone into a calibration file.
 
-use std::fs::OpenOptions;
-use std::io::Write;
 use std::path::PathBuf;
 
 use clap::Args as ClapArgs;
@@ -113,7 +111,7 @@ fn record_tone(a: &Args, seconds: f64, tone: &std::path::Path) -> Result<WavData
             format!("{f}; the tone so far is in {}", tone.display()),
         ));
     }
-    if c.lost_frames > 0 {
+    if c.lost_frames > 0 || c.interruptions > 0 {
         return Err(Error::new(
             ErrorKind::Device,
             format!(
@@ -166,25 +164,7 @@ pub fn run(a: Args) -> Result<()> {
     gliss::analysis::check_signal(x, "the calibrator recording")?;
     let c = calibration::calibrate(x, f64::from(data.sample_rate_hz), a.level)?;
     let json = gliss::session::to_json(&c)?;
-    let mut f = OpenOptions::new()
-        .write(true)
-        .create_new(true)
-        .open(&a.out)
-        .map_err(|e| {
-            if e.kind() == std::io::ErrorKind::AlreadyExists {
-                Error::new(
-                    ErrorKind::AlreadyExists,
-                    format!(
-                        "{} already exists; gliss never overwrites files, choose another --out",
-                        a.out.display()
-                    ),
-                )
-            } else {
-                Error::io("create", &a.out, &e)
-            }
-        })?;
-    f.write_all(&json)
-        .map_err(|e| Error::io("write", &a.out, &e))?;
+    gliss::folder::write::write_new(&a.out, &json)?;
     println!(
         "wrote {}: a {:.1} Hz tone at {:.1} dBFS reads {} dB SPL; a full-scale sine (0 dBFS: dBFS here are RMS re a full-scale sine's RMS) reads {:.1} dB SPL",
         a.out.display(),

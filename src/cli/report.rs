@@ -1,7 +1,6 @@
 //! `gliss report`: measurement folders into one self-contained HTML file.
 
 use std::fs;
-use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use clap::Args as ClapArgs;
@@ -64,7 +63,7 @@ pub fn run(a: Args) -> Result<()> {
         .collect::<Result<Vec<_>>>()?;
     let written = humantime::format_rfc3339_seconds(std::time::SystemTime::now()).to_string();
     let html = report::render(&folders, &written);
-    write_out(&a.out, html.as_bytes(), a.overwrite)?;
+    gliss::folder::write::write_replacing(&a.out, html.as_bytes(), a.overwrite)?;
     let plots: usize = folders.iter().map(|f| f.plots.len()).sum();
     println!(
         "wrote {}: {} folder{}, {plots} plot{} embedded ({} kB); open it in a browser or print it",
@@ -75,35 +74,6 @@ pub fn run(a: Args) -> Result<()> {
         html.len().div_ceil(1024)
     );
     Ok(())
-}
-
-/// Writes `bytes` to a temporary file beside `out`, then renames it into
-/// place; without `overwrite` an existing `out` is never replaced.
-fn write_out(out: &Path, bytes: &[u8], overwrite: bool) -> Result<()> {
-    let name = out
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| "report.html".into());
-    let tmp = out.with_file_name(format!(".partial-{}-{name}", std::process::id()));
-    let mut f = fs::File::create(&tmp).map_err(|e| Error::io("create", &tmp, &e))?;
-    f.write_all(bytes)
-        .and_then(|()| f.sync_all())
-        .map_err(|e| Error::io("write", &tmp, &e))?;
-    drop(f);
-    if !overwrite && out.exists() {
-        let _ = fs::remove_file(&tmp);
-        return Err(Error::new(
-            ErrorKind::AlreadyExists,
-            format!(
-                "{} appeared while the report was written; choose another --out, or add --overwrite",
-                out.display()
-            ),
-        ));
-    }
-    fs::rename(&tmp, out).map_err(|e| {
-        let _ = fs::remove_file(&tmp);
-        Error::io("write", out, &e)
-    })
 }
 
 /// Reads one folder for the report through the one folder reader;

@@ -1,14 +1,13 @@
 //! `gliss sweep`: write a sweep and its parameters.
 
-use std::fs::OpenOptions;
-use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 use clap::Args as ClapArgs;
 
 use crate::cli::common::SweepArgs;
 use gliss::error::{Error, ErrorKind, Result};
 use gliss::folder::sha256_hex;
+use gliss::folder::write::write_new;
 use gliss::session::sweep_file::{self, SweepFile, WavInfo};
 use gliss::signal::wav::{self, SampleEncoding};
 
@@ -28,15 +27,6 @@ pub struct Args {
     /// Sample format: 16 or 24 (integer) or 32 (float).
     #[arg(long, value_name = "16|24|32", default_value_t = 32)]
     pub bits: u16,
-}
-
-fn create_new(path: &Path, bytes: &[u8]) -> Result<()> {
-    let mut f = OpenOptions::new()
-        .write(true)
-        .create_new(true)
-        .open(path)
-        .map_err(|e| Error::io("create", path, &e))?;
-    f.write_all(bytes).map_err(|e| Error::io("write", path, &e))
 }
 
 /// Runs `gliss sweep`.
@@ -82,8 +72,13 @@ pub fn run(a: Args) -> Result<()> {
         },
     };
     let json = gliss::session::to_json(&record)?;
-    create_new(&a.out, &bytes)?;
-    create_new(&side, &json)?;
+    write_new(&a.out, &bytes)?;
+    if let Err(e) = write_new(&side, &json) {
+        // the sweep without its description could not be analysed: the
+        // sweep this run wrote goes too, so the retry starts clean
+        let _ = std::fs::remove_file(&a.out);
+        return Err(e);
+    }
     println!(
         "wrote {} ({:.4} s sweep {}–{} Hz + {} s silence, {} Hz, peak {} dBFS, {}) and {}",
         a.out.display(),

@@ -284,8 +284,13 @@ pub struct MeasurementRecord {
     pub gap_s: f64,
     /// Where each take lies in recording.wav.
     pub takes: Vec<TakeRecord>,
-    /// Input frames lost to overruns or underruns (invalid if not 0).
+    /// Input frames known to be lost, dropped because the writer fell
+    /// behind (invalid if not 0).
     pub lost_frames: u64,
+    /// Overruns, underruns and errors of the driver, each losing an
+    /// unknown number of frames (invalid if not 0).
+    #[serde(default)]
+    pub interruptions: u64,
     /// Peak level of each recorded input over the whole recording, dBFS.
     pub input_peaks_dbfs: Vec<f64>,
     /// What the measured delay is relative to.

@@ -228,13 +228,142 @@ fn remove_stale_partials(dir: &Path) -> Result<()> {
     Ok(())
 }
 
+/// Writes a new file `path` (one a single command writes, outside a
+/// measurement folder: a sweep, a calibration): created new, never over an
+/// existing file, and removed again if it cannot be written whole, so that
+/// a failure (a full disk) leaves nothing that blocks the retry.
+pub fn write_new(path: &Path, bytes: &[u8]) -> Result<()> {
+    let mut f = fs::OpenOptions::new()
+        .write(true)
+        .create_new(true)
+        .open(path)
+        .map_err(|e| {
+            if e.kind() == std::io::ErrorKind::AlreadyExists {
+                Error::new(
+                    ErrorKind::AlreadyExists,
+                    format!(
+                        "{} already exists; gliss never overwrites files, choose another --out",
+                        path.display()
+                    ),
+                )
+            } else {
+                Error::io("create", path, &e)
+            }
+        })?;
+    if let Err(e) = f.write_all(bytes).and_then(|()| f.sync_all()) {
+        drop(f);
+        let _ = fs::remove_file(path);
+        return Err(single_failed(path, bytes.len(), &e));
+    }
+    Ok(())
+}
+
+/// Writes the file `out` (an export, a report) through a temporary file
+/// beside it and a rename, so that `out` is either the old file or the
+/// whole new one; without `overwrite` an existing `out` is never
+/// replaced. A failed write removes its temporary file.
+pub fn write_replacing(out: &Path, bytes: &[u8], overwrite: bool) -> Result<()> {
+    let name = out
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let tmp = out.with_file_name(format!("{PARTIAL_PREFIX}{}-{name}", std::process::id()));
+    let written = fs::File::create(&tmp).and_then(|mut f| {
+        f.write_all(bytes)?;
+        f.sync_all()
+    });
+    if let Err(e) = written {
+        let _ = fs::remove_file(&tmp);
+        return Err(single_failed(out, bytes.len(), &e));
+    }
+    if !overwrite && out.exists() {
+        let _ = fs::remove_file(&tmp);
+        return Err(Error::new(
+            ErrorKind::AlreadyExists,
+            format!(
+                "{} appeared while it was being written; choose another --out, or add --overwrite",
+                out.display()
+            ),
+        ));
+    }
+    fs::rename(&tmp, out).map_err(|e| {
+        let _ = fs::remove_file(&tmp);
+        Error::io("write", out, &e)
+    })
+}
+
+/// The error of a single file `path` of `len` bytes that could not be
+/// written; on a full disk, how much it needs and how much is free.
+fn single_failed(path: &Path, len: usize, e: &std::io::Error) -> Error {
+    let err = Error::io("write", path, e);
+    if err.kind() != ErrorKind::DiskFull {
+        return err;
+    }
+    let dir = path
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
+    let free = fs4::available_space(dir)
+        .map(|b| format!(", {} free now", crate::model::units::bytes(b)))
+        .unwrap_or_default();
+    err.with_advice(&format!(
+        "the file needs {}{free}; nothing was left behind: free at least that much space, or choose another --out, and run again",
+        crate::model::units::bytes(len as u64)
+    ))
+}
+
 /// A measurement folder about to be written, locked for this run until it
 /// is dropped.
+///
+/// **A failed run leaves nothing that blocks its retry.** It keeps a list
+/// of the files it creates. Dropped before its manifest was written (an
+/// error on the way: a full disk, a plot that could not be drawn), it
+/// removes them again, and its temporary files, so that the same command
+/// run again finds the folder as it was before: a new folder is gone, a
+/// folder being re-analysed holds its raw files and the manifest that says
+/// it is being replaced. Unless [`MeasurementFolder::keep_on_failure`] was
+/// called: a measurement keeps what it captured whatever happens.
 #[derive(Debug)]
 pub struct MeasurementFolder {
     dir: PathBuf,
     /// Held from the check until the folder is dropped.
     _lock: FolderLock,
+    /// What this run wrote: the files it created, their bytes, and
+    /// whether its manifest is written or its files are to be kept.
+    written: std::sync::Mutex<Written>,
+}
+
+/// The files a run created in its folder.
+#[derive(Debug, Default)]
+struct Written {
+    /// Created by this run, in order.
+    files: Vec<PathBuf>,
+    /// Their bytes, and those of the file that could not be written.
+    bytes: u64,
+    /// The manifest is written: the run succeeded, or wrote the record
+    /// of its failure.
+    manifest: bool,
+    /// Keep the files even if the run fails (a measurement's capture).
+    keep: bool,
+}
+
+impl Drop for MeasurementFolder {
+    fn drop(&mut self) {
+        let w = self.written.get_mut().unwrap_or_else(|p| p.into_inner());
+        let mine = format!("{PARTIAL_PREFIX}{}-", std::process::id());
+        for d in [self.dir.clone(), self.dir.join("plots")] {
+            for e in fs::read_dir(&d).into_iter().flatten().flatten() {
+                if e.file_name().to_string_lossy().starts_with(&mine) {
+                    let _ = fs::remove_file(e.path());
+                }
+            }
+        }
+        if !w.manifest && !w.keep {
+            for f in w.files.iter().rev() {
+                let _ = fs::remove_file(f);
+            }
+        }
+    }
 }
 
 impl MeasurementFolder {
@@ -262,6 +391,7 @@ impl MeasurementFolder {
         let folder = MeasurementFolder {
             dir: dir.to_path_buf(),
             _lock: lock,
+            written: std::sync::Mutex::default(),
         };
         remove_stale_partials(dir)?;
         let mut entries = fs::read_dir(dir)
@@ -395,12 +525,74 @@ impl MeasurementFolder {
     /// commit point).
     fn write_durable(&self, rel: &str, bytes: &[u8]) -> Result<()> {
         let tmp = self.temp_path(rel);
-        let mut f = fs::File::create(&tmp).map_err(|e| Error::io("create", &tmp, &e))?;
-        f.write_all(bytes)
-            .and_then(|()| f.sync_all())
-            .map_err(|e| Error::io("write", &tmp, &e))?;
-        drop(f);
+        let written = fs::File::create(&tmp).and_then(|mut f| {
+            f.write_all(bytes)?;
+            f.sync_all()
+        });
+        if let Err(e) = written {
+            let _ = fs::remove_file(&tmp);
+            return Err(self.failed("write", &self.dir.join(rel), bytes.len(), &e));
+        }
         self.commit(&tmp, rel)
+    }
+
+    /// Keeps every file this run writes even if it fails: a measurement's
+    /// capture, which cannot be made again by running the command again.
+    pub fn keep_on_failure(&self) {
+        self.lock_written().keep = true;
+    }
+
+    /// What this run wrote.
+    fn lock_written(&self) -> std::sync::MutexGuard<'_, Written> {
+        self.written.lock().unwrap_or_else(|p| p.into_inner())
+    }
+
+    /// Notes that this run created `path` (`bytes` long).
+    fn created(&self, path: PathBuf, bytes: u64) {
+        let mut w = self.lock_written();
+        w.bytes += bytes;
+        if !w.files.contains(&path) {
+            w.files.push(path);
+        }
+    }
+
+    /// The error of a failed write of `path` (`len` bytes), with what the
+    /// run needed and what it did about it when the disk was full.
+    fn failed(&self, doing: &str, path: &Path, len: usize, e: &std::io::Error) -> Error {
+        let err = Error::io(doing, path, e);
+        if err.kind() == ErrorKind::DiskFull {
+            self.disk_full(err, len as u64)
+        } else {
+            err
+        }
+    }
+
+    /// Adds to a disk-full error how much room this run had, and so how
+    /// much it needs at least (what it had written, plus the `more` bytes
+    /// of the file it was writing, plus what was still free), and what
+    /// happens to what it wrote.
+    pub fn disk_full(&self, err: Error, more: u64) -> Error {
+        let w = self.lock_written();
+        let b = crate::model::units::bytes;
+        let room = match fs4::available_space(&self.dir) {
+            Ok(free) => format!(
+                "this run needs more than the {} the disk had for it ({} written when it filled)",
+                b(w.bytes + more + free),
+                b(w.bytes + more)
+            ),
+            Err(_) => format!(
+                "this run needs more than the {} it had written when the disk filled",
+                b(w.bytes + more)
+            ),
+        };
+        let kept = if w.keep {
+            "what was recorded is kept"
+        } else {
+            "what this run wrote has been removed"
+        };
+        err.with_advice(&format!(
+            "{room}; {kept}: free more space, or choose another --out, and run again"
+        ))
     }
 
     /// Writes a raw file once: if it already exists with the same bytes it
@@ -426,10 +618,16 @@ impl MeasurementFolder {
             .write(true)
             .create_new(true)
             .open(&path)
-            .map_err(|e| Error::io("create", &path, &e))?;
-        f.write_all(bytes)
-            .and_then(|_| f.sync_all())
-            .map_err(|e| Error::io("write", &path, &e))?;
+            .map_err(|e| self.failed("create", &path, bytes.len(), &e))?;
+        if let Err(e) = f.write_all(bytes).and_then(|_| f.sync_all()) {
+            // the file is this run's own copy: a half-written one goes
+            drop(f);
+            if !self.lock_written().keep {
+                let _ = fs::remove_file(&path);
+            }
+            return Err(self.failed("write", &path, bytes.len(), &e));
+        }
+        self.created(path, bytes.len() as u64);
         Ok(hash)
     }
 
@@ -454,17 +652,31 @@ impl MeasurementFolder {
                 format!("refusing to replace the raw file {}", path.display()),
             ));
         }
-        fs::rename(temp, &path).map_err(|e| Error::io("move into place", &path, &e))
+        let len = fs::metadata(temp).map_or(0, |m| m.len());
+        // a file replaced (the manifest marked as being replaced) is not
+        // this run's to take away
+        let new = !path.exists();
+        fs::rename(temp, &path).map_err(|e| Error::io("move into place", &path, &e))?;
+        if new {
+            self.created(path, len);
+        }
+        Ok(())
     }
 
     /// Writes the derived file `rel` through a temporary name (the
     /// manifest also synced to disk before its rename).
     pub fn write_derived(&self, rel: &str, bytes: &[u8]) -> Result<()> {
         if rel == "manifest.json" {
-            return self.write_durable(rel, bytes);
+            // the run's record is written: from here a failure keeps it
+            self.write_durable(rel, bytes)?;
+            self.lock_written().manifest = true;
+            return Ok(());
         }
         let tmp = self.temp_path(rel);
-        fs::write(&tmp, bytes).map_err(|e| Error::io("write", &tmp, &e))?;
+        if let Err(e) = fs::write(&tmp, bytes) {
+            let _ = fs::remove_file(&tmp);
+            return Err(self.failed("write", &self.dir.join(rel), bytes.len(), &e));
+        }
         self.commit(&tmp, rel)
     }
 
@@ -472,6 +684,23 @@ impl MeasurementFolder {
     pub fn derived_entry(&self, rel: &str, bytes: &[u8]) -> Result<FileEntry> {
         self.write_derived(rel, bytes)?;
         Ok(derived(rel, bytes))
+    }
+
+    /// Draws the derived file `rel` (a plot) with `draw`, which writes it
+    /// to the temporary path it is given, moves it into place and returns
+    /// its manifest entry.
+    pub fn draw(&self, rel: &str, draw: impl FnOnce(&Path) -> Result<()>) -> Result<FileEntry> {
+        let tmp = self.temp_path(rel);
+        if let Err(e) = draw(&tmp) {
+            let len = fs::metadata(&tmp).map_or(0, |m| m.len());
+            let _ = fs::remove_file(&tmp);
+            return Err(if e.kind() == ErrorKind::DiskFull {
+                self.disk_full(e, len)
+            } else {
+                e
+            });
+        }
+        self.commit_entry(&tmp, rel)
     }
 
     /// Moves a finished temporary derived file (a plot its writer drew to
@@ -508,12 +737,64 @@ mod tests {
         assert_eq!(fs::read(dir.join("recording.wav")).unwrap(), b"one");
         assert!(f.write_derived("recording.wav", b"x").is_err());
         assert_eq!(fs::read(dir.join("recording.wav")).unwrap(), b"one");
+        f.write_derived("manifest.json", b"{}").unwrap();
         drop(f); // the writer's lock goes with it
         // a non-empty folder is refused without --overwrite
         assert!(MeasurementFolder::check(&dir, false, &[]).is_err());
         // and with it, only when the raw files agree
         assert!(MeasurementFolder::check(&dir, true, &[("recording.wav", b"one")]).is_ok());
         assert!(MeasurementFolder::check(&dir, true, &[("recording.wav", b"two")]).is_err());
+    }
+
+    #[test]
+    fn a_run_that_fails_before_its_manifest_takes_away_what_it_wrote() {
+        let t = tempfile::tempdir().unwrap();
+        // a new folder: everything goes, the folder too
+        let dir = t.path().join("new");
+        let f = MeasurementFolder::check(&dir, false, &[]).unwrap();
+        f.create().unwrap();
+        f.write_raw("recording.wav", b"raw").unwrap();
+        f.write_derived("results.json", b"{}").unwrap();
+        let tmp = f.temp_path("plots/response.png");
+        fs::write(&tmp, b"half a plot").unwrap();
+        drop(f); // an error on the way: no manifest written
+        assert!(!dir.exists(), "{:?}", fs::read_dir(&dir).map(|d| d.count()));
+        // a measurement keeps what it wrote
+        let dir = t.path().join("measured");
+        let f = MeasurementFolder::check(&dir, false, &[]).unwrap();
+        f.create().unwrap();
+        f.write_raw("recording.wav", b"raw").unwrap();
+        f.keep_on_failure();
+        f.write_derived("impulse.wav", b"ir").unwrap();
+        drop(f);
+        assert_eq!(fs::read(dir.join("recording.wav")).unwrap(), b"raw");
+        // a re-analysis: the raw files and the marked manifest stay, the
+        // new derived files go
+        let dir = t.path().join("again");
+        let f = MeasurementFolder::check(&dir, false, &[]).unwrap();
+        f.create().unwrap();
+        let hash = f.write_raw("recording.wav", b"raw").unwrap();
+        let manifest = serde_json::json!({
+            "complete": true,
+            "files": [{"name": "recording.wav", "role": "raw", "sha256": hash}],
+        });
+        f.write_derived("manifest.json", manifest.to_string().as_bytes())
+            .unwrap();
+        drop(f);
+        let f = MeasurementFolder::check(&dir, true, &[("recording.wav", b"raw")]).unwrap();
+        f.create().unwrap();
+        f.write_derived("results.json", b"{}").unwrap();
+        drop(f);
+        let mut left: Vec<String> = fs::read_dir(&dir)
+            .unwrap()
+            .flatten()
+            .map(|e| e.file_name().to_string_lossy().into_owned())
+            .collect();
+        left.sort();
+        assert_eq!(left, ["manifest.json", "plots", "recording.wav"]);
+        let m: serde_json::Value =
+            serde_json::from_slice(&fs::read(dir.join("manifest.json")).unwrap()).unwrap();
+        assert_eq!(m["complete"], false);
     }
 
     #[test]

@@ -71,6 +71,21 @@ pub fn trim(v: f64, decimals: usize) -> String {
     }
 }
 
+/// A size in bytes for people: "812 kB", "2.4 MB", "1.25 GB" (decimal
+/// units, as disks are sold and as `df -H` shows them).
+pub fn bytes(n: u64) -> String {
+    let v = n as f64;
+    if v < 1e3 {
+        format!("{n} bytes")
+    } else if v < 1e6 {
+        format!("{:.0} kB", v / 1e3)
+    } else if v < 1e9 {
+        format!("{:.1} MB", v / 1e6)
+    } else {
+        format!("{:.2} GB", v / 1e9)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -102,5 +117,13 @@ mod tests {
     fn times_in_words() {
         assert_eq!(seconds(0.35), "350 ms");
         assert_eq!(seconds(1.254), "1.25 s");
+    }
+
+    #[test]
+    fn sizes_read_as_disks_are_sold() {
+        assert_eq!(bytes(999), "999 bytes");
+        assert_eq!(bytes(812_345), "812 kB");
+        assert_eq!(bytes(2_449_000), "2.4 MB");
+        assert_eq!(bytes(1_250_000_000), "1.25 GB");
     }
 }

@@ -55,9 +55,19 @@ pub(super) fn canvas<'a>(path: &'a Path, heading: &str) -> Result<(Area<'a>, Are
 
 pub(super) fn plot_error<E: std::fmt::Display>(path: &Path) -> impl FnOnce(E) -> Error + '_ {
     move |e| {
+        let text = e.to_string();
+        // the plotting crate keeps the system's error only as text inside
+        // its own (the PNG encoder wraps it again), so a full disk is
+        // recognised by the system's error number in that text
+        if crate::error::text_says_full(&text) {
+            return Error::new(
+                ErrorKind::DiskFull,
+                format!("could not draw {}: the disk is full", path.display()),
+            );
+        }
         Error::new(
             ErrorKind::Io,
-            format!("could not draw {}: {e}", path.display()),
+            format!("could not draw {}: {text}", path.display()),
         )
     }
 }

@@ -542,11 +542,14 @@ fn about(out: &mut String, f: &Folder, m: &Manifest) {
             &format!("{} (gap {} s)", d.repeat, trim(d.gap_s, 3)),
         );
         row(
-            "Lost frames",
-            &if d.lost_frames == 0 {
+            "Lost samples",
+            &if d.lost_frames == 0 && d.interruptions == 0 {
                 "none".to_string()
             } else {
-                format!("{} (the measurement is not valid)", d.lost_frames)
+                format!(
+                    "{} frames dropped, {} overruns, underruns or driver errors (the measurement is not valid)",
+                    d.lost_frames, d.interruptions
+                )
             },
         );
     }

@@ -532,9 +532,7 @@ fn draw_average_plots(
     };
     let mut files = Vec::new();
     for kind in input.kinds() {
-        let tmp = folder.temp_path(kind.file());
-        plot::draw_average(kind, &tmp, &input)?;
-        files.push(folder.commit_entry(&tmp, kind.file())?);
+        files.push(folder.draw(kind.file(), |tmp| plot::draw_average(kind, tmp, &input))?);
     }
     Ok(files)
 }
@@ -925,9 +923,7 @@ fn draw_comparison_plots(
     };
     let mut files = Vec::new();
     for kind in input.kinds() {
-        let tmp = folder.temp_path(kind.file());
-        plot::draw_comparison(kind, &tmp, &input)?;
-        files.push(folder.commit_entry(&tmp, kind.file())?);
+        files.push(folder.draw(kind.file(), |tmp| plot::draw_comparison(kind, tmp, &input))?);
     }
     Ok(files)
 }

@@ -614,14 +614,5 @@ pub fn write(out: &Path, bytes: &[u8], overwrite: bool, m: &Measurement) -> Resu
             ),
         ));
     }
-    let tmp = parent.join(format!(
-        ".partial-{}-{}",
-        std::process::id(),
-        name.to_string_lossy()
-    ));
-    std::fs::write(&tmp, bytes).map_err(|e| Error::io("write", &tmp, &e))?;
-    std::fs::rename(&tmp, out).map_err(|e| {
-        let _ = std::fs::remove_file(&tmp);
-        Error::io("write", out, &e)
-    })
+    crate::folder::write::write_replacing(out, bytes, overwrite)
 }

@@ -24,9 +24,16 @@ use crate::signal::wav::{SampleEncoding, WavData, decode_wav, encode_wav};
 /// decay; this keeps one sweep's decay out of the next one's start).
 pub const GAP_S: f64 = 0.5;
 
+/// How often the raw recording's header is brought up to date, s: a
+/// header rewrite (one seek, 44 bytes) and a write of the buffered data
+/// twenty times a second cost nothing next to the audio itself.
+pub const FLUSH_S: f64 = 0.05;
+
 /// Writes the raw recording while it is captured: 32-bit float WAV,
 /// created new (never over an existing file), its header brought up to
-/// date about twice a second so that a crash leaves a readable file.
+/// date every [`FLUSH_S`] so that a crash (even `kill -9`) leaves a
+/// readable file whose header lags its data by no more than that and one
+/// block.
 pub struct RawWavSink {
     path: PathBuf,
     writer: Option<hound::WavWriter<BufWriter<File>>>,
@@ -42,16 +49,20 @@ impl RawWavSink {
             path: path.to_path_buf(),
             writer: None,
             frames_since_flush: 0,
-            flush_every: 24_000,
+            flush_every: 2_400,
             channels: 1,
         }
     }
 
     fn fail(&self, e: hound::Error) -> Error {
-        Error::new(
-            ErrorKind::Io,
-            format!("could not write {}: {e}", self.path.display()),
-        )
+        match e {
+            // a full disk says so, and what is kept
+            hound::Error::IoError(io) => Error::io("write", &self.path, &io),
+            e => Error::new(
+                ErrorKind::Io,
+                format!("could not write {}: {e}", self.path.display()),
+            ),
+        }
     }
 }
 
@@ -71,7 +82,7 @@ impl RawSink for RawWavSink {
         let w = hound::WavWriter::new(BufWriter::new(file), spec).map_err(|e| self.fail(e))?;
         self.writer = Some(w);
         self.channels = channels.max(1);
-        self.flush_every = (sample_rate_hz / 2) as usize;
+        self.flush_every = ((FLUSH_S * f64::from(sample_rate_hz)) as usize).max(1);
         Ok(())
     }
 
@@ -84,11 +95,7 @@ impl RawSink for RawWavSink {
         };
         for &v in interleaved {
             if let Err(e) = w.write_sample(v) {
-                let path = self.path.display().to_string();
-                return Err(Error::new(
-                    ErrorKind::Io,
-                    format!("could not write {path}: {e}"),
-                ));
+                return Err(self.fail(e));
             }
         }
         self.frames_since_flush += interleaved.len() / self.channels;
@@ -325,7 +332,63 @@ pub fn check(m: &MeasureJob, device: &dyn PlayRecord) -> Result<()> {
         t.resolve_range((m.design.params.start_hz, m.design.params.end_hz))?;
     }
     MeasurementFolder::check(&m.out, false, &[])?;
-    Ok(())
+    check_space(m, ins)
+}
+
+/// Room the analysis of a measurement takes besides its raw files and
+/// impulse response: results.json and the tables (about 0.3 MB measured on
+/// a 48 kHz measurement, with a margin), bytes.
+const TABLES_ROOM: u64 = 500_000;
+
+/// Room its plots take (about 1.5 to 2 MB measured for a loudspeaker or a
+/// room, with a margin), bytes.
+const PLOTS_ROOM: u64 = 2_500_000;
+
+/// The bytes a measurement writes, about: (recording, sweep, analysis).
+/// The recording is 32-bit float on every input for the whole program and
+/// a second more (the device's start and latency); the sweep and the
+/// impulse response are 32-bit float, one channel.
+pub fn space_needed(m: &MeasureJob, input_channels: usize) -> (u64, u64, u64) {
+    let p = &m.design.params;
+    let frames = (m.design.total_samples as u64 + (GAP_S * f64::from(p.sample_rate_hz)) as u64)
+        * m.repeat as u64
+        + u64::from(p.sample_rate_hz);
+    let recording = frames * input_channels.max(1) as u64 * 4 + 44;
+    let sweep = m.design.total_samples as u64 * 4 + 44;
+    let plots = if m.plots { PLOTS_ROOM } else { 0 };
+    (recording, sweep, sweep + TABLES_ROOM + plots)
+}
+
+/// Refuses, before anything is played, a measurement whose files would
+/// not fit on the disk that is to hold them: found out halfway, it would
+/// have to be played again.
+fn check_space(m: &MeasureJob, input_channels: usize) -> Result<()> {
+    let existing = m
+        .out
+        .ancestors()
+        .find(|d| d.is_dir())
+        .unwrap_or(Path::new("."));
+    let Ok(free) = fs4::available_space(existing) else {
+        return Ok(());
+    };
+    let (recording, sweep, analysis) = space_needed(m, input_channels);
+    let needed = recording + sweep + analysis;
+    if free >= needed {
+        return Ok(());
+    }
+    let b = crate::model::units::bytes;
+    Err(Error::new(
+        ErrorKind::DiskFull,
+        format!(
+            "the disk that would hold {} has {} free, and this measurement needs about {} (the recording {}, the sweep {}, the analysis and plots about {}): free space or choose another --out; nothing was played",
+            m.out.display(),
+            b(free),
+            b(needed),
+            b(recording),
+            b(sweep),
+            b(analysis)
+        ),
+    ))
 }
 
 /// Plays and records through `device` into a new folder, then analyses.
@@ -420,6 +483,9 @@ fn start_folder(m: &MeasureJob, device: &dyn PlayRecord) -> Result<Started> {
     let description = device.describe();
     folder.create()?;
     let stim_hash = folder.write_raw("stimulus.wav", &stimulus_bytes)?;
+    // from here on the folder holds a measurement's raw files, which a
+    // failure never takes away
+    folder.keep_on_failure();
     let files = vec![raw_entry("stimulus.wav", stim_hash)];
     write_manifest(
         &folder,
@@ -520,7 +586,7 @@ fn keep_failed_capture(
     files: Vec<FileEntry>,
     e: &Error,
 ) -> Result<Error> {
-    write_manifest(
+    let noted = write_manifest(
         &started.folder,
         &incomplete_manifest(
             m,
@@ -530,11 +596,17 @@ fn keep_failed_capture(
             vec![e.message().to_string()],
             started.input_channels,
         ),
-    )?;
+    );
+    // on a full disk the manifest may not be written either: the error
+    // that stopped the measurement is still the one to tell
+    let manifest = match noted {
+        Ok(()) => "manifest marked incomplete".to_string(),
+        Err(_) => "its manifest still says the measurement is in progress".to_string(),
+    };
     Ok(Error::new(
         e.kind(),
         format!(
-            "{}; what was recorded is kept in {} (manifest marked incomplete)",
+            "{}; what was recorded is kept in {} ({manifest})",
             e.message(),
             started.folder.dir().display()
         ),
@@ -584,6 +656,7 @@ fn measurement_record(
         gap_s: gap as f64 / f64::from(m.design.params.sample_rate_hz),
         takes,
         lost_frames: capture.lost_frames,
+        interruptions: capture.interruptions,
         input_peaks_dbfs: input_peaks_dbfs(&capture.channels),
         delay_note: delay_note(m.reference.is_some(), capture.signal_start),
     }
@@ -591,7 +664,10 @@ fn measurement_record(
 
 /// Whether a capture cannot be analysed: a fault, a stop or lost samples.
 fn is_invalid(capture: &Capture) -> bool {
-    capture.stopped || capture.fault.is_some() || capture.lost_frames > 0
+    capture.stopped
+        || capture.fault.is_some()
+        || capture.lost_frames > 0
+        || capture.interruptions > 0
 }
 
 /// Everything that went wrong in a capture, in words: the device's
@@ -618,7 +694,7 @@ fn invalid_reason(capture: &Capture, holds_every_take: bool) -> Option<String> {
         f.clone()
     } else if capture.stopped {
         "the measurement was stopped".to_string()
-    } else if capture.lost_frames > 0 {
+    } else if capture.lost_frames > 0 || capture.interruptions > 0 {
         "samples were lost (an overrun or underrun), so the measurement is invalid; close other programs, use a larger --buffer, and measure again".to_string()
     } else {
         "the recording is too short".to_string()

@@ -503,9 +503,7 @@ fn draw_plots(
     };
     let mut files = Vec::new();
     for kind in input.kinds() {
-        let tmp = folder.temp_path(kind.file());
-        plot::draw_measurement(kind, &tmp, &input)?;
-        files.push(folder.commit_entry(&tmp, kind.file())?);
+        files.push(folder.draw(kind.file(), |tmp| plot::draw_measurement(kind, tmp, &input))?);
     }
     Ok(files)
 }

@@ -13,6 +13,7 @@ mod examples;
 mod export;
 mod features;
 mod folder_safety;
+mod full_disk;
 mod measure;
 mod mistakes;
 mod report;

@@ -246,6 +246,89 @@ fn stopped_by(signal: &str) {
 }
 
 #[test]
+fn after_kill_9_the_raw_header_lags_its_data_by_at_most_a_tenth_of_a_second() {
+    let _one = SINK.lock().unwrap_or_else(|e| e.into_inner());
+    if !sound_server() {
+        return;
+    }
+    // killed at three moments, so that the kill falls at different
+    // points between two header updates
+    for (k, (after_s, wait_ms)) in [(1.0, 13), (1.37, 31), (1.71, 47), (2.03, 71)]
+        .into_iter()
+        .enumerate()
+    {
+        let t = tempfile::tempdir().unwrap();
+        let bin = assert_cmd::cargo::cargo_bin("gliss");
+        let mut child = Command::new(bin)
+            .current_dir(t.path())
+            .args([
+                "measure",
+                "--out",
+                "cut",
+                "--length",
+                "8",
+                "--tail",
+                "1",
+                "--no-plots",
+            ])
+            .stdout(std::process::Stdio::null())
+            .stderr(std::process::Stdio::null())
+            .spawn()
+            .unwrap();
+        let raw = t.path().join("cut/recording.wav");
+        let enough = 44 + (after_s * 48_000.0) as u64 * 4;
+        let waited = std::time::Instant::now();
+        while std::fs::metadata(&raw).map_or(0, |m| m.len()) < enough {
+            assert!(
+                waited.elapsed() < Duration::from_secs(30),
+                "no recording reached the disk"
+            );
+            std::thread::sleep(Duration::from_millis(7));
+        }
+        // a little later, not right as the file grew
+        std::thread::sleep(Duration::from_millis(wait_ms));
+        child.kill().unwrap(); // SIGKILL: nothing runs after it
+        child.wait().unwrap();
+        let bytes = std::fs::read(&raw).unwrap();
+        let (declared, data_at, frame_bytes) = data_chunk(&bytes);
+        let on_disk = (bytes.len() - data_at) as u64;
+        assert!(
+            declared <= on_disk,
+            "the header claims more than the file holds"
+        );
+        let lag_s = (on_disk - declared) as f64 / frame_bytes as f64 / 48_000.0;
+        eprintln!(
+            "kill {k}: the header declares {declared} of {on_disk} bytes: {lag_s:.3} s behind"
+        );
+        assert!(lag_s <= 0.1, "the header lags its data by {lag_s:.3} s");
+        // and the file reads as a WAV of what the header says
+        let (rate, rec) = read_wav(&raw);
+        assert_eq!(rate, 48_000);
+        assert!(rec[0].len() as f64 / 48_000.0 >= after_s - 0.1);
+    }
+}
+
+/// A RIFF/WAVE file's data chunk: (declared size, offset of its data, bytes
+/// per frame from the fmt chunk's block align).
+fn data_chunk(b: &[u8]) -> (u64, usize, usize) {
+    assert_eq!(&b[..4], b"RIFF");
+    assert_eq!(&b[8..12], b"WAVE");
+    let u32_at = |i: usize| u32::from_le_bytes([b[i], b[i + 1], b[i + 2], b[i + 3]]);
+    let mut i = 12;
+    let mut align = 0;
+    while i + 8 <= b.len() {
+        let size = u32_at(i + 4) as usize;
+        match &b[i..i + 4] {
+            b"fmt " => align = u16::from_le_bytes([b[i + 20], b[i + 21]]) as usize,
+            b"data" => return (u64::from(u32_at(i + 4)), i + 8, align),
+            _ => {}
+        }
+        i += 8 + size + size % 2;
+    }
+    panic!("no data chunk");
+}
+
+#[test]
 fn devices_lists_the_sound_server_with_its_rates() {
     let _one = SINK.lock().unwrap_or_else(|e| e.into_inner());
     if !sound_server() {
