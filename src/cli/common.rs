@@ -419,8 +419,8 @@ pub fn print_octave_verdicts(cmp: &gliss::folder::schema::Comparison, k: usize) 
             .flatten()
             .map_or("not judged", gliss::analysis::compare::Verdict::words);
         println!(
-            "  {:>6} Hz  T30 {t0:.2} s -> {t1:.2} s ({:+.0} %){}: {verdict}",
-            gliss::model::units::format_hz(r.center_hz),
+            "  {:>9}  T30 {t0:.2} s -> {t1:.2} s ({:+.0} %){}: {verdict}",
+            gliss::model::units::hz(r.center_hz),
             100.0 * r.changes.relative_change[k].unwrap_or(0.0),
             area.map_or(String::new(), |x| format!(", {x:+.1} m² absorption")),
         );

@@ -87,13 +87,13 @@ pub fn run(a: Args) -> Result<()> {
         for (i, r) in cmp.inputs.iter().zip(&t.per_input) {
             match r {
                 Some(r) => println!(
-                    "target {}: {} deviates at most {:.1} dB (mean {:.1} dB) over {}–{} Hz{}",
+                    "target {}: {} deviates at most {:.1} dB (mean {:.1} dB) over {}–{}{}",
                     t.file,
                     i.label,
                     r.max_abs_db,
                     r.mean_abs_db,
-                    gliss::model::units::format_hz(r.range_hz[0].round()),
-                    gliss::model::units::format_hz(r.range_hz[1].round()),
+                    gliss::model::units::hz(r.range_hz[0].round()),
+                    gliss::model::units::hz(r.range_hz[1].round()),
                     r.inside_share
                         .map(|s| format!(", {:.0} % within tolerance", 100.0 * s))
                         .unwrap_or_default()

@@ -18,7 +18,6 @@ use crate::folder::schema::{
 };
 use crate::folder::{self, MeasurementFolder};
 use crate::model::plot_kind::PLOTS_BUILT;
-use crate::model::units::format_hz;
 use crate::model::{Code, Fraction, Parameter, Warnings};
 #[cfg(feature = "plots")]
 use crate::plot;
@@ -142,9 +141,9 @@ fn common_grid(inputs: &[Input], warnings: &mut Warnings) -> Result<Vec<f64>> {
         warnings.add(
             Code::DifferentBands,
             format!(
-                "the folders' sweeps cover different bands; only the common band {} Hz to {} Hz is compared",
-                format_hz(lo.round()),
-                format_hz(hi.round())
+                "the folders' sweeps cover different bands; only the common band {} to {} is compared",
+                crate::model::units::hz(lo.round()),
+                crate::model::units::hz(hi.round())
             ),
         );
     }

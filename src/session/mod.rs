@@ -12,7 +12,6 @@ use crate::analysis::target::{self, Target};
 use crate::analysis::{self, Analysis, AnalysisConfig, Distortion};
 use crate::error::{Error, Result};
 use crate::model::plot_kind::PLOTS_BUILT;
-use crate::model::units::format_hz;
 use crate::model::{Code, Parameter, Warnings};
 #[cfg(feature = "plots")]
 use crate::plot;
@@ -535,12 +534,12 @@ pub fn target_summary(r: &TargetRecord) -> String {
         "absolute levels".to_string()
     };
     format!(
-        "target {}: {} to {} Hz ({how}): max deviation {:.2} dB at {} Hz, mean {:.2} dB{inside}",
+        "target {}: {} to {} ({how}): max deviation {:.2} dB at {}, mean {:.2} dB{inside}",
         r.file,
-        format_hz(r.report.range_hz[0]),
-        format_hz(r.report.range_hz[1]),
+        crate::model::units::hz(r.report.range_hz[0]),
+        crate::model::units::hz(r.report.range_hz[1]),
         r.report.max_abs_db,
-        format_hz(r.report.worst_hz.round()),
+        crate::model::units::hz(r.report.worst_hz.round()),
         r.report.mean_abs_db,
     )
 }
