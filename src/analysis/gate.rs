@@ -143,9 +143,10 @@ pub enum Arrival {
 /// point since the peak, and a loudspeaker's 3–5 dB resonance at 2–3 kHz
 /// beating with the rest of its response made such a rise 0.5 ms after
 /// the peak in 22 of 50 two-way-like filters). Its local maxima, though,
-/// do not rise: over that family they rose at most 0.9 dB above the
-/// highest local maximum of the millisecond before them, down to 45 dB
-/// below the peak, while reflections 3–10 dB down rose 28–39 dB above it.
+/// do not rise: over that family each rose at most 0.9 dB above the local
+/// maximum before it, down to 45 dB below the peak, while reflections
+/// 3–10 dB down rose 28–39 dB above theirs (the rule's reference, the
+/// highest over the last millisecond, is never lower than the last one).
 /// So, over the local maxima (largest within ±0.1 ms) from 0.3 ms after
 /// the peak and within 25 dB of it:
 /// - one that rises [`NEW_ARRIVAL_DB`] above the decay (the highest local
