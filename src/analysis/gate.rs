@@ -21,7 +21,8 @@ pub enum Gate {
         /// End, s after the peak.
         end_s: f64,
     },
-    /// End just before the first strong reflection in the energy-time curve.
+    /// End just before the first strong reflection in the energy-time curve
+    /// (see [`find_arrival`]).
     Auto,
 }
 
