@@ -278,12 +278,15 @@ pub fn analyze(
     // alone; distortion and bands keep the whole linear response
     let (gated, gate_info) = match config.gate {
         Some(g) => {
-            let (gs, glen, fade_in, fade_out, info) = gate::window(&h, ipeak, fs, f2, g);
+            let c = gate::window(&h, ipeak, fs, f2, g);
+            if let Some(w) = c.warning {
+                warnings.push(w);
+            }
             // a gate longer than the analysed response adds nothing
-            let glen = glen.min(fft_len);
-            let cut = deconv::cut(&h, gs, glen, fade_in.min(glen), fade_out.min(glen));
-            let (gspec, _) = linear_spectrum(&cut, gs as f64, delay_samples, fs, fft_len, f1);
-            (Some(gspec), Some(info))
+            let glen = c.len.min(fft_len);
+            let cut = deconv::cut(&h, c.start, glen, c.fade_in.min(glen), c.fade_out.min(glen));
+            let (gspec, _) = linear_spectrum(&cut, c.start as f64, delay_samples, fs, fft_len, f1);
+            (Some(gspec), Some(c.info))
         }
         None => (None, None),
     };
@@ -525,8 +528,9 @@ pub fn response_from_impulse(
             };
             // the gate as the analysis cut it, in the coordinates of `ir`
             // (whose peak is `pre` samples in)
-            let (gs, glen, fade_in, fade_out, _) = gate::window(ir, pre, fs, f2, fixed);
-            let glen = glen.min(fft_len);
+            let c = gate::window(ir, pre, fs, f2, fixed);
+            let (gs, fade_in, fade_out) = (c.start, c.fade_in, c.fade_out);
+            let glen = c.len.min(fft_len);
             let taper_in = pre / 2;
             let taper_out = (ir.len() / 20).max(8).min(ir.len());
             if gs < taper_in as isize || gs as usize + glen > ir.len() - taper_out {

@@ -117,9 +117,11 @@ pub struct OutputArgs {
     #[arg(long, value_name = "N", default_value_t = 5)]
     pub harmonics: u32,
     /// Gate the impulse response for a quasi-anechoic response: auto (end
-    /// just before the first strong reflection) or START_MS,END_MS relative
-    /// to the impulse peak, e.g. -1,5, or none. Below 1/gate length the
-    /// response is marked unresolved [default: none, speaker auto].
+    /// just before the first strong reflection, not the loudspeaker's own
+    /// ringing; a warning says when it cannot tell them apart) or
+    /// START_MS,END_MS relative to the impulse peak, e.g. -1,5, or none.
+    /// Below 1/gate length the response is marked unresolved [default:
+    /// none, speaker auto].
     #[arg(
         long,
         value_name = "auto|START_MS,END_MS|none",

@@ -96,6 +96,9 @@ codes! {
     MicCorrectionCoverage = "mic-correction-coverage", Caution, Calibration;
     /// The gate resolves the response only above a frequency.
     GateResolution = "gate-resolution", Note, Gate;
+    /// The auto gate cannot tell a rise in the energy-time curve from the
+    /// loudspeaker's own ringing, and ends before it.
+    GateUncertain = "gate-uncertain", Caution, Gate;
     /// The recording stops with the sweep: the room's decay is cut off.
     TailCut = "tail-cut", Problem, NoiseFloor;
     /// A band: the recording ends before the decay.

@@ -37,7 +37,7 @@ pub fn topic(t: Topic) -> (&'static str, &'static str) {
         ),
         Topic::Gate => (
             "Gated (quasi-anechoic) response",
-            "Below the gate's resolution the curve shows the room as much as the loudspeaker. For the low end, move the loudspeaker away from reflecting surfaces for a longer gate, or measure close to the driver.",
+            "Below the gate's resolution the curve shows the room as much as the loudspeaker. For the low end, move the loudspeaker away from reflecting surfaces for a longer gate, or measure close to the driver. Where the auto gate could not tell a reflection from the loudspeaker's own ringing, read the energy-time curve and give the gate by hand (--gate -1,N, N in ms before the first reflection).",
         ),
         Topic::Distortion => (
             "Distortion",
