@@ -148,7 +148,7 @@ impl Meter {
             Some(total_frames),
             indicatif::ProgressDrawTarget::stderr(),
         );
-        if let Ok(style) = indicatif::ProgressStyle::with_template("{bar:30} {msg}") {
+        if let Ok(style) = indicatif::ProgressStyle::with_template("{bar:16} {msg}") {
             bar.set_style(style.progress_chars("=> "));
         }
         Meter {
@@ -166,25 +166,53 @@ impl Meter {
             self.hold = p.peak;
             self.hold_age = 0;
         }
-        let db = 20.0 * f64::from(self.hold.max(1e-6)).log10();
-        let cells = (((db + 60.0) / 60.0).clamp(0.0, 1.0) * 12.0).round() as usize;
-        let warn = if db >= -0.1 {
-            " CLIP"
-        } else if db < -50.0 && p.done_frames > 0 {
-            " low"
-        } else {
-            ""
-        };
         let done = p.done_frames as f64 / self.rate;
         let total = p.total_frames as f64 / self.rate;
-        self.bar.set_message(format!(
-            "{done:5.1} s of {total:.1} s, {:.1} s left   input {db:6.1} dBFS [{:<12}]{warn}",
-            total - done,
-            "#".repeat(cells)
-        ));
+        self.bar
+            .set_message(meter_line(done, total, self.hold, p.done_frames > 0));
         self.bar.set_length(p.total_frames);
         self.bar.set_position(p.done_frames);
     }
+}
+
+/// Width of the progress bar before the meter line, columns.
+const BAR_COLUMNS: usize = 16;
+
+/// The meter's range, dB below full scale: its left end.
+const METER_FLOOR_DB: f64 = -60.0;
+
+/// Below this a peak reads as "no signal", dBFS (under the noise of any
+/// 24-bit converter: an input that reads less carries nothing).
+const NO_SIGNAL_DBFS: f64 = -120.0;
+
+/// The peak `dbfs` in words: "-12.3 dBFS", or "no signal".
+fn peak_words(dbfs: f64) -> String {
+    if dbfs < NO_SIGNAL_DBFS || !dbfs.is_finite() {
+        "no signal".to_string()
+    } else {
+        format!("{dbfs:.1} dBFS")
+    }
+}
+
+/// The line beside the progress bar: the time done and the whole, the
+/// input's held peak in words and on a 12-cell meter with its scale
+/// (-60 … 0 dBFS), CLIP at full scale, low when under -50 dBFS once the
+/// recording runs. With the bar it fits 80 columns.
+fn meter_line(done_s: f64, total_s: f64, peak: f32, running: bool) -> String {
+    let db = 20.0 * f64::from(peak.max(1e-12)).log10();
+    let cells = (((db - METER_FLOOR_DB) / -METER_FLOOR_DB).clamp(0.0, 1.0) * 12.0).round() as usize;
+    let warn = if db >= -0.1 {
+        " CLIP"
+    } else if db < -50.0 && running {
+        " low"
+    } else {
+        ""
+    };
+    format!(
+        "{done_s:5.1}/{total_s:.1} s  in {:>10} {METER_FLOOR_DB:.0}[{:<12}]0{warn}",
+        peak_words(db),
+        "#".repeat(cells)
+    )
 }
 
 /// Asks before a loud sweep, then opens the sound card for `highest_in`
@@ -323,7 +351,7 @@ pub fn run(a: Args) -> Result<()> {
             .input_peaks_dbfs
             .iter()
             .enumerate()
-            .map(|(i, p)| format!("input {} {p:.1} dBFS", i + 1))
+            .map(|(i, p)| format!("input {} {}", i + 1, peak_words(*p)))
             .collect();
         println!("input peaks: {}", peaks.join(", "));
     }
@@ -346,4 +374,30 @@ pub fn run(a: Args) -> Result<()> {
 /// The measurement record of the folder just written.
 fn outcome_measurement(dir: &std::path::Path) -> Option<gliss::folder::schema::MeasurementRecord> {
     gliss::folder::read_manifest(dir).ok()?.measurement
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_progress_line_fits_80_columns_and_says_when_there_is_no_signal() {
+        for (done, total, peak) in [
+            (0.0, 9.5, 0.0f32),
+            (123.4, 999.9, 1.0),
+            (5.0, 10.0, 0.01),
+            (5.0, 10.0, 1e-7),
+        ] {
+            let line = meter_line(done, total, peak, true);
+            let width = BAR_COLUMNS + 1 + line.chars().count();
+            assert!(width <= 80, "{width} columns: {line}");
+            // the meter shows its scale
+            assert!(line.contains("-60[") && line.contains("]0"), "{line}");
+        }
+        assert!(meter_line(1.0, 2.0, 0.0, true).contains("no signal"));
+        assert!(meter_line(1.0, 2.0, 1.0, true).ends_with("CLIP"));
+        assert!(meter_line(1.0, 2.0, 0.1, true).contains("-20.0 dBFS"));
+        assert_eq!(peak_words(-240.0), "no signal");
+        assert_eq!(peak_words(-11.94), "-11.9 dBFS");
+    }
 }
