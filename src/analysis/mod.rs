@@ -238,13 +238,25 @@ pub fn analyze(
     let search_end = n.saturating_sub(h2_gap / 2).max(1);
     let ipeak = delay::peak_index(&h, 0..search_end).unwrap_or(0);
     let delay_samples = delay::refine_peak(&h, ipeak);
+    // the recording ends less than a sweep after this arrival: either it
+    // was stopped with the sweep (the tail-cut warning below), or it began
+    // after the sweep did and the response lies at a negative delay,
+    // wrapped round to the end of the circular response
+    let tail_end = recording.len().saturating_sub(design.sweep_samples);
+    if ipeak > tail_end {
+        if let Some(late) = late_start_s(recording, stimulus, fs, f1, f2) {
+            return Err(Error::input(format!(
+                "the recording starts {late:.2} s after the sweep reached the microphone: the sweep's first {late:.2} s (from {f1:.0} Hz to {:.0} Hz) is not in it, so no impulse response can be taken from it; start the recorder before playing the sweep, and stop it after the sweep's silent tail",
+                design.instantaneous_frequency(late).min(f2)
+            )));
+        }
+    }
 
     // The linear response window: from `pre` before the peak (at most half
     // the gap to the 2nd harmonic, at most 100 ms) to the end of the
     // recorded tail, never reaching round to the harmonics.
     let pre = linear_pre(design);
     let start = ipeak as isize - pre as isize;
-    let tail_end = recording.len().saturating_sub(design.sweep_samples);
     let min_end = ipeak + (0.05 * fs) as usize;
     let mut end = tail_end.max(min_end) as isize;
     let max_len = n.saturating_sub(h2_gap) as isize;
@@ -428,6 +440,32 @@ pub fn analyze(
         peak_to_noise_db,
         warnings,
     })
+}
+
+/// A response this far (s) ahead of the sweep is still taken as arriving
+/// with it (the peak of a band-limited response spreads over a few
+/// samples either side).
+pub const LATE_START_TOLERANCE_S: f64 = 0.001;
+
+/// How late (s) `recording` began after the sweep `stimulus` reached the
+/// microphone, or `None` when it began before (or with) it.
+/// The deconvolution is taken again over a length that holds every lag
+/// from minus the sweep file's length to the recording's length without
+/// wrapping, so that a negative lag (a recording started late: the
+/// response lies before its first sample) is told from a positive one (a
+/// delay); its largest peak decides (harmonic responses, at negative lags
+/// too, are far weaker than the linear one).
+pub fn late_start_s(recording: &[f64], stimulus: &[f64], fs: f64, f1: f64, f2: f64) -> Option<f64> {
+    let n = crate::signal::fft::fast_len(recording.len() + stimulus.len());
+    let inverse = deconv::inverse_filter(stimulus, n, fs, f1, f2);
+    let h = deconv::apply_inverse(recording, &inverse, n);
+    let i = delay::peak_index(&h, 0..n)?;
+    let lag_s = if i >= recording.len() {
+        (i as f64 - n as f64) / fs
+    } else {
+        i as f64 / fs
+    };
+    (lag_s < -LATE_START_TOLERANCE_S).then_some(-lag_s)
 }
 
 /// Samples the linear impulse response window starts before its peak: half
@@ -756,5 +794,70 @@ mod tests {
         assert!(t20s >= 1, "no T20 left");
         let broadband = &a.room.as_ref().unwrap().broadband;
         assert!(broadband.get(Parameter::Edt).is_none());
+    }
+
+    /// The sweep of [`design`] through a room (a direct sound 5 ms in and
+    /// a diffuse decay of 0.8 s), recorded `extra_s` beyond the sweep file
+    /// with a little noise, by a recorder started `late_s` after the sweep.
+    fn started_late(late_s: f64, extra_s: f64) -> Result<Analysis> {
+        let design = design();
+        let s = design.generate();
+        let mut rng = StdRng::seed_from_u64(3);
+        let normal = Normal::new(0.0, 1.0).unwrap();
+        let lead = (0.005 * FS) as usize;
+        let mut room = vec![0.0; lead + (1.6 * FS) as usize];
+        room[lead] = 1.0;
+        for (i, v) in room[lead..].iter_mut().enumerate() {
+            let t = i as f64 / FS;
+            *v += 0.05 * normal.sample(&mut rng) * (-0.5 * SIXTY_DB * t / 0.8).exp();
+        }
+        let mut played = s.clone();
+        played.extend(vec![0.0; (extra_s * FS) as usize]);
+        let mut rec = fft::convolve(&played, &room);
+        rec.truncate(played.len());
+        let rec: Vec<f64> = rec[(late_s * FS) as usize..]
+            .iter()
+            .map(|v| 0.5 * v + 1e-4 * normal.sample(&mut rng))
+            .collect();
+        analyze(&rec, &s, &design, &AnalysisConfig::default())
+    }
+
+    #[test]
+    fn a_recording_started_after_the_sweep_is_refused_with_how_late() {
+        // Issue 13 item 6: it used to warn that the decay was cut off
+        // (the response wrapped round to the end looked like a late
+        // arrival); the recorder starts 0.503 or 1.503 s after the sweep, which
+        // reaches the microphone 5 ms after it starts
+        let d = design();
+        for late in [0.503, 1.503] {
+            let e = started_late(late, 2.0).unwrap_err().to_string();
+            let heard = late - 0.005;
+            assert!(
+                e.contains(&format!(
+                    "the recording starts {heard:.2} s after the sweep reached the microphone"
+                )),
+                "{e}"
+            );
+            let f = d.instantaneous_frequency(heard);
+            assert!(e.contains(&format!("to {f:.0} Hz")), "{e}");
+            assert!(
+                e.contains("start the recorder before playing the sweep"),
+                "{e}"
+            );
+        }
+        // on time, or begun before the sweep: analysed
+        let a = started_late(0.0, 0.0).unwrap();
+        assert!((a.delay_s - 0.005).abs() < 1e-3, "{}", a.delay_s);
+        assert!(!a.warnings.iter().any(|w| w.code == Code::TailCut));
+        let s = d.generate();
+        let rec = fft::convolve(&s, &[0.0, 0.5]);
+        assert_eq!(late_start_s(&rec, &s, FS, 20.0, 20_000.0), None);
+        let early: Vec<f64> = vec![0.0; 4800]
+            .into_iter()
+            .chain(s.iter().copied())
+            .collect();
+        assert_eq!(late_start_s(&early, &s, FS, 20.0, 20_000.0), None);
+        let late = late_start_s(&s[4800..], &s, FS, 20.0, 20_000.0).unwrap();
+        assert!((late - 0.1).abs() < 1e-4, "{late}");
     }
 }

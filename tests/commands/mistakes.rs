@@ -451,6 +451,42 @@ fn a_noisy_recording_keeps_edt_and_c80_or_says_why_not() {
 }
 
 #[test]
+fn a_recording_started_after_the_sweep_says_so() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    make_sweep(d, "sweep.wav", &["--length", "5", "--tail", "2"]);
+    let (_, s) = crate::util::read_wav(&d.join("sweep.wav"));
+    // a room (T60 0.8 s) heard through the sweep file and 3 s more ...
+    let mut played = s[0].clone();
+    played.extend(vec![0.0; 3 * 48_000]);
+    let mut room = gliss::signal::fft::convolve(&played, &decaying_noise(38_400, 0.8));
+    room.truncate(played.len());
+    // ... by a recorder started 3 s after the sweep: long enough, but the
+    // sweep's first 3 s (20 Hz to about 1.3 kHz) are not in it
+    let late: Vec<f64> = room[3 * 48_000..].to_vec();
+    let peak = late.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    let late: Vec<f64> = late.iter().map(|v| 0.5 * v / peak).collect();
+    crate::util::write_wav_f32(&d.join("late.wav"), 48_000, &[late]);
+    let before = snapshot(d);
+    let line = refused(
+        d,
+        &["analyze", "late.wav", "--sweep", "sweep.wav", "--out", "x"],
+    );
+    assert!(
+        line.contains("the recording starts 3.00 s after the sweep reached the microphone"),
+        "{line}"
+    );
+    assert!(line.contains("from 20 Hz to"), "{line}");
+    assert!(
+        line.contains("start the recorder before playing the sweep"),
+        "{line}"
+    );
+    assert!(!line.contains("decay"), "{line}");
+    assert_eq!(snapshot(d), before, "nothing written");
+    assert!(!d.join("x").exists());
+}
+
+#[test]
 fn a_reanalysis_leaves_no_stale_derived_files() {
     let t = tempfile::tempdir().unwrap();
     let d = t.path();
