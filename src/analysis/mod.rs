@@ -408,7 +408,7 @@ pub fn analyze(
             .count();
         if missing > 0 {
             warnings.add(Code::BandsIncomplete, format!(
-                "{missing} of {} bands lack some decay parameters (too little decay range, too short a decay for the band, or no decay); bands[].warnings says which and why",
+                "{missing} of {} bands lack some decay parameters (too little decay range, too short a decay for the band, no decay, or a start that cannot be told from the noise); bands[].warnings says which and why",
                 r.bands.len()
             ));
         }
