@@ -244,12 +244,7 @@ pub fn analyze(
     // wrapped round to the end of the circular response
     let tail_end = recording.len().saturating_sub(design.sweep_samples);
     if ipeak > tail_end {
-        if let Some(late) = late_start_s(recording, stimulus, fs, f1, f2) {
-            return Err(Error::input(format!(
-                "the recording starts {late:.2} s after the sweep reached the microphone: the sweep's first {late:.2} s (from {f1:.0} Hz to {:.0} Hz) is not in it, so no impulse response can be taken from it; start the recorder before playing the sweep, and stop it after the sweep's silent tail",
-                design.instantaneous_frequency(late).min(f2)
-            )));
-        }
+        refuse_late_start(recording, stimulus, design, "the microphone")?;
     }
 
     // The linear response window: from `pre` before the peak (at most half
@@ -466,6 +461,25 @@ pub fn late_start_s(recording: &[f64], stimulus: &[f64], fs: f64, f1: f64, f2: f
         i as f64 / fs
     };
     (lag_s < -LATE_START_TOLERANCE_S).then_some(-lag_s)
+}
+
+/// Refuses `recording` when it began after the sweep `stimulus` (of
+/// `design`) reached `heard_by` ("the microphone", or a loopback), saying
+/// how late it began and which part of the sweep it lacks.
+pub fn refuse_late_start(
+    recording: &[f64],
+    stimulus: &[f64],
+    design: &SweepDesign,
+    heard_by: &str,
+) -> Result<()> {
+    let (f1, f2) = (design.params.start_hz, design.params.end_hz);
+    match late_start_s(recording, stimulus, design.fs(), f1, f2) {
+        Some(late) => Err(Error::input(format!(
+            "the recording starts {late:.2} s after the sweep reached {heard_by}: the sweep's first {late:.2} s (from {f1:.0} Hz to {:.0} Hz) is not in it, so no impulse response can be taken from it; start the recorder before playing the sweep, and stop it after the sweep's silent tail",
+            design.instantaneous_frequency(late).min(f2)
+        ))),
+        None => Ok(()),
+    }
 }
 
 /// Samples the linear impulse response window starts before its peak: half

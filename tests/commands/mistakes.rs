@@ -484,6 +484,36 @@ fn a_recording_started_after_the_sweep_says_so() {
     assert!(!line.contains("decay"), "{line}");
     assert_eq!(snapshot(d), before, "nothing written");
     assert!(!d.join("x").exists());
+    // with a loopback on channel 2 that started as late: divided by it,
+    // the response would look whole; the loopback is checked against the
+    // sweep file
+    let (_, l) = crate::util::read_wav(&d.join("late.wav"));
+    let lost = s[0][3 * 48_000..].to_vec();
+    let mut loopback = vec![0.0; l[0].len()];
+    loopback[..lost.len()].copy_from_slice(&lost);
+    crate::util::write_wav_f32(&d.join("late2.wav"), 48_000, &[l[0].clone(), loopback]);
+    let before = snapshot(d);
+    let line = refused(
+        d,
+        &[
+            "analyze",
+            "late2.wav",
+            "--sweep",
+            "sweep.wav",
+            "--reference",
+            "2",
+            "--out",
+            "x",
+        ],
+    );
+    assert!(
+        line.contains(
+            "the recording starts 3.00 s after the sweep reached the loopback (channel 2)"
+        ),
+        "{line}"
+    );
+    assert_eq!(snapshot(d), before, "nothing written");
+    assert!(!d.join("x").exists());
 }
 
 #[test]
