@@ -26,6 +26,12 @@ pub const RANGE_T30_DB: f64 = 45.0;
 pub const MIN_BT: f64 = 4.0;
 /// Curvature above this (%) is a warning of a non-exponential decay.
 pub const MAX_CURVATURE_PERCENT: f64 = 10.0;
+/// The least rise (dB) of the broadband response's maximum above the
+/// noise ahead of it for a start point: ISO 3382-1 starts the response
+/// 20 dB below its maximum, where it must stand above the background
+/// noise; with less, the start cannot be told from the noise and EDT,
+/// C50, C80, D50 and Ts (which count from it) are withheld.
+pub const MIN_ONSET_RISE_DB: f64 = 20.0;
 
 /// The parameters of one band (or of the whole band: `fraction` broadband).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -202,7 +208,7 @@ fn band_decay(
         let ahead = ((4.0 / bandwidth_hz * fs) as usize).min(o);
         let xe = &p2[o - ahead..];
         let (c50, c80, d50, ts) =
-            decay::energy_parameters(xe, ahead, fs, ahead + tr.crosspoint, tail, tau);
+            decay::energy_parameters(xe, ahead, fs, ahead + tr.crosspoint, tr.noise, tail, tau);
         r.values[Parameter::C50] = Some(c50);
         r.values[Parameter::C80] = Some(c80);
         r.values[Parameter::D50] = Some(d50);
@@ -242,6 +248,27 @@ pub fn withhold_all(room: &mut Room, code: Code, why: &str) {
     room.curves.clear();
 }
 
+/// Withholds the values that count from the start of the response (EDT,
+/// C50, C80, D50, Ts) of band `r` called `label`, when the direct sound
+/// rose only `rise_db` above the noise ahead of it.
+fn withhold_early(r: &mut BandResult, label: &str, rise_db: f64) {
+    for p in [
+        Parameter::Edt,
+        Parameter::C50,
+        Parameter::C80,
+        Parameter::D50,
+        Parameter::Ts,
+    ] {
+        r.values[p] = None;
+    }
+    r.warnings.add(
+        Code::BandStartInNoise,
+        format!(
+            "{label}: the response's maximum stands only {rise_db:.0} dB above the noise ahead of it, so its start (20 dB below the maximum, ISO 3382-1) cannot be told from the noise; EDT, C50, C80, D50 and Ts, which count from the start, are not given (T20 and T30 do not depend on it)"
+        ),
+    );
+}
+
 /// Runs the room analysis of `ir` (sample rate `fs`) for the sweep band
 /// [f1, f2].
 pub fn analyze(ir: &[f64], fs: f64, f1: f64, f2: f64) -> Room {
@@ -257,7 +284,9 @@ pub fn analyze(ir: &[f64], fs: f64, f1: f64, f2: f64) -> Room {
     // band's own filtered onset is smeared by the filter (earlier by a few
     // milliseconds at low frequencies), which would bias C50, D50 and Ts.
     let p2_broad: Vec<f64> = ir.iter().map(|v| v * v).collect();
-    let onset_s = decay::onset(&p2_broad) as f64 / fs;
+    let start = decay::onset(&p2_broad, fs);
+    let onset_s = start.index as f64 / fs;
+    let early_ok = start.rise_db >= MIN_ONSET_RISE_DB;
     for band in bands::bands_within(f1, f2, fs / 2.0) {
         // keep the bins up to where the filter is 70 dB down, and transform
         // back at the lower rate they need
@@ -289,8 +318,14 @@ pub fn analyze(ir: &[f64], fs: f64, f1: f64, f2: f64) -> Room {
         r.center_hz = band.nominal_hz;
         r.exact_hz = band.exact_hz;
         r.fraction = fraction;
+        if !early_ok && r.get(Parameter::Inr).is_some() {
+            withhold_early(&mut r, &label, start.rise_db);
+        }
         if band.b == 1 {
-            if let Some((time_s, level_db, fits)) = curve {
+            if let Some((time_s, level_db, mut fits)) = curve {
+                if !early_ok {
+                    fits[0] = None;
+                }
                 curves.push(DecayCurve {
                     band,
                     time_s,
@@ -305,6 +340,9 @@ pub fn analyze(ir: &[f64], fs: f64, f1: f64, f2: f64) -> Room {
     let o = (onset_s * fs).round() as usize;
     let (mut broadband, _) = band_decay(&p2_broad, o, fs, "broadband", f2 - f1, centre);
     broadband.fraction = Fraction::Broadband;
+    if !early_ok && broadband.get(Parameter::Inr).is_some() {
+        withhold_early(&mut broadband, "broadband", start.rise_db);
+    }
     Room {
         bands: bands_out,
         broadband,

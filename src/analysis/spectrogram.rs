@@ -114,7 +114,7 @@ pub fn spectrogram(ir: &[f64], fs: f64, band: (f64, f64), c: SpectrogramConfig) 
     let df = fs / fft_len as f64;
     let p2: Vec<f64> = ir.iter().map(|v| v * v).collect();
     let onset = if p2.iter().any(|&v| v > 0.0) {
-        decay::onset(&p2)
+        decay::onset(&p2, fs).index
     } else {
         0
     };

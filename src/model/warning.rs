@@ -132,6 +132,9 @@ codes! {
     BandCurvature = "band-curvature", Caution, Curvature;
     /// A band: too little range for the energy parameters.
     BandEnergyRange = "band-energy-range", Note, NoiseFloor;
+    /// A band: the response's start cannot be told from the noise ahead
+    /// of it; the values that count from the start are withheld.
+    BandStartInNoise = "band-start-in-noise", Caution, NoiseFloor;
     /// An average: a parameter measured at only some positions.
     PartialPositions = "partial-positions", Note, Combining;
     /// An average: the positions were smoothed differently.

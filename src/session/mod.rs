@@ -263,6 +263,15 @@ fn analyse_checked(job: &Job, folder: &MeasurementFolder, mut extra: Warnings) -
                     20.0 * peak.max(1e-12).log10()
                 )));
             }
+            // divided by a loopback that started as late as the microphone,
+            // the response would look whole while the sweep's start is
+            // missing from both: the loopback is checked against the sweep
+            analysis::refuse_late_start(
+                reference,
+                &job.stimulus.channels[0],
+                &job.design,
+                &format!("the loopback (channel {})", r + 1),
+            )?;
             reference
         }
         None => &job.stimulus.channels[0],

@@ -315,6 +315,207 @@ fn a_recording_stopped_with_the_sweep_says_its_decay_was_cut() {
     assert!(r["broadband"]["edt_s"].is_null());
 }
 
+/// A room whose octave bands 125 Hz–8 kHz each decay as e^(−13.8·t/T):
+/// a sine at each octave's exact centre under that envelope, heard 5 ms
+/// into the recording (at 48 kHz).
+fn exponential_octaves(t60: f64) -> Vec<f64> {
+    let lead = 240;
+    (0..lead + (2.0 * t60 * 48_000.0) as usize)
+        .map(|i| {
+            if i < lead {
+                return 0.0;
+            }
+            let t = (i - lead) as f64 / 48_000.0;
+            (-3..=3)
+                .map(|x| {
+                    let fm = 1000.0 * 10f64.powf(0.3 * x as f64);
+                    (std::f64::consts::TAU * fm * t).sin()
+                })
+                .sum::<f64>()
+                * (-0.5 * 13.815_510_557_964_274 * t / t60).exp()
+        })
+        .collect()
+}
+
+/// The sweep `s` through `room`, at 0.5 peak, plus white Gaussian noise
+/// of standard deviation `sigma` (seeded).
+fn noisy_recording(s: &[f64], room: &[f64], sigma: f64, seed: u64) -> Vec<f64> {
+    use rand::{SeedableRng, rngs::StdRng};
+    use rand_distr::{Distribution, Normal};
+    let mut y = gliss::signal::fft::convolve(s, room);
+    y.truncate(s.len());
+    let peak = y.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    let mut rng = StdRng::seed_from_u64(seed);
+    let normal = Normal::new(0.0, sigma).unwrap();
+    y.iter()
+        .map(|v| 0.5 * v / peak + normal.sample(&mut rng))
+        .collect()
+}
+
+#[test]
+fn a_noisy_recording_keeps_edt_and_c80_or_says_why_not() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    make_sweep(d, "sweep.wav", &["--length", "2", "--tail", "2"]);
+    let (_, s) = crate::util::read_wav(&d.join("sweep.wav"));
+    let t60 = 0.5;
+    let room = exponential_octaves(t60);
+    // about 25 dB broadband peak-to-noise, and about 13 dB
+    let quiet = noisy_recording(&s[0], &room, 0.01, 1);
+    let loud = noisy_recording(&s[0], &room, 0.05, 1);
+    crate::util::write_wav_f32(&d.join("quiet.wav"), 48_000, &[quiet]);
+    crate::util::write_wav_f32(&d.join("loud.wav"), 48_000, &[loud]);
+    let before = snapshot(d);
+    ok(
+        d,
+        &[
+            "analyze",
+            "quiet.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "q",
+            "--no-plots",
+        ],
+    );
+    let r = json(&d.join("q/results.json"));
+    let ptn = r["peak_to_noise_db"].as_f64().unwrap();
+    assert!((22.0..29.0).contains(&ptn), "peak-to-noise {ptn} dB");
+    // closed forms for h²(t) ∝ e^(−13.8·t/T): EDT = T,
+    // C80 = 10·lg(e^(13.8·0.08/T) − 1) dB
+    let c80 = 10.0 * ((13.815_510_557_964_274 * 0.08 / t60).exp() - 1.0).log10();
+    let octave = |r: &serde_json::Value, hz: f64| {
+        r["bands"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|b| b["fraction"] == "1/1" && b["center_hz"].as_f64() == Some(hz))
+            .cloned()
+            .unwrap_or_else(|| panic!("no {hz} Hz octave"))
+    };
+    for hz in [250.0, 500.0] {
+        let b = octave(&r, hz);
+        let inr = b["inr_db"].as_f64().unwrap();
+        assert!((40.0..=60.0).contains(&inr), "{hz} Hz: {inr} dB of range");
+        let edt = b["edt_s"].as_f64().unwrap();
+        assert!(
+            (edt / t60 - 1.0).abs() < 0.05,
+            "{hz} Hz: EDT {edt} s against the closed form {t60} s"
+        );
+        let c = b["c80_db"].as_f64().unwrap();
+        assert!(
+            (c - c80).abs() < 0.5,
+            "{hz} Hz: C80 {c} dB against the closed form {c80} dB"
+        );
+    }
+    // the start lost in the noise: EDT and C80 withheld with the reason,
+    // T20 still given
+    ok(
+        d,
+        &[
+            "analyze",
+            "loud.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "l",
+            "--no-plots",
+        ],
+    );
+    let r = json(&d.join("l/results.json"));
+    for hz in [250.0, 500.0] {
+        let b = octave(&r, hz);
+        assert!(
+            b["edt_s"].is_null() && b["c80_db"].is_null(),
+            "{hz} Hz: {b}"
+        );
+        let codes = b["warning_codes"].to_string();
+        assert!(
+            codes.contains("\"band-start-in-noise\""),
+            "{hz} Hz: {codes}"
+        );
+        assert!(
+            b["warnings"]
+                .to_string()
+                .contains("cannot be told from the noise"),
+            "{hz} Hz: {}",
+            b["warnings"]
+        );
+    }
+    assert!(!octave(&r, 250.0)["t20_s"].is_null());
+    // nothing that was there changed
+    let after = snapshot(d);
+    for (p, bytes) in &before {
+        assert_eq!(after.get(p), Some(bytes), "{} changed", p.display());
+    }
+}
+
+#[test]
+fn a_recording_started_after_the_sweep_says_so() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    make_sweep(d, "sweep.wav", &["--length", "5", "--tail", "2"]);
+    let (_, s) = crate::util::read_wav(&d.join("sweep.wav"));
+    // a room (T60 0.8 s) heard through the sweep file and 3 s more ...
+    let mut played = s[0].clone();
+    played.extend(vec![0.0; 3 * 48_000]);
+    let mut room = gliss::signal::fft::convolve(&played, &decaying_noise(38_400, 0.8));
+    room.truncate(played.len());
+    // ... by a recorder started 3 s after the sweep: long enough, but the
+    // sweep's first 3 s (20 Hz to about 1.3 kHz) are not in it
+    let late: Vec<f64> = room[3 * 48_000..].to_vec();
+    let peak = late.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    let late: Vec<f64> = late.iter().map(|v| 0.5 * v / peak).collect();
+    crate::util::write_wav_f32(&d.join("late.wav"), 48_000, &[late]);
+    let before = snapshot(d);
+    let line = refused(
+        d,
+        &["analyze", "late.wav", "--sweep", "sweep.wav", "--out", "x"],
+    );
+    assert!(
+        line.contains("the recording starts 3.00 s after the sweep reached the microphone"),
+        "{line}"
+    );
+    assert!(line.contains("from 20 Hz to"), "{line}");
+    assert!(
+        line.contains("start the recorder before playing the sweep"),
+        "{line}"
+    );
+    assert!(!line.contains("decay"), "{line}");
+    assert_eq!(snapshot(d), before, "nothing written");
+    assert!(!d.join("x").exists());
+    // with a loopback on channel 2 that started as late: divided by it,
+    // the response would look whole; the loopback is checked against the
+    // sweep file
+    let (_, l) = crate::util::read_wav(&d.join("late.wav"));
+    let lost = s[0][3 * 48_000..].to_vec();
+    let mut loopback = vec![0.0; l[0].len()];
+    loopback[..lost.len()].copy_from_slice(&lost);
+    crate::util::write_wav_f32(&d.join("late2.wav"), 48_000, &[l[0].clone(), loopback]);
+    let before = snapshot(d);
+    let line = refused(
+        d,
+        &[
+            "analyze",
+            "late2.wav",
+            "--sweep",
+            "sweep.wav",
+            "--reference",
+            "2",
+            "--out",
+            "x",
+        ],
+    );
+    assert!(
+        line.contains(
+            "the recording starts 3.00 s after the sweep reached the loopback (channel 2)"
+        ),
+        "{line}"
+    );
+    assert_eq!(snapshot(d), before, "nothing written");
+    assert!(!d.join("x").exists());
+}
+
 #[test]
 fn a_reanalysis_leaves_no_stale_derived_files() {
     let t = tempfile::tempdir().unwrap();
