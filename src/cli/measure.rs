@@ -148,7 +148,9 @@ impl Meter {
             Some(total_frames),
             indicatif::ProgressDrawTarget::stderr(),
         );
-        if let Ok(style) = indicatif::ProgressStyle::with_template("{bar:16} {msg}") {
+        if let Ok(style) =
+            indicatif::ProgressStyle::with_template(&format!("{{bar:{BAR_COLUMNS}}} {{msg}}"))
+        {
             bar.set_style(style.progress_chars("=> "));
         }
         Meter {
