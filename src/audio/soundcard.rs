@@ -136,16 +136,40 @@ fn capabilities(
 /// The host's devices, in a stable order, with what each can do.
 pub fn list_devices() -> Result<Vec<DeviceInfo>> {
     let host = cpal::default_host();
+    let def_in = host.default_input_device().map(|d| id_of(&d));
+    let def_out = host.default_output_device().map(|d| id_of(&d));
+    Ok(listed(&host)?
+        .into_iter()
+        .enumerate()
+        .map(|(i, (d, input, output))| {
+            let id = id_of(&d);
+            DeviceInfo {
+                index: i + 1,
+                name: name_of(&d),
+                default_input: def_in.as_deref() == Some(id.as_str()),
+                default_output: def_out.as_deref() == Some(id.as_str()),
+                id,
+                input,
+                output,
+            }
+        })
+        .collect())
+}
+
+/// A device of the host's list with what it records and plays.
+type Listed = (cpal::Device, Option<Capabilities>, Option<Capabilities>);
+
+/// The devices that play or record, in the host's order: the list
+/// `gliss devices` numbers 1…N and `--device N` counts in (plugins that
+/// do neither, rate converters and the like, are left out of both).
+fn listed(host: &cpal::Host) -> Result<Vec<Listed>> {
     let devices = host.devices().map_err(|e| {
         device_error(format!(
             "could not list the sound devices ({e}); check that the sound system is running"
         ))
     })?;
-    let def_in = host.default_input_device().map(|d| id_of(&d));
-    let def_out = host.default_output_device().map(|d| id_of(&d));
     let mut out = Vec::new();
-    for (i, d) in devices.enumerate() {
-        let id = id_of(&d);
+    for d in devices {
         let input = capabilities(
             d.supported_input_configs()
                 .map(|c| c.collect())
@@ -158,20 +182,9 @@ pub fn list_devices() -> Result<Vec<DeviceInfo>> {
                 .unwrap_or_default(),
             d.default_output_config().ok(),
         );
-        // plugins that neither play nor record (rate converters and the
-        // like) are left out; the numbers stay those of the host's list
-        if input.is_none() && output.is_none() {
-            continue;
+        if input.is_some() || output.is_some() {
+            out.push((d, input, output));
         }
-        out.push(DeviceInfo {
-            index: i + 1,
-            name: name_of(&d),
-            default_input: def_in.as_deref() == Some(id.as_str()),
-            default_output: def_out.as_deref() == Some(id.as_str()),
-            id,
-            input,
-            output,
-        });
     }
     Ok(out)
 }
@@ -215,11 +228,16 @@ fn find_device(host: &cpal::Host, spec: Option<&str>, dir: Direction) -> Result<
         .map_err(|e| device_error(format!("could not list the sound devices ({e})")))?
         .collect();
     if let Ok(n) = spec.parse::<usize>() {
-        return devices.into_iter().nth(n.wrapping_sub(1)).ok_or_else(|| {
-            device_error(format!(
-                "there is no device {n}; gliss devices lists the devices with their numbers"
-            ))
-        });
+        // the numbers of gliss devices: the devices that play or record
+        return listed(host)?
+            .into_iter()
+            .nth(n.wrapping_sub(1))
+            .map(|(d, _, _)| d)
+            .ok_or_else(|| {
+                device_error(format!(
+                    "there is no device {n}; gliss devices lists the devices with their numbers"
+                ))
+            });
     }
     let want = spec.to_lowercase();
     let usable = |d: &cpal::Device| match dir {

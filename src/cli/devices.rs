@@ -95,5 +95,9 @@ pub fn run(a: Args) -> Result<()> {
             println!("     output  {}", caps_line(c));
         }
     }
+    println!(
+        "virtual  the built-in simulated system: a loudspeaker in a room on output 1 and input 1, \
+a loopback from output 2 to input 2 (--device virtual; for trying gliss without a sound card)"
+    );
     Ok(())
 }

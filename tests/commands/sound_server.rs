@@ -347,6 +347,12 @@ fn devices_lists_the_sound_server_with_its_rates() {
         "{default_in}"
     );
     assert!(list.iter().any(|d| d["default_output"] == true));
+    // numbered 1…N without gaps, the numbers --device takes
+    let numbers: Vec<u64> = list.iter().map(|d| d["index"].as_u64().unwrap()).collect();
+    assert_eq!(numbers, (1..=list.len() as u64).collect::<Vec<_>>());
+    // the text lists the simulated system too
+    let text = ok(t.path(), &["devices"]);
+    assert!(text.lines().any(|l| l.starts_with("virtual ")), "{text}");
 }
 
 #[test]
