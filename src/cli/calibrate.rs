@@ -22,8 +22,9 @@ use gliss::signal::wav::{WavData, read_wav};
     after_help = "Record the calibrator's tone (2 s or more) through the same \
 microphone, preamplifier and gain you will measure with (with --record S gliss records it \
 from the sound card itself and keeps the tone beside the calibration file as FILE.wav), then \
-pass the file written here to measure, analyze or demo with --calibration. Existing files are \
-never overwritten."
+pass the file written here to measure, analyze or demo with --calibration. An existing \
+calibration file is replaced only with --overwrite; a recorded tone (FILE.wav) is a raw \
+recording and is never replaced."
 )]
 pub struct Args {
     /// The recording of the calibrator's tone (WAV); or use --record.
@@ -49,6 +50,9 @@ pub struct Args {
     /// The calibration file to write (JSON).
     #[arg(long, value_name = "FILE.json")]
     pub out: PathBuf,
+    /// Replace an existing calibration file (never a recorded tone).
+    #[arg(long)]
+    pub overwrite: bool,
 }
 
 /// A build without the sound card cannot record the tone.
@@ -75,7 +79,7 @@ fn record_tone(a: &Args, seconds: f64, tone: &std::path::Path) -> Result<WavData
         return Err(Error::new(
             ErrorKind::AlreadyExists,
             format!(
-                "{} already exists; gliss never overwrites files, choose another --out",
+                "{} already exists and is a recording, which gliss never replaces; choose another --out",
                 tone.display()
             ),
         ));
@@ -136,11 +140,11 @@ pub fn run(a: Args) -> Result<()> {
     let data = match (&a.recording, a.record) {
         (Some(p), _) => read_wav(p, "the calibrator recording")?,
         (None, Some(s)) => {
-            if a.out.exists() {
+            if a.out.exists() && !a.overwrite {
                 return Err(Error::new(
                     ErrorKind::AlreadyExists,
                     format!(
-                        "{} already exists; gliss never overwrites files, choose another --out",
+                        "{} already exists; choose another --out, or add --overwrite to replace it",
                         a.out.display()
                     ),
                 ));
@@ -164,7 +168,11 @@ pub fn run(a: Args) -> Result<()> {
     gliss::analysis::check_signal(x, "the calibrator recording")?;
     let c = calibration::calibrate(x, f64::from(data.sample_rate_hz), a.level)?;
     let json = gliss::session::to_json(&c)?;
-    gliss::folder::write::write_new(&a.out, &json)?;
+    if a.overwrite {
+        gliss::folder::write::write_replacing(&a.out, &json, true)?;
+    } else {
+        gliss::folder::write::write_new(&a.out, &json)?;
+    }
     println!(
         "wrote {}: a {:.1} Hz tone at {:.1} dBFS reads {} dB SPL; a full-scale sine (0 dBFS: dBFS here are RMS re a full-scale sine's RMS) reads {:.1} dB SPL",
         a.out.display(),

@@ -7,7 +7,7 @@ use clap::Args as ClapArgs;
 use crate::cli::common::SweepArgs;
 use gliss::error::{Error, ErrorKind, Result};
 use gliss::folder::sha256_hex;
-use gliss::folder::write::write_new;
+use gliss::folder::write::{write_new, write_replacing};
 use gliss::session::sweep_file::{self, SweepFile, WavInfo};
 use gliss::signal::wav::{self, SampleEncoding};
 
@@ -27,6 +27,10 @@ pub struct Args {
     /// Sample format: 16 or 24 (integer) or 32 (float).
     #[arg(long, value_name = "16|24|32", default_value_t = 32)]
     pub bits: u16,
+    /// Replace an existing sweep file and its description (a sweep is
+    /// made again exactly from its settings, so nothing is lost).
+    #[arg(long)]
+    pub overwrite: bool,
 }
 
 /// Runs `gliss sweep`.
@@ -45,11 +49,11 @@ pub fn run(a: Args) -> Result<()> {
     }
     let side = sweep_file::sidecar_path(&a.out);
     for p in [&a.out, &side] {
-        if p.exists() {
+        if p.exists() && !a.overwrite {
             return Err(Error::new(
                 ErrorKind::AlreadyExists,
                 format!(
-                    "{} already exists; gliss never overwrites files, choose another --out",
+                    "{} already exists; choose another --out, or add --overwrite to replace it",
                     p.display()
                 ),
             ));
@@ -72,12 +76,20 @@ pub fn run(a: Args) -> Result<()> {
         },
     };
     let json = gliss::session::to_json(&record)?;
-    write_new(&a.out, &bytes)?;
-    if let Err(e) = write_new(&side, &json) {
-        // the sweep without its description could not be analysed: the
-        // sweep this run wrote goes too, so the retry starts clean
-        let _ = std::fs::remove_file(&a.out);
-        return Err(e);
+    if a.overwrite {
+        // each file whole or not at all; if the second fails, the pair
+        // disagrees, and the analysis refuses it (it makes the sweep again
+        // from the .json and compares it with the WAV)
+        write_replacing(&side, &json, true)?;
+        write_replacing(&a.out, &bytes, true)?;
+    } else {
+        write_new(&a.out, &bytes)?;
+        if let Err(e) = write_new(&side, &json) {
+            // the sweep without its description could not be analysed: the
+            // sweep this run wrote goes too, so the retry starts clean
+            let _ = std::fs::remove_file(&a.out);
+            return Err(e);
+        }
     }
     println!(
         "wrote {} ({:.4} s sweep {}–{} Hz + {} s silence, {} Hz, peak {} dBFS, {}) and {}",

@@ -229,7 +229,8 @@ fn remove_stale_partials(dir: &Path) -> Result<()> {
 }
 
 /// Writes a new file `path` (one a single command writes, outside a
-/// measurement folder: a sweep, a calibration): created new, never over an
+/// measurement folder: a sweep, a calibration, which take `--overwrite`
+/// to replace one through [`write_replacing`]): created new, never over an
 /// existing file, and removed again if it cannot be written whole, so that
 /// a failure (a full disk) leaves nothing that blocks the retry.
 pub fn write_new(path: &Path, bytes: &[u8]) -> Result<()> {
@@ -242,7 +243,7 @@ pub fn write_new(path: &Path, bytes: &[u8]) -> Result<()> {
                 Error::new(
                     ErrorKind::AlreadyExists,
                     format!(
-                        "{} already exists; gliss never overwrites files, choose another --out",
+                        "{} already exists; choose another --out, or add --overwrite to replace it",
                         path.display()
                     ),
                 )
