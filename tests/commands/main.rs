@@ -13,6 +13,7 @@ mod examples;
 mod export;
 mod features;
 mod folder_safety;
+mod impulse;
 mod measure;
 mod mistakes;
 mod report;
