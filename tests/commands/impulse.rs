@@ -174,12 +174,13 @@ fn fixture(name: &str) -> std::path::PathBuf {
 }
 
 #[test]
-fn an_image_source_room_from_pyroomacoustics_gives_its_own_t30_per_octave() {
-    // the source: pyroomacoustics' image-source model (pra.ShoeBox,
-    // compute_rir), its own T30 per octave
-    // (pyroomacoustics.experimental.rt60.measure_rt60, decay_db=30, on its
-    // OctaveBandsFactory bands) in ism_shoebox_t30.json, made by
-    // make_ir.py beside it
+fn a_simulated_room_from_pyroomacoustics_gives_its_own_t30_per_octave() {
+    // the source: pyroomacoustics 0.10.1's hybrid simulator (image-source
+    // model to order 3 plus ray tracing, pra.ShoeBox + compute_rir) and its
+    // own T30 per octave (pyroomacoustics.experimental.rt60.measure_rt60,
+    // decay_db=30, on its OctaveBandsFactory bands) in
+    // ism_shoebox_t30.json, made by make_ir.py beside it; its README.md
+    // says how the two estimators differ and how eight realisations agreed
     let t = tempfile::tempdir().unwrap();
     let d = t.path();
     std::fs::copy(fixture("ism_shoebox.wav"), d.join("ir.wav")).unwrap();
