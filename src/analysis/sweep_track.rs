@@ -73,7 +73,7 @@ pub fn lowest_hz(fs: f64) -> f64 {
 /// is kept when its peak is [`TONAL_DB`] above its median and within
 /// [`QUIET_DB`] of the loudest frame's peak.
 pub fn track(x: &[f64], fs: f64) -> Vec<TrackPoint> {
-    if !(fs > 0.0) || x.is_empty() {
+    if !positive(fs) || x.is_empty() {
         return Vec::new();
     }
     let n = frame_len(fs);
@@ -108,7 +108,7 @@ pub fn track(x: &[f64], fs: f64) -> Vec<TrackPoint> {
             .iter()
             .enumerate()
             .fold((0, 0.0f64), |b, (k, &p)| if p > b.1 { (k, p) } else { b });
-        if !(peak > 0.0) || !peak.is_finite() {
+        if !positive(peak) || !peak.is_finite() {
             continue;
         }
         loudest = loudest.max(peak);
@@ -202,7 +202,7 @@ pub fn fit_law(points: &[TrackPoint], hop_s: f64) -> Option<LawFit> {
     use std::collections::BTreeMap;
     let mut first: BTreeMap<i64, (f64, f64)> = BTreeMap::new();
     for p in points {
-        if !(p.frequency_hz > 0.0) {
+        if !positive(p.frequency_hz) {
             continue;
         }
         let key = (6.0 * p.frequency_hz.log2()).floor() as i64;
@@ -306,6 +306,11 @@ fn least_squares(pts: &[(f64, f64)], keep: &[bool]) -> Option<(f64, f64)> {
     Some((mt - b * mu, b))
 }
 
+/// `x` is a number above zero (false for NaN).
+fn positive(x: f64) -> bool {
+    x > 0.0
+}
+
 fn median(v: &[f64]) -> f64 {
     if v.is_empty() {
         return 0.0;
@@ -354,7 +359,7 @@ pub fn check_recording(recording: &[f64], fs: f64, rate_constant_s: f64) -> Swee
         && (fit.high_hz / fit.low_hz).log2() >= MIN_SPAN_OCTAVES
         && fit.inliers as f64 >= MIN_INLIER_SHARE * fit.points as f64
         && fit.rate_constant_s > 0.0;
-    if !clear || !(rate_constant_s > 0.0) {
+    if !clear || !positive(rate_constant_s) {
         return SweepCheck::Unclear;
     }
     let ratio = fit.rate_constant_s / rate_constant_s;
@@ -402,7 +407,7 @@ pub const MAX_LOG_RESIDUAL: f64 = 0.02;
 /// rise over at least an octave, or that departs from the law by more
 /// than [`MAX_LOG_RESIDUAL`] (a linear sweep, noise, music).
 pub fn recover(x: &[f64], fs: f64) -> Result<RecoveredSweep, String> {
-    if !(fs > 0.0) {
+    if !positive(fs) {
         return Err("the sample rate is not positive".into());
     }
     if x.iter().any(|v| !v.is_finite()) {
@@ -431,7 +436,7 @@ pub fn recover(x: &[f64], fs: f64) -> Result<RecoveredSweep, String> {
     let z = &z[..seg.len()];
     let env: Vec<f64> = z.iter().map(|c| c.norm()).collect();
     let peak = env.iter().fold(0.0f64, |m, v| m.max(*v));
-    if !(peak > 0.0) {
+    if !positive(peak) {
         return Err("it is silent".into());
     }
     // the part at least half the peak, a hundredth of its length in from
@@ -471,7 +476,7 @@ pub fn recover(x: &[f64], fs: f64) -> Result<RecoveredSweep, String> {
     }
     let f_lo = a.exp();
     let f_hi = (a + b * seg.len() as f64 / fs).exp();
-    if !(b > 0.0) || f_hi / f_lo < 2.0 {
+    if !positive(b) || f_hi / f_lo < 2.0 {
         return Err(format!(
             "its frequency does not rise over an octave (from {:.0} Hz to {:.0} Hz)",
             f_lo, f_hi
@@ -505,7 +510,7 @@ pub struct RecoveredDesign {
 /// The round value nearest `f` (two, three or four significant digits,
 /// the fewest that lie within `rel` of it), or `f` itself.
 pub fn round_frequency(f: f64, rel: f64) -> f64 {
-    if !(f > 0.0) {
+    if !positive(f) {
         return f;
     }
     for digits in 2..=4 {

@@ -351,6 +351,58 @@ fn a_sweep_without_its_json_analyses_as_with_it() {
         b["warnings"]
     );
 
+    // an exponential sweep of another program (not synchronised: L =
+    // 1/ln 1000, 20 Hz–20 kHz in 1 s, then 1 s of silence), recorded
+    // through a wire 2 ms late: analysed with its measured law, a flat
+    // response and the delay of the wire
+    let fs = 48_000.0;
+    let l = 1.0 / 1000f64.ln();
+    let mut theirs: Vec<f64> = (0..48_000)
+        .map(|n| {
+            let t = n as f64 / fs;
+            0.3 * (std::f64::consts::TAU * 20.0 * l * ((t / l).exp() - 1.0)).sin()
+        })
+        .collect();
+    theirs.extend(vec![0.0; 48_000]);
+    let mut wire = vec![0.0; 96];
+    wire.extend(&theirs[..theirs.len() - 96]);
+    write_wav_f32(&d.join("theirs.wav"), 48_000, &[theirs]);
+    write_wav_f32(&d.join("wire.wav"), 48_000, &[wire]);
+    ok(
+        d,
+        &[
+            "analyze",
+            "wire.wav",
+            "--sweep",
+            "theirs.wav",
+            "--out",
+            "theirs",
+            "--no-plots",
+        ],
+    );
+    let r = json(&d.join("theirs/results.json"));
+    assert!(
+        (r["delay_s"].as_f64().unwrap() - 0.002).abs() < 1e-5,
+        "{}",
+        r["delay_s"]
+    );
+    let f = crate::util::numbers(&r["response"]["frequency_hz"]);
+    let m = crate::util::numbers(&r["response"]["magnitude_db"]);
+    for (f, m) in f.iter().zip(&m) {
+        if (100.0..=10_000.0).contains(f) {
+            assert!(m.abs() < 0.1, "{f} Hz: {m} dB");
+        }
+    }
+    assert!(
+        r["warnings"].to_string().contains("not a sweep gliss made"),
+        "{}",
+        r["warnings"]
+    );
+    let mt = json(&d.join("theirs/manifest.json"));
+    let lt = mt["sweep"]["rate_constant_s"].as_f64().unwrap();
+    // the law to within 0.3 % (the analytic signal's ripple)
+    assert!((lt / l - 1.0).abs() < 3e-3, "{lt}");
+
     // a linear sweep and noise, without a .json, are refused with the reason
     let fs = 48_000.0;
     let lin: Vec<f64> = (0..96_000)
