@@ -111,6 +111,11 @@ pub fn track(x: &[f64], fs: f64) -> Vec<TrackPoint> {
         if !positive(peak) || !peak.is_finite() {
             continue;
         }
+        // a peak on the edge of the searched range is the skirt of a
+        // component outside it (a sweep still below the lowest frequency)
+        if kp == 0 || kp + 1 == powers.len() {
+            continue;
+        }
         loudest = loudest.max(peak);
         let median = {
             let mut s = powers.clone();
@@ -327,6 +332,12 @@ pub const MIN_POINTS: usize = 6;
 pub const MIN_SPAN_OCTAVES: f64 = 2.0;
 /// ... and be at least this share of the points fitted.
 pub const MIN_INLIER_SHARE: f64 = 0.6;
+/// ... and lie on their line within this many hops RMS (21 ms at 48 kHz):
+/// a clean or reverberant sweep, right or wrong, stays within about one
+/// (0.1–13 ms measured); a fit that mixes the sweep with late arrivals of
+/// a very reverberant room does not (27 ms and more), and then no
+/// judgement is made.
+pub const MAX_RMS_HOPS: f64 = 2.0;
 /// The slope may differ from the sweep's rate constant by up to this
 /// factor either way and still be the sweep (a few hops of error over
 /// two octaves of a fast sweep; a different sweep of gliss's range
@@ -348,8 +359,9 @@ pub enum SweepCheck {
 /// Whether `recording` (at `fs` Hz) follows an exponential sweep of rate
 /// constant `rate_constant_s`: [`track`], [`fit_law`], then the fitted
 /// slope against the rate constant within [`RATE_TOLERANCE`], judged only
-/// with [`MIN_POINTS`] points over [`MIN_SPAN_OCTAVES`] on the line and
-/// [`MIN_INLIER_SHARE`] of the points fitted.
+/// with [`MIN_POINTS`] points over [`MIN_SPAN_OCTAVES`] on the line,
+/// [`MIN_INLIER_SHARE`] of the points fitted, and within [`MAX_RMS_HOPS`]
+/// of the line.
 pub fn check_recording(recording: &[f64], fs: f64, rate_constant_s: f64) -> SweepCheck {
     let points = track(recording, fs);
     let Some(fit) = fit_law(&points, hop_len(fs) as f64 / fs) else {
@@ -358,6 +370,7 @@ pub fn check_recording(recording: &[f64], fs: f64, rate_constant_s: f64) -> Swee
     let clear = fit.inliers >= MIN_POINTS
         && (fit.high_hz / fit.low_hz).log2() >= MIN_SPAN_OCTAVES
         && fit.inliers as f64 >= MIN_INLIER_SHARE * fit.points as f64
+        && fit.rms_residual_s <= MAX_RMS_HOPS * hop_len(fs) as f64 / fs
         && fit.rate_constant_s > 0.0;
     if !clear || !positive(rate_constant_s) {
         return SweepCheck::Unclear;
