@@ -194,5 +194,9 @@ fn run_impulse(
     };
     let outcome = session::run(&job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);
+    println!(
+        "(an impulse response analysed as it is: the delay is where it peaks, from the first sample of {}; \"recording peak\" is its own peak)",
+        ir.display()
+    );
     Ok(())
 }

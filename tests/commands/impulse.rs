@@ -269,6 +269,17 @@ fn an_impulse_response_is_analysed_as_it_is() {
     #[cfg(feature = "plots")]
     assert!(d.join("m/plots/response.png").is_file());
     ok(d, &["report", "m", "--out", "report.html"]);
+    // its curves export as they are; smoothing again from impulse.wav,
+    // which needs the sweep's window layout, is refused with the reason
+    let csv = ok(d, &["export", "m", "--what", "response", "--out", "-"]);
+    assert!(csv.lines().count() > 100, "{csv}");
+    let line = refused(
+        d,
+        &[
+            "export", "m", "--what", "response", "--smooth", "1/3", "--out", "-",
+        ],
+    );
+    assert!(line.contains("analysed from an impulse response"), "{line}");
     // what needs a sweep or a level is refused, and nothing is written
     let before = snapshot(d);
     let line = refused(
