@@ -909,4 +909,23 @@ mod tests {
         assert_eq!(round_frequency(31.52, 5e-3), 31.5);
         assert_eq!(round_frequency(12_345.0, 1e-6), 12_345.0);
     }
+
+    #[test]
+    fn odd_inputs_give_no_judgement_and_no_panic() {
+        let fs = 48_000.0;
+        for x in [
+            vec![],
+            vec![0.0; 10],
+            vec![f64::NAN; 5000],
+            vec![1e300; 5000],
+            vec![0.5; 5000],
+        ] {
+            assert_eq!(check_recording(&x, fs, 0.15), SweepCheck::Unclear);
+            assert!(recover(&x, fs).is_err());
+            assert!(recovered_design(&x, 48_000, 1e-7).is_err());
+        }
+        assert!(track(&[0.1; 100], 0.0).is_empty());
+        assert!(track(&[0.1; 100], f64::NAN).is_empty());
+        assert_eq!(fit_law(&[], 0.01), None);
+    }
 }
