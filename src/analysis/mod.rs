@@ -18,12 +18,14 @@ pub mod delay;
 pub mod distortion;
 pub mod etc;
 pub mod gate;
+pub mod impulse;
 pub mod phase;
 pub mod presence;
 pub mod response;
 pub mod room;
 pub mod smoothing;
 pub mod spectrogram;
+pub mod sweep_track;
 pub mod target;
 
 use crate::deconv;

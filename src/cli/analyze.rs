@@ -16,15 +16,30 @@ use gliss::signal::wav::{self, decode_wav};
     after_help = "The measurement folder gets manifest.json, stimulus.wav and \
 recording.wav (raw, copied unchanged), impulse.wav, results.json, response.csv and \
 plots/. An existing measurement is never overwritten; --overwrite replaces only its \
-derived files, and only when its raw files are the same."
+derived files, and only when its raw files are the same.\n\n\
+A sweep WAV without its .json (played by another program) is accepted when it is an \
+exponential sweep: its band and rate are recovered from its instantaneous frequency, \
+and anything else is refused with the reason. A recording that clearly follows another \
+sweep than --sweep is refused, naming the sweep it follows.\n\n\
+--impulse IR.wav analyses an impulse response from another tool instead (no \
+recording, no --sweep): the response, phase, gate, decay and bands, with the delay at \
+the response's peak; no distortion (that needs a sweep). The file is kept as \
+input-impulse.wav."
 )]
 pub struct Args {
     /// The recording (WAV: 16/24/32-bit integer or 32-bit float, any channels).
-    #[arg(value_name = "RECORDING.wav")]
-    pub recording: PathBuf,
-    /// The sweep that was played, as written by `gliss sweep` (its .json must be beside it).
-    #[arg(long, value_name = "SWEEP.wav")]
-    pub sweep: PathBuf,
+    #[arg(value_name = "RECORDING.wav", required_unless_present = "impulse")]
+    pub recording: Option<PathBuf>,
+    /// The sweep that was played: as written by `gliss sweep` (with its
+    /// .json beside it), or an exponential sweep from another program
+    /// (its parameters are then recovered from the file).
+    #[arg(long, value_name = "SWEEP.wav", required_unless_present = "impulse")]
+    pub sweep: Option<PathBuf>,
+    /// Analyse an impulse response (WAV) as it is, instead of a recording
+    /// and its sweep: response, phase, gate, decay and bands; the delay is
+    /// its peak's position; no distortion.
+    #[arg(long, value_name = "IR.wav", conflicts_with_all = ["recording", "sweep", "reference"])]
+    pub impulse: Option<PathBuf>,
     /// The measurement folder to write.
     #[arg(long, value_name = "DIR")]
     pub out: PathBuf,
@@ -58,14 +73,21 @@ pub fn run(a: Args) -> Result<()> {
             "--channel counts from 1; use --channel 1 for the first channel",
         ));
     }
-    let design = sweep_file::load_design(&a.sweep)?;
+    if let Some(ir) = &a.impulse {
+        return run_impulse(&a, ir, config, mic);
+    }
+    let (Some(recording_path), Some(sweep_path)) = (&a.recording, &a.sweep) else {
+        return Err(Error::parameter(
+            "give the recording and --sweep SWEEP.wav, or --impulse IR.wav",
+        ));
+    };
+    let (design, recovered_sweep) = sweep_file::load_or_recover(sweep_path)?;
     let target = a
         .output
         .target((design.params.start_hz, design.params.end_hz))?;
-    let (stimulus_bytes, stimulus) = read(&a.sweep, "the sweep")?;
-    let (recording_bytes, recording) = read(&a.recording, "the recording")?;
-    let title = a
-        .recording
+    let (stimulus_bytes, stimulus) = read(sweep_path, "the sweep")?;
+    let (recording_bytes, recording) = read(recording_path, "the recording")?;
+    let title = recording_path
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "recording".into());
@@ -84,11 +106,11 @@ pub fn run(a: Args) -> Result<()> {
             kind: "file".into(),
             description: format!(
                 "recording {} of sweep {}",
-                a.recording.display(),
-                a.sweep.display()
+                recording_path.display(),
+                sweep_path.display()
             ),
-            recording_path: Some(a.recording.display().to_string()),
-            sweep_path: Some(a.sweep.display().to_string()),
+            recording_path: Some(recording_path.display().to_string()),
+            sweep_path: Some(sweep_path.display().to_string()),
         },
         title: format!("{title}, channel {}", a.channel),
         command_line: std::env::args().collect(),
@@ -105,8 +127,76 @@ pub fn run(a: Args) -> Result<()> {
         measurement: None,
         drive,
         target,
+        impulse: false,
+        recovered_sweep,
     };
     let outcome = session::run(&job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);
+    Ok(())
+}
+
+/// `gliss analyze --impulse IR.wav`: the impulse response as it is.
+fn run_impulse(
+    a: &Args,
+    ir: &PathBuf,
+    config: gliss::analysis::AnalysisConfig,
+    mic: Option<(
+        gliss::analysis::correction::Correction,
+        gliss::folder::schema::FileEntry,
+    )>,
+) -> Result<()> {
+    if a.channel == 0 {
+        return Err(Error::parameter(
+            "--channel counts from 1; use --channel 1 for the first channel",
+        ));
+    }
+    let (bytes, data) = read(ir, "the impulse response")?;
+    let len = data.channels.first().map_or(0, Vec::len);
+    let design = session::impulse_design(data.sample_rate_hz, len);
+    let target = a
+        .output
+        .target((design.params.start_hz, design.params.end_hz))?;
+    let title = ir
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "impulse response".into());
+    let job = Job {
+        out: a.out.clone(),
+        overwrite: a.output.overwrite,
+        plots: !a.output.no_plots,
+        recording_bytes: bytes,
+        recording: data,
+        channel: a.channel - 1,
+        stimulus_bytes: Vec::new(),
+        stimulus: wav::WavData {
+            sample_rate_hz: design.params.sample_rate_hz,
+            encoding: wav::SampleEncoding::Float,
+            channels: Vec::new(),
+        },
+        design,
+        config,
+        source: Source {
+            kind: "impulse".into(),
+            description: format!("impulse response {} (no sweep)", ir.display()),
+            recording_path: Some(ir.display().to_string()),
+            sweep_path: None,
+        },
+        title: format!("{title}, channel {}", a.channel),
+        command_line: std::env::args().collect(),
+        mic_correction: mic.map(|m| m.1),
+        calibration: a.output.calibration()?,
+        reference: None,
+        measurement: None,
+        drive: a.output.drive()?,
+        target,
+        impulse: true,
+        recovered_sweep: None,
+    };
+    let outcome = session::run(&job)?;
+    super::demo::print_summary(&common::show(&a.out), &outcome);
+    println!(
+        "(an impulse response analysed as it is: the delay is where it peaks, from the first sample of {}; \"recording peak\" is its own peak)",
+        ir.display()
+    );
     Ok(())
 }

@@ -150,6 +150,8 @@ fn measure_one(
         measurement: None,
         drive,
         target,
+        impulse: false,
+        recovered_sweep: None,
     };
     session::run(&job)
 }

@@ -118,6 +118,12 @@ codes! {
     OtherChannelClearer = "other-channel-clearer", Caution, Files;
     /// The sweep file differs from the sweep its .json describes.
     SweepFileDiffers = "sweep-file-differs", Caution, Files;
+    /// An impulse response analysed as it is: no harmonic distortion (it
+    /// is separated from the recording of a sweep).
+    DistortionNeedsSweep = "distortion-needs-sweep", Note, Distortion;
+    /// The sweep file had no description: its parameters were recovered
+    /// from its samples.
+    SweepRecovered = "sweep-recovered", Note, Files;
     /// The sensitivity holds at the microphone's distance, not at 1 m.
     SensitivityAtMicrophone = "sensitivity-at-microphone", Note, Calibration;
     /// A band: no decay found above the noise.

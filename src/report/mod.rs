@@ -555,18 +555,29 @@ fn about(out: &mut String, f: &Folder, m: &Manifest) {
     }
     row("Measured", &m.created_utc);
     let s = &m.sweep;
-    row(
-        "Sweep",
-        &format!(
-            "exponential, {}–{}, {} s (asked {} s) then {} s of silence, peak {} dBFS",
-            hz(s.params.start_hz),
-            hz(s.params.end_hz),
-            num(s.length_s, 3),
-            trim(s.params.requested_length_s, 3),
-            trim(s.params.tail_s, 3),
-            trim(s.params.level_dbfs, 1)
-        ),
-    );
+    if m.source.kind == "impulse" {
+        row(
+            "Sweep",
+            &format!(
+                "none: an impulse response was analysed as it is, over {}–{}",
+                hz(s.params.start_hz),
+                hz(s.params.end_hz)
+            ),
+        );
+    } else {
+        row(
+            "Sweep",
+            &format!(
+                "exponential, {}–{}, {} s (asked {} s) then {} s of silence, peak {} dBFS",
+                hz(s.params.start_hz),
+                hz(s.params.end_hz),
+                num(s.length_s, 3),
+                trim(s.params.requested_length_s, 3),
+                trim(s.params.tail_s, 3),
+                trim(s.params.level_dbfs, 1)
+            ),
+        );
+    }
     row("Sample rate", &format!("{} Hz", m.sample_rate_hz));
     row(
         "Channel",

@@ -386,6 +386,12 @@ fn correction(m: &Measurement) -> Result<Option<Correction>> {
 /// analysis's own stages, at smoothing `s` (on the folder's grid).
 pub fn fresh_response(m: &Measurement, s: Smoothing) -> Result<analysis::FrequencyResponse> {
     let rec = &m.results.response;
+    if m.manifest.source.kind == "impulse" {
+        return Err(Error::input(format!(
+            "{} was analysed from an impulse response given as it is, so its response is not taken again at another smoothing here; analyse the impulse response again with the smoothing you need",
+            m.dir.display()
+        )));
+    }
     let ir = read_impulse(m)?;
     let placement = ImpulsePlacement {
         design: &m.manifest.sweep,

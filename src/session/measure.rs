@@ -784,6 +784,8 @@ fn analysis_job(
         measurement: Some(record),
         drive: m.drive,
         target: m.target.clone(),
+        impulse: false,
+        recovered_sweep: None,
     })
 }
 

@@ -67,6 +67,59 @@ pub struct Job {
     pub drive: Option<crate::analysis::calibration::Drive>,
     /// A target curve to compare the response with.
     pub target: Option<TargetJob>,
+    /// `recording` is an impulse response given as it is (`analyze
+    /// --impulse`), not the recording of a sweep: no stimulus (its bytes
+    /// and samples are empty), `design` only names the analysed band
+    /// ([`impulse_design`]), and the file is kept as input-impulse.wav.
+    pub impulse: bool,
+    /// The sweep file had no description and its design was recovered
+    /// from its samples: what was found, said as a note.
+    pub recovered_sweep: Option<String>,
+}
+
+/// The name an impulse response given to `analyze --impulse` is kept
+/// under in the folder (raw: never replaced).
+pub const INPUT_IMPULSE: &str = "input-impulse.wav";
+
+/// The design an impulse-response job records: no sweep was played, so it
+/// names the analysed band ([`analysis::impulse::band`]) and the
+/// response's length, with no tail, no fades and a rate constant that
+/// spans the band over that length. Nothing is generated from it.
+pub fn impulse_design(fs: u32, len: usize) -> SweepDesign {
+    use crate::signal::sweep::SweepParams;
+    let fsf = f64::from(fs);
+    let (f1, f2) = analysis::impulse::band(fsf, len);
+    let length_s = len as f64 / fsf;
+    SweepDesign {
+        params: SweepParams {
+            start_hz: f1,
+            end_hz: f2,
+            requested_length_s: length_s,
+            sample_rate_hz: fs,
+            level_dbfs: 0.0,
+            tail_s: 0.0,
+            fade_in_octaves: 0.0,
+            fade_out_octaves: 0.0,
+        },
+        rate_constant_s: length_s / (f2 / f1).ln().max(1e-9),
+        length_s,
+        sweep_samples: len,
+        total_samples: len,
+        fade_in_samples: 0,
+        fade_out_samples: 0,
+    }
+}
+
+/// The raw files of a job, as they are kept in the folder.
+fn raw_files(job: &Job) -> Vec<(&'static str, &[u8])> {
+    if job.impulse {
+        vec![(INPUT_IMPULSE, &job.recording_bytes)]
+    } else {
+        vec![
+            ("stimulus.wav", &job.stimulus_bytes),
+            ("recording.wav", &job.recording_bytes),
+        ]
+    }
 }
 
 /// A target curve to compare the response with (`--target`).
@@ -112,6 +165,9 @@ pub struct Outcome {
 /// Checks the inputs of a job before any file is written: sample rates,
 /// the channel, the sweep file against its description.
 pub fn check_inputs(job: &Job) -> Result<Warnings> {
+    if job.impulse {
+        return check_impulse_inputs(job);
+    }
     let mut warnings = Warnings::new();
     let rec = &job.recording;
     let stim = &job.stimulus;
@@ -168,6 +224,12 @@ pub fn check_inputs(job: &Job) -> Result<Warnings> {
         )));
     }
     check_channel(job, &mut warnings)?;
+    check_sweep_law(job)?;
+    if let Some(note) = &job.recovered_sweep {
+        // the design came from the file itself: nothing to compare it with
+        warnings.add(Code::SweepRecovered, note.clone());
+        return Ok(warnings);
+    }
     // the file must hold the sweep its parameters describe (within its
     // quantisation step)
     let want = job.design.generate();
@@ -189,6 +251,94 @@ pub fn check_inputs(job: &Job) -> Result<Warnings> {
         );
     }
     Ok(warnings)
+}
+
+/// The checks of an impulse-response job: the channel exists, and nothing
+/// that needs a sweep or an absolute level was asked for.
+fn check_impulse_inputs(job: &Job) -> Result<Warnings> {
+    let n = job.recording.channels.len();
+    if job.channel >= n {
+        return Err(Error::input(format!(
+            "--channel {} does not exist: the impulse response has {n} channel{}",
+            job.channel + 1,
+            if n == 1 { "" } else { "s" }
+        )));
+    }
+    if job.reference.is_some() {
+        return Err(Error::parameter(
+            "--reference needs a recording of a sweep; an impulse response has already been divided by its stimulus",
+        ));
+    }
+    if job.calibration.is_some() || job.drive.is_some() {
+        return Err(Error::parameter(
+            "--calibration, --volts-per-fs and --distance need the recording of a sweep at a known level; an impulse response from elsewhere has an arbitrary scale",
+        ));
+    }
+    if let Some(t) = &job.target {
+        t.resolve_range((job.design.params.start_hz, job.design.params.end_hz))?;
+    }
+    Ok(Warnings::new())
+}
+
+/// Refuses a recording that clearly follows another exponential sweep than
+/// the one it is analysed with, naming what it follows: its frequency
+/// track follows another law ([`analysis::sweep_track::check_recording`])
+/// and it hardly matches the sweep (below
+/// [`crate::analysis::presence::DIFFERENT_SWEEP_MATCH`]). Says nothing
+/// when the recording's frequency cannot be followed clearly (noise, a
+/// quiet or short recording): the low-SNR warnings of the analysis cover
+/// that.
+fn check_sweep_law(job: &Job) -> Result<()> {
+    use crate::analysis::sweep_track::{SweepCheck, check_recording};
+    let d = &job.design;
+    let x = &job.recording.channels[job.channel];
+    let SweepCheck::Different(found) = check_recording(x, d.fs(), d.rate_constant_s) else {
+        return Ok(());
+    };
+    // the second evidence: the recording hardly holds this sweep
+    let m = crate::analysis::presence::sweep_match(x, &job.stimulus.channels[0]);
+    if m >= crate::analysis::presence::DIFFERENT_SWEEP_MATCH {
+        return Ok(());
+    }
+    let name = job
+        .source
+        .sweep_path
+        .as_deref()
+        .map(|p| {
+            Path::new(p)
+                .file_name()
+                .map_or_else(|| p.to_string(), |n| n.to_string_lossy().into_owned())
+        })
+        .map_or_else(|| "the sweep's".to_string(), |n| format!("{n}'s"));
+    Err(Error::input(format!(
+        "the recording follows a sweep of about {}–{} over {:.1} s, not {name} {}–{} over {:.1} s: analyse it with the sweep that was played",
+        about_hz(found.low_hz),
+        about_hz(found.high_hz),
+        found.span_s(),
+        about_hz(d.params.start_hz),
+        about_hz(d.params.end_hz),
+        d.length_s
+    )))
+}
+
+/// A frequency to two significant digits with its unit: "100 Hz", "9.9 kHz".
+fn about_hz(f: f64) -> String {
+    let step = if f > 0.0 && f.is_finite() {
+        10f64.powi(f.log10().floor() as i32 - 1)
+    } else {
+        1.0
+    };
+    let r = (f / step).round() * step;
+    if r >= 1000.0 {
+        format!("{} kHz", trim_number(r / 1000.0))
+    } else {
+        format!("{} Hz", trim_number(r))
+    }
+}
+
+fn trim_number(v: f64) -> String {
+    let s = format!("{v:.1}");
+    s.strip_suffix(".0").map_or(s.clone(), str::to_string)
 }
 
 /// Refuses a recording analysed on a channel that holds no sweep while
@@ -233,14 +383,7 @@ fn check_channel(job: &Job, warnings: &mut Warnings) -> Result<()> {
 /// written when the inputs or the folder are refused.
 pub fn run(job: &Job) -> Result<Outcome> {
     let warnings = check_inputs(job)?;
-    let folder = MeasurementFolder::check(
-        &job.out,
-        job.overwrite,
-        &[
-            ("stimulus.wav", &job.stimulus_bytes),
-            ("recording.wav", &job.recording_bytes),
-        ],
-    )?;
+    let folder = MeasurementFolder::check(&job.out, job.overwrite, &raw_files(job))?;
     analyse_checked(job, &folder, warnings)
 }
 
@@ -252,7 +395,7 @@ pub fn analyse_into(job: &Job, folder: &MeasurementFolder) -> Result<Outcome> {
 
 /// [`analyse_into`] once [`check_inputs`] has passed and said `extra`.
 fn analyse_checked(job: &Job, folder: &MeasurementFolder, mut extra: Warnings) -> Result<Outcome> {
-    let divisor = match job.reference {
+    let divisor = match job.reference.filter(|_| !job.impulse) {
         Some(r) => {
             let reference = &job.recording.channels[r];
             let peak = reference.iter().fold(0.0f64, |m, v| m.max(v.abs()));
@@ -274,14 +417,22 @@ fn analyse_checked(job: &Job, folder: &MeasurementFolder, mut extra: Warnings) -
             )?;
             reference
         }
-        None => &job.stimulus.channels[0],
+        None => job.stimulus.channels.first().map_or(&[][..], |c| &c[..]),
     };
-    let mut analysis = analysis::analyze(
-        &job.recording.channels[job.channel],
-        divisor,
-        &job.design,
-        &job.config,
-    )?;
+    let mut analysis = if job.impulse {
+        analysis::impulse::analyze(
+            &job.recording.channels[job.channel],
+            job.recording.sample_rate_hz,
+            &job.config,
+        )?
+    } else {
+        analysis::analyze(
+            &job.recording.channels[job.channel],
+            divisor,
+            &job.design,
+            &job.config,
+        )?
+    };
     // name the channel that clips
     for w in analysis.warnings.iter_mut() {
         if w.code == Code::RecordingClips {
@@ -392,26 +543,29 @@ fn write_folder(
 /// Writes the raw files first (they are the measurement), once, and
 /// returns their manifest entries.
 fn write_raw_files(job: &Job, folder: &MeasurementFolder) -> Result<Vec<FileEntry>> {
-    [
-        ("stimulus.wav", &job.stimulus_bytes),
-        ("recording.wav", &job.recording_bytes),
-    ]
-    .into_iter()
-    .map(|(name, bytes)| {
-        Ok(FileEntry {
-            name: name.into(),
-            role: crate::folder::schema::FileRole::Raw,
-            sha256: folder.write_raw(name, bytes)?,
+    raw_files(job)
+        .into_iter()
+        .map(|(name, bytes)| {
+            Ok(FileEntry {
+                name: name.into(),
+                role: crate::folder::schema::FileRole::Raw,
+                sha256: folder.write_raw(name, bytes)?,
+            })
         })
-    })
-    .collect()
+        .collect()
 }
 
 /// results.json of a job's analysis: what the delay and 0 dB are
 /// referred to, the SPL and sensitivity with a calibration, the target.
 pub fn job_results(job: &Job, a: &Analysis, target: Option<&TargetRecord>) -> Results {
     let mut results = results_record(a);
-    if job.reference.is_some() {
+    if job.impulse {
+        results.delay_reference = format!(
+            "the peak of |h| in the impulse response given ({INPUT_IMPULSE}), from its first sample: no sweep was played, so the delay is where the response peaks"
+        );
+        results.response.magnitude_reference =
+            "0 dB = the impulse response given is a unit impulse".into();
+    } else if job.reference.is_some() {
         results.delay_reference =
             "the loopback reference channel: the interface's own latency is divided out".into();
         results.response.magnitude_reference =

@@ -79,3 +79,59 @@ pub fn load_design(wav: &Path) -> Result<SweepDesign> {
     };
     params.design()
 }
+
+/// The sweep design of `wav` as [`load_design`] finds it or, when the WAV
+/// has no description beside it (a sweep played by another program, or a
+/// gliss sweep whose .json was lost), recovered from its samples
+/// ([`crate::analysis::sweep_track::recovered_design`]), with a note of
+/// what was found. Refuses, with the reason, a file that is not an
+/// exponential sweep.
+pub fn load_or_recover(wav: &Path) -> Result<(SweepDesign, Option<String>)> {
+    use crate::analysis::sweep_track::recovered_design;
+    use crate::signal::wav::{SampleEncoding, decode_wav};
+    if !wav.is_file() || sidecar_path(wav).exists() {
+        return load_design(wav).map(|d| (d, None));
+    }
+    if let Ok(d) = load_design(wav) {
+        return Ok((d, None));
+    }
+    let bytes = std::fs::read(wav).map_err(|e| Error::io("read", wav, &e))?;
+    let data =
+        decode_wav(&bytes).map_err(|m| Error::input(format!("the sweep {} {m}", wav.display())))?;
+    if data.channels.len() != 1 {
+        return Err(Error::input(format!(
+            "the sweep {} has {} channels and no {} beside it; give a mono sweep WAV",
+            wav.display(),
+            data.channels.len(),
+            sidecar_path(wav).display()
+        )));
+    }
+    let step = match data.encoding {
+        SampleEncoding::Int(b) => 1.0 / f64::from(1u32 << (b - 1)),
+        SampleEncoding::Float => 1e-6,
+    };
+    let r = recovered_design(&data.channels[0], data.sample_rate_hz, step).map_err(|why| {
+        Error::input(format!(
+            "{} has no {} beside it, and its parameters cannot be recovered from the file: {why}",
+            wav.display(),
+            sidecar_path(wav).display()
+        ))
+    })?;
+    let d = &r.design;
+    let name = wav.file_name().map_or_else(
+        || wav.display().to_string(),
+        |n| n.to_string_lossy().into_owned(),
+    );
+    let what = format!(
+        "{name} has no .json beside it: its parameters were recovered from its instantaneous frequency ({:.4} Hz to {:.4} Hz, rate constant {:.6} s, {:.4} s, then {:.3} s of silence)",
+        d.params.start_hz, d.params.end_hz, d.rate_constant_s, d.length_s, d.params.tail_s
+    );
+    let note = if r.exact {
+        format!("{what}; they generate the file exactly, as gliss sweep made it")
+    } else {
+        format!(
+            "{what}; it is not a sweep gliss made (its samples differ from the synchronised sweep of those parameters), so the harmonic orders are placed by its measured rate constant and their phases are not aligned"
+        )
+    };
+    Ok((r.design, Some(note)))
+}

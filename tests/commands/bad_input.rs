@@ -129,13 +129,23 @@ fn a_channel_that_does_not_exist() {
 fn a_missing_file_and_a_sweep_without_its_parameters() {
     let t = setup();
     refuse_recording(t.path(), "nowhere.wav", "nowhere.wav");
-    std::fs::copy(t.path().join("sweep.wav"), t.path().join("bare.wav")).unwrap();
+    // a sweep WAV without its .json is recovered from its samples (issue
+    // 13 item 14, tests/commands/impulse.rs); one that is no sweep is
+    // refused, naming the .json it lacks and why it cannot do without
+    let (_, s) = read_wav(&t.path().join("sweep.wav"));
+    let not_a_sweep: Vec<f64> = (0..s[0].len())
+        .map(|i| 0.1 * (((i * 7919) % 1000) as f64 / 500.0 - 1.0))
+        .collect();
+    write_wav_f32(&t.path().join("bare.wav"), 48_000, &[not_a_sweep]);
     let before = snapshot(t.path());
     let line = refused(
         t.path(),
         &["analyze", "good.wav", "--sweep", "bare.wav", "--out", "m"],
     );
-    assert!(line.contains("bare.json"), "{line}");
+    assert!(
+        line.contains("bare.json") && line.contains("not an exponential sweep"),
+        "{line}"
+    );
     assert_eq!(snapshot(t.path()), before);
 }
 

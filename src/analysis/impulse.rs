@@ -1,0 +1,242 @@
+//! The analysis of an impulse response given as it is (measured by another
+//! tool, or simulated): every analysis of [`super::analyze`] that needs no
+//! sweep — response, phase, gate, decay spectrum or spectrogram, bands —
+//! by the same stages. What differs:
+//!
+//! - no deconvolution, so no band limit of it to divide out: the response
+//!   is the file's own over [`band`];
+//! - the delay is the position of the response's peak (|h|, to a fraction
+//!   of a sample), from the file's first sample;
+//! - no harmonic distortion: the harmonic orders are separated from the
+//!   recording of a sweep, and an impulse response holds the linear
+//!   response alone (a typed warning says so);
+//! - the peak-to-noise ratio is the peak over the mean power of the last
+//!   tenth of the response (there is no stretch of noise alone to take it
+//!   from).
+
+use super::{
+    Analysis, AnalysisConfig, ImpulseResponse, check_signal, csd, db20, delay, gate, phase,
+    remove_correction, response, room, smoothing, spectrogram,
+};
+use crate::deconv;
+use crate::error::{Error, Result};
+use crate::model::{Code, Parameter, Warnings};
+
+/// The band analysed in an impulse response of `len` samples at `fs` Hz:
+/// 20 Hz (or four periods of the response's length, if higher) to 20 kHz
+/// (or 45 % of the sample rate, if lower).
+pub fn band(fs: f64, len: usize) -> (f64, f64) {
+    (
+        20f64.max(4.0 * fs / len.max(1) as f64),
+        20_000f64.min(0.45 * fs),
+    )
+}
+
+/// Silence put before the response, s, so that windows reaching before its
+/// peak read zeros instead of wrapping round to its end; also how far the
+/// analysed window starts before the peak (at most).
+pub const PRE_S: f64 = 0.1;
+
+/// The sentence of the typed warning that an impulse response has no
+/// distortion.
+pub const NO_DISTORTION: &str = "no harmonic distortion: it is separated from the recording of a sweep, and an impulse response holds the linear response alone; analyse the recording with the sweep that was played for distortion";
+
+/// Analyses the impulse response `ir` at `fs_hz` (see the module's notes).
+pub fn analyze(ir: &[f64], fs_hz: u32, config: &AnalysisConfig) -> Result<Analysis> {
+    let fs = f64::from(fs_hz);
+    let peak = check_signal(ir, "the impulse response")?;
+    let (f1, f2) = band(fs, ir.len());
+    if ir.len() < 64 || f1 >= f2 {
+        return Err(Error::input(format!(
+            "the impulse response holds only {} samples ({:.1} ms): too short to analyse; give the whole response",
+            ir.len(),
+            ir.len() as f64 / fs * 1e3
+        )));
+    }
+    let mut warnings = Warnings::new();
+    let pad = (PRE_S * fs).round() as usize;
+    let mut h = vec![0.0; pad];
+    h.extend_from_slice(ir);
+    let ipeak = delay::peak_index(&h, pad..h.len()).unwrap_or(pad);
+    let delay_samples = delay::refine_peak(&h, ipeak);
+    let pre = pad;
+    let start = ipeak - pre;
+    let len = h.len() - start;
+    let fade = (len / 20).max(8).min(len);
+    let cut = deconv::cut(&h, start as isize, len, pre / 2, fade);
+    let decay = &cut[..len - fade];
+
+    // peak over the last tenth of the response before its fade-out
+    let tail = &decay[decay.len() * 9 / 10..];
+    let noise = tail.iter().map(|v| v * v).sum::<f64>() / tail.len().max(1) as f64;
+    let peak_to_noise_db = if noise > 0.0 {
+        10.0 * (h[ipeak] * h[ipeak] / noise).log10()
+    } else {
+        300.0
+    };
+    if peak_to_noise_db < super::MIN_PEAK_TO_NOISE_DB {
+        warnings.add(
+            Code::LowPeakToNoise,
+            format!(
+                "the end of the impulse response is only {peak_to_noise_db:.0} dB below its peak: it holds little decay above its noise, or was cut off before the decay ended"
+            ),
+        );
+    }
+    warnings.add(Code::DistortionNeedsSweep, NO_DISTORTION);
+
+    let fft_len = response::spectrum_len(len, fs, f1);
+    let grid = smoothing::log_grid(f1, f2);
+    let (spec, df) = response::delay_free_spectrum(&cut, start as f64, delay_samples, fs, fft_len);
+    let (gated, gate_info) = match config.gate {
+        Some(g) => {
+            let (gs, glen, fade_in, fade_out, info) = gate::window(&h, ipeak, fs, f2, g);
+            let glen = glen.min(fft_len);
+            let c = deconv::cut(&h, gs, glen, fade_in.min(glen), fade_out.min(glen));
+            let (gspec, _) =
+                response::delay_free_spectrum(&c, gs as f64, delay_samples, fs, fft_len);
+            (Some(gspec), Some(info))
+        }
+        None => (None, None),
+    };
+    let mut resp_spec = gated.unwrap_or(spec);
+    if let Some(c) = &config.mic_correction {
+        remove_correction(&mut resp_spec, df, c);
+        if let Some(w) = c.coverage_warning(f1, f2) {
+            warnings.add(Code::MicCorrectionCoverage, w);
+        }
+    }
+    let resp = response::on_grid(&resp_spec, df, &grid, config.smoothing, (f1, f2));
+    if let Some(g) = gate_info {
+        if g.resolution_hz > f1 {
+            warnings.add(Code::GateResolution, format!(
+                "the {:.2} ms gate resolves the response only above about {:.0} Hz (1/gate length); below, results.json marks it unresolved and the plot greys it out",
+                (g.end_s - g.start_s) * 1e3,
+                g.resolution_hz
+            ));
+        }
+    }
+    let decay_spectrum = gate_info.map(|g| {
+        let cfg = csd::CsdConfig {
+            first_s: g.start_s,
+            step_s: 0.8 * (g.end_s - g.start_s) / 40.0,
+            slices: 40,
+            end_s: g.end_s,
+            rise_s: 0.1e-3,
+        };
+        csd::decay_spectrum(&h, ipeak, fs, &grid, config.smoothing, (f1, f2), cfg)
+    });
+    let spectrogram = gate_info.is_none().then(|| {
+        spectrogram::spectrogram(
+            decay,
+            fs,
+            (f1, f2),
+            spectrogram::SpectrogramConfig::default(),
+        )
+    });
+    let phase = phase::analyze(
+        &grid,
+        &resp.phase_deg,
+        &resp_spec,
+        df,
+        (f1, f2),
+        config.smoothing,
+        delay_samples / fs,
+    );
+    let room = config.bands.then(|| {
+        let r = room::analyze(decay, fs, f1, f2);
+        let missing = r
+            .bands
+            .iter()
+            .filter(|b| {
+                b.get(Parameter::T30).is_none()
+                    || b.get(Parameter::T20).is_none()
+                    || b.get(Parameter::Edt).is_none()
+            })
+            .count();
+        if missing > 0 {
+            warnings.add(Code::BandsIncomplete, format!(
+                "{missing} of {} bands lack some decay parameters (too little decay range, too short a decay for the band, or no decay); bands[].warnings says which and why",
+                r.bands.len()
+            ));
+        }
+        if r.bands.iter().any(|b| {
+            b.curvature_percent
+                .is_some_and(|c| c.abs() > room::MAX_CURVATURE_PERCENT)
+        }) {
+            warnings.add(
+                Code::CurvedDecays,
+                "some bands decay along more than one slope (curvature above 10 %); see bands[].warnings",
+            );
+        }
+        r
+    });
+    Ok(Analysis {
+        sample_rate_hz: fs_hz,
+        delay_s: (delay_samples - pad as f64) / fs,
+        impulse: ImpulseResponse {
+            samples: cut,
+            start_s: (start as f64 - pad as f64) / fs,
+            sample_rate_hz: fs_hz,
+        },
+        response: resp,
+        phase,
+        gate: gate_info,
+        decay_spectrum,
+        spectrogram,
+        distortion: None,
+        room,
+        peak_dbfs: db20(peak),
+        peak_to_noise_db,
+        warnings,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use rand::{Rng, SeedableRng};
+
+    #[test]
+    fn a_delayed_impulse_is_flat_and_placed_at_its_peak() {
+        // closed form: δ[n − k] has |H| = 1 (0 dB) and its peak at k/fs
+        let mut x = vec![0.0; 48_000];
+        x[480] = 0.5;
+        let config = AnalysisConfig {
+            bands: false,
+            smoothing: smoothing::Smoothing::None,
+            ..AnalysisConfig::default()
+        };
+        let a = analyze(&x, 48_000, &config).unwrap();
+        assert!((a.delay_s - 0.01).abs() < 1e-9, "{}", a.delay_s);
+        for (f, m) in a.response.frequency_hz.iter().zip(&a.response.magnitude_db) {
+            assert!((m - 20.0 * 0.5f64.log10()).abs() < 0.01, "{f} Hz: {m} dB");
+        }
+        assert!(a.distortion.is_none());
+        assert!(
+            a.warnings
+                .iter()
+                .any(|w| w.code == Code::DistortionNeedsSweep)
+        );
+    }
+
+    #[test]
+    fn an_exponential_decay_gives_its_reverberation_time() {
+        // closed form: noise decaying 60 dB in T has T30 = T per band
+        let fs = 48_000.0;
+        let t60 = 0.8;
+        let mut r = rand::rngs::StdRng::seed_from_u64(5);
+        let x: Vec<f64> = (0..(2.0 * fs) as usize)
+            .map(|i| (r.random::<f64>() - 0.5) * 10f64.powf(-3.0 * i as f64 / (t60 * fs)))
+            .collect();
+        let a = analyze(&x, 48_000, &AnalysisConfig::default()).unwrap();
+        let room = a.room.unwrap();
+        for b in room.bands.iter().filter(|b| {
+            b.fraction == crate::model::Fraction::Octave && (250.0..=8_000.0).contains(&b.center_hz)
+        }) {
+            let t30 = b.get(Parameter::T30).unwrap();
+            assert!((t30 / t60 - 1.0).abs() < 0.05, "{} Hz: {t30}", b.center_hz);
+        }
+        assert!(analyze(&[0.0; 100], 48_000, &AnalysisConfig::default()).is_err());
+        assert!(analyze(&[1.0; 10], 48_000, &AnalysisConfig::default()).is_err());
+    }
+}
