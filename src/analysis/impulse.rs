@@ -89,12 +89,15 @@ pub fn analyze(ir: &[f64], fs_hz: u32, config: &AnalysisConfig) -> Result<Analys
     let (spec, df) = response::delay_free_spectrum(&cut, start as f64, delay_samples, fs, fft_len);
     let (gated, gate_info) = match config.gate {
         Some(g) => {
-            let (gs, glen, fade_in, fade_out, info) = gate::window(&h, ipeak, fs, f2, g);
-            let glen = glen.min(fft_len);
-            let c = deconv::cut(&h, gs, glen, fade_in.min(glen), fade_out.min(glen));
+            let c = gate::window(&h, ipeak, fs, f2, g);
+            if let Some(w) = c.warning {
+                warnings.push(w);
+            }
+            let glen = c.len.min(fft_len);
+            let cut = deconv::cut(&h, c.start, glen, c.fade_in.min(glen), c.fade_out.min(glen));
             let (gspec, _) =
-                response::delay_free_spectrum(&c, gs as f64, delay_samples, fs, fft_len);
-            (Some(gspec), Some(info))
+                response::delay_free_spectrum(&cut, c.start as f64, delay_samples, fs, fft_len);
+            (Some(gspec), Some(c.info))
         }
         None => (None, None),
     };
