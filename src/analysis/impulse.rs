@@ -15,12 +15,12 @@
 //!   from).
 
 use super::{
-    Analysis, AnalysisConfig, ImpulseResponse, check_signal, csd, db20, delay, gate, phase,
-    remove_correction, response, room, smoothing, spectrogram,
+    Analysis, AnalysisConfig, ImpulseResponse, Linear, ResponseParts, band_warnings, check_signal,
+    db20, delay, response, response_parts, room, smoothing,
 };
 use crate::deconv;
 use crate::error::{Error, Result};
-use crate::model::{Code, Parameter, Warnings};
+use crate::model::{Code, Warnings};
 
 /// The band analysed in an impulse response of `len` samples at `fs` Hz:
 /// 20 Hz (or four periods of the response's length, if higher) to 20 kHz
@@ -87,90 +87,32 @@ pub fn analyze(ir: &[f64], fs_hz: u32, config: &AnalysisConfig) -> Result<Analys
     let fft_len = response::spectrum_len(len, fs, f1);
     let grid = smoothing::log_grid(f1, f2);
     let (spec, df) = response::delay_free_spectrum(&cut, start as f64, delay_samples, fs, fft_len);
-    let (gated, gate_info) = match config.gate {
-        Some(g) => {
-            let c = gate::window(&h, ipeak, fs, f2, g);
-            if let Some(w) = c.warning {
-                warnings.push(w);
-            }
-            let glen = c.len.min(fft_len);
-            let cut = deconv::cut(&h, c.start, glen, c.fade_in.min(glen), c.fade_out.min(glen));
-            let (gspec, _) =
-                response::delay_free_spectrum(&cut, c.start as f64, delay_samples, fs, fft_len);
-            (Some(gspec), Some(c.info))
-        }
-        None => (None, None),
-    };
-    let mut resp_spec = gated.unwrap_or(spec);
-    if let Some(c) = &config.mic_correction {
-        remove_correction(&mut resp_spec, df, c);
-        if let Some(w) = c.coverage_warning(f1, f2) {
-            warnings.add(Code::MicCorrectionCoverage, w);
-        }
-    }
-    let resp = response::on_grid(&resp_spec, df, &grid, config.smoothing, (f1, f2));
-    if let Some(g) = gate_info {
-        if g.resolution_hz > f1 {
-            warnings.add(Code::GateResolution, format!(
-                "the {:.2} ms gate resolves the response only above about {:.0} Hz (1/gate length); below, results.json marks it unresolved and the plot greys it out",
-                (g.end_s - g.start_s) * 1e3,
-                g.resolution_hz
-            ));
-        }
-    }
-    let decay_spectrum = gate_info.map(|g| {
-        let cfg = csd::CsdConfig {
-            first_s: g.start_s,
-            step_s: 0.8 * (g.end_s - g.start_s) / 40.0,
-            slices: 40,
-            end_s: g.end_s,
-            rise_s: 0.1e-3,
-        };
-        csd::decay_spectrum(&h, ipeak, fs, &grid, config.smoothing, (f1, f2), cfg)
-    });
-    let spectrogram = gate_info.is_none().then(|| {
-        spectrogram::spectrogram(
-            decay,
+    let ResponseParts {
+        response: resp,
+        phase,
+        gate: gate_info,
+        decay_spectrum,
+        spectrogram,
+    } = response_parts(
+        Linear {
+            h: &h,
+            ipeak,
+            delay_samples,
             fs,
-            (f1, f2),
-            spectrogram::SpectrogramConfig::default(),
-        )
-    });
-    let phase = phase::analyze(
-        &grid,
-        &resp.phase_deg,
-        &resp_spec,
-        df,
-        (f1, f2),
-        config.smoothing,
-        delay_samples / fs,
+            band: (f1, f2),
+            fft_len,
+            grid: &grid,
+            spec: &spec,
+            df,
+            decay,
+        },
+        config,
+        &mut warnings,
+        |cut, start| response::delay_free_spectrum(cut, start, delay_samples, fs, fft_len).0,
     );
     let room = config.bands.then(|| {
         let r = room::analyze(decay, fs, f1, f2);
-        let missing = r
-            .bands
-            .iter()
-            .filter(|b| {
-                b.get(Parameter::T30).is_none()
-                    || b.get(Parameter::T20).is_none()
-                    || b.get(Parameter::Edt).is_none()
-            })
-            .count();
-        if missing > 0 {
-            warnings.add(Code::BandsIncomplete, format!(
-                "{missing} of {} bands lack some decay parameters (too little decay range, too short a decay for the band, or no decay); bands[].warnings says which and why",
-                r.bands.len()
-            ));
-        }
-        if r.bands.iter().any(|b| {
-            b.curvature_percent
-                .is_some_and(|c| c.abs() > room::MAX_CURVATURE_PERCENT)
-        }) {
-            warnings.add(
-                Code::CurvedDecays,
-                "some bands decay along more than one slope (curvature above 10 %); see bands[].warnings",
-            );
-        }
+        band_warnings(&r, &mut warnings);
         r
     });
     Ok(Analysis {
@@ -197,6 +139,7 @@ pub fn analyze(ir: &[f64], fs_hz: u32, config: &AnalysisConfig) -> Result<Analys
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::model::Parameter;
     use rand::{Rng, SeedableRng};
 
     #[test]

@@ -285,72 +285,31 @@ pub fn analyze(
     let (spec, df) = linear_spectrum(&ir, start as f64, delay_samples, fs, fft_len, f1);
     // with a gate, the response and its phase come from the gated part
     // alone; distortion and bands keep the whole linear response
-    let (gated, gate_info) = match config.gate {
-        Some(g) => {
-            let c = gate::window(&h, ipeak, fs, f2, g);
-            if let Some(w) = c.warning {
-                warnings.push(w);
-            }
-            // a gate longer than the analysed response adds nothing
-            let glen = c.len.min(fft_len);
-            let cut = deconv::cut(&h, c.start, glen, c.fade_in.min(glen), c.fade_out.min(glen));
-            let (gspec, _) = linear_spectrum(&cut, c.start as f64, delay_samples, fs, fft_len, f1);
-            (Some(gspec), Some(c.info))
-        }
-        None => (None, None),
-    };
-    let mut resp_spec: Vec<_> = gated.unwrap_or_else(|| spec.clone());
-    if let Some(c) = &config.mic_correction {
-        // the microphone's own deviation out of the response and its phase
-        // (distortion and bands keep the uncorrected response)
-        remove_correction(&mut resp_spec, df, c);
-        if let Some(w) = c.coverage_warning(f1, f2) {
-            warnings.add(Code::MicCorrectionCoverage, w);
-        }
-    }
-    let resp_spec = &resp_spec[..];
-    let response = response::on_grid(resp_spec, df, &grid, config.smoothing, (f1, f2));
-    if let Some(g) = gate_info {
-        if g.resolution_hz > f1 {
-            warnings.add(Code::GateResolution, format!(
-                "the {:.2} ms gate resolves the response only above about {:.0} Hz (1/gate length); below, results.json marks it unresolved and the plot greys it out",
-                (g.end_s - g.start_s) * 1e3,
-                g.resolution_hz
-            ));
-        }
-    }
-    // the decay spectrum inside the gate: 40 starts from the gate's start
-    // over 80 % of its length after the peak
-    let decay_spectrum = gate_info.map(|g| {
-        let cfg = csd::CsdConfig {
-            first_s: g.start_s,
-            step_s: 0.8 * (g.end_s - g.start_s) / 40.0,
-            slices: 40,
-            end_s: g.end_s,
-            rise_s: 0.1e-3,
-        };
-        csd::decay_spectrum(&h, ipeak, fs, &grid, config.smoothing, (f1, f2), cfg)
-    });
-    // without a gate, the time-frequency picture of the whole decay (the
-    // response without its final fade-out, as the room analysis sees it)
-    let spectrogram = gate_info.is_none().then(|| {
-        let fade = (len / 20).max(8).min(len);
-        spectrogram::spectrogram(
-            &ir[..len - fade],
+    let fade = (len / 20).max(8).min(len);
+    let parts = response_parts(
+        Linear {
+            h: &h,
+            ipeak,
+            delay_samples,
             fs,
-            (f1, f2),
-            spectrogram::SpectrogramConfig::default(),
-        )
-    });
-    let phase = phase::analyze(
-        &grid,
-        &response.phase_deg,
-        resp_spec,
-        df,
-        (f1, f2),
-        config.smoothing,
-        delay_samples / fs,
+            band: (f1, f2),
+            fft_len,
+            grid: &grid,
+            spec: &spec,
+            df,
+            decay: &ir[..len - fade],
+        },
+        config,
+        &mut warnings,
+        |cut, start| linear_spectrum(cut, start, delay_samples, fs, fft_len, f1).0,
     );
+    let ResponseParts {
+        response,
+        phase,
+        gate: gate_info,
+        decay_spectrum,
+        spectrogram,
+    } = parts;
 
     let distortion = (max_order >= 2).then(|| {
         let a = end.max(0) as usize;
@@ -401,23 +360,7 @@ pub fn analyze(
             );
             return r;
         }
-        let missing = r
-            .bands
-            .iter()
-            .filter(|b| b.get(Parameter::T30).is_none() || b.get(Parameter::T20).is_none() || b.get(Parameter::Edt).is_none())
-            .count();
-        if missing > 0 {
-            warnings.add(Code::BandsIncomplete, format!(
-                "{missing} of {} bands lack some decay parameters (too little decay range, too short a decay for the band, no decay, or a start that cannot be told from the noise); bands[].warnings says which and why",
-                r.bands.len()
-            ));
-        }
-        if r.bands.iter().any(|b| b.curvature_percent.is_some_and(|c| c.abs() > room::MAX_CURVATURE_PERCENT)) {
-            warnings.add(
-                Code::CurvedDecays,
-                "some bands decay along more than one slope (curvature above 10 %); see bands[].warnings",
-            );
-        }
+        band_warnings(&r, &mut warnings);
         r
     });
 
@@ -508,6 +451,160 @@ pub fn linear_fft_len(
     let windows = distortion::harmonic_windows(design, ipeak, linear_pre(design), max_order);
     let longest = windows.iter().map(|w| w.len).fold(linear_len, usize::max);
     response::spectrum_len(longest, design.fs(), design.params.start_hz)
+}
+
+/// What both the sweep's analysis and an impulse response's share after
+/// the linear response's spectrum `spec` (of the whole response, `df` Hz a
+/// bin): the gate, the microphone correction, the response on the grid,
+/// the decay spectrum (with a gate) or the spectrogram of `decay` (without
+/// one), and the phase.
+pub(crate) struct Linear<'a> {
+    /// The whole (circular) response the gate cuts from.
+    pub h: &'a [f64],
+    /// Its peak.
+    pub ipeak: usize,
+    /// The arrival, samples (sub-sample).
+    pub delay_samples: f64,
+    /// Sample rate, Hz.
+    pub fs: f64,
+    /// The band analysed, Hz.
+    pub band: (f64, f64),
+    /// The transform length of `spec`.
+    pub fft_len: usize,
+    /// The log frequency grid.
+    pub grid: &'a [f64],
+    /// The spectrum of the linear response (delay removed).
+    pub spec: &'a [rustfft::num_complex::Complex<f64>],
+    /// Its bin width, Hz.
+    pub df: f64,
+    /// The response as the room analysis and the spectrogram see it.
+    pub decay: &'a [f64],
+}
+
+/// The response-side results of [`response_parts`].
+pub(crate) struct ResponseParts {
+    pub response: FrequencyResponse,
+    pub phase: phase::PhaseAnalysis,
+    pub gate: Option<gate::GateInfo>,
+    pub decay_spectrum: Option<Vec<csd::Slice>>,
+    pub spectrogram: Option<spectrogram::Spectrogram>,
+}
+
+/// The gate, the correction, the response, the decay spectrum or the
+/// spectrogram, and the phase of `l` (see [`Linear`]); `spectrum` takes the
+/// spectrum of a gated cut starting at the given sample, as `l.spec` was
+/// taken.
+pub(crate) fn response_parts(
+    l: Linear<'_>,
+    config: &AnalysisConfig,
+    warnings: &mut Warnings,
+    spectrum: impl Fn(&[f64], f64) -> Vec<rustfft::num_complex::Complex<f64>>,
+) -> ResponseParts {
+    let (f1, f2) = l.band;
+    let (gated, gate_info) = match config.gate {
+        Some(g) => {
+            let c = gate::window(l.h, l.ipeak, l.fs, f2, g);
+            if let Some(w) = c.warning {
+                warnings.push(w);
+            }
+            // a gate longer than the analysed response adds nothing
+            let glen = c.len.min(l.fft_len);
+            let cut = deconv::cut(
+                l.h,
+                c.start,
+                glen,
+                c.fade_in.min(glen),
+                c.fade_out.min(glen),
+            );
+            (Some(spectrum(&cut, c.start as f64)), Some(c.info))
+        }
+        None => (None, None),
+    };
+    let mut resp_spec: Vec<_> = gated.unwrap_or_else(|| l.spec.to_vec());
+    if let Some(c) = &config.mic_correction {
+        // the microphone's own deviation out of the response and its phase
+        // (distortion and bands keep the uncorrected response)
+        remove_correction(&mut resp_spec, l.df, c);
+        if let Some(w) = c.coverage_warning(f1, f2) {
+            warnings.add(Code::MicCorrectionCoverage, w);
+        }
+    }
+    let response = response::on_grid(&resp_spec, l.df, l.grid, config.smoothing, (f1, f2));
+    if let Some(g) = gate_info {
+        if g.resolution_hz > f1 {
+            warnings.add(Code::GateResolution, format!(
+                "the {:.2} ms gate resolves the response only above about {:.0} Hz (1/gate length); below, results.json marks it unresolved and the plot greys it out",
+                (g.end_s - g.start_s) * 1e3,
+                g.resolution_hz
+            ));
+        }
+    }
+    // the decay spectrum inside the gate: 40 starts from the gate's start
+    // over 80 % of its length after the peak
+    let decay_spectrum = gate_info.map(|g| {
+        let cfg = csd::CsdConfig {
+            first_s: g.start_s,
+            step_s: 0.8 * (g.end_s - g.start_s) / 40.0,
+            slices: 40,
+            end_s: g.end_s,
+            rise_s: 0.1e-3,
+        };
+        csd::decay_spectrum(l.h, l.ipeak, l.fs, l.grid, config.smoothing, (f1, f2), cfg)
+    });
+    // without a gate, the time-frequency picture of the whole decay
+    let spectrogram = gate_info.is_none().then(|| {
+        spectrogram::spectrogram(
+            l.decay,
+            l.fs,
+            (f1, f2),
+            spectrogram::SpectrogramConfig::default(),
+        )
+    });
+    let phase = phase::analyze(
+        l.grid,
+        &response.phase_deg,
+        &resp_spec,
+        l.df,
+        (f1, f2),
+        config.smoothing,
+        l.delay_samples / l.fs,
+    );
+    ResponseParts {
+        response,
+        phase,
+        gate: gate_info,
+        decay_spectrum,
+        spectrogram,
+    }
+}
+
+/// The warnings a room analysis `r` gives as a whole: bands that lack some
+/// decay parameter, decays along more than one slope.
+pub(crate) fn band_warnings(r: &room::Room, warnings: &mut Warnings) {
+    let missing = r
+        .bands
+        .iter()
+        .filter(|b| {
+            b.get(Parameter::T30).is_none()
+                || b.get(Parameter::T20).is_none()
+                || b.get(Parameter::Edt).is_none()
+        })
+        .count();
+    if missing > 0 {
+        warnings.add(Code::BandsIncomplete, format!(
+            "{missing} of {} bands lack some decay parameters (too little decay range, too short a decay for the band, no decay, or a start that cannot be told from the noise); bands[].warnings says which and why",
+            r.bands.len()
+        ));
+    }
+    if r.bands.iter().any(|b| {
+        b.curvature_percent
+            .is_some_and(|c| c.abs() > room::MAX_CURVATURE_PERCENT)
+    }) {
+        warnings.add(
+            Code::CurvedDecays,
+            "some bands decay along more than one slope (curvature above 10 %); see bands[].warnings",
+        );
+    }
 }
 
 /// The spectrum of an impulse response as the analysis takes it: on the

@@ -49,17 +49,22 @@ fn the_demo_gives_one_verdict_in_the_terminal_the_json_the_plot_and_the_report()
         .flat_map(|(_, v)| v.lines().map(str::to_string).collect::<Vec<_>>())
         .collect();
     assert!(!marks.is_empty(), "the plot says what it marks");
-    // the terminal: "   125 Hz  T30 0.87 s -> 0.52 s (-40 %), +9.9 m² absorption: audible change"
+    // the terminal: "     125 Hz  T30 0.87 s -> 0.52 s (-40 %), +9.9 m² absorption: audible change"
     let summary = &out[out.find("compared before and after").expect("a summary")..];
     let terminal: Vec<(f64, String)> = summary
         .lines()
         .skip(1)
         .take_while(|l| l.contains(" T30 "))
         .map(|l| {
-            let hz = l.split_whitespace().next().unwrap();
-            let hz: f64 = match hz.strip_suffix('k') {
-                Some(k) => k.parse::<f64>().unwrap() * 1000.0,
-                None => hz.parse().unwrap(),
+            // "125 Hz" or "1 kHz"
+            let mut words = l.split_whitespace();
+            let number: f64 = words.next().unwrap().parse().unwrap();
+            let hz = match words.next().unwrap() {
+                "kHz" => number * 1000.0,
+                unit => {
+                    assert_eq!(unit, "Hz", "{l}");
+                    number
+                }
             };
             (hz, l[l.rfind(": ").unwrap() + 2..].to_string())
         })
