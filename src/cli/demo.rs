@@ -243,6 +243,7 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
         written.push(condition.to_string());
     }
     let (cmp, _) = compare::compare(&CompareJob {
+        align: None,
         out: a.out.join("comparison"),
         overwrite: a.output.overwrite,
         inputs: vec![a.out.join("before"), a.out.join("after")],
