@@ -199,3 +199,35 @@ fn bad_drive_voltages_and_distances_are_refused() {
     // nothing was written
     assert_eq!(snapshot(t.path()), before);
 }
+
+#[test]
+fn calibrate_replaces_a_calibration_only_with_overwrite() {
+    let t = setup();
+    let d = t.path();
+    let before = std::fs::read(d.join("cal.json")).unwrap();
+    let args = [
+        "calibrate",
+        "tone.wav",
+        "--level",
+        "114",
+        "--out",
+        "cal.json",
+    ];
+    let line = refused(d, &args);
+    assert!(
+        line.contains("already exists") && line.contains("--overwrite"),
+        "{line}"
+    );
+    assert_eq!(std::fs::read(d.join("cal.json")).unwrap(), before);
+    let mut again = args.to_vec();
+    again.push("--overwrite");
+    ok(d, &again);
+    // 20 dB more for the same tone: the full-scale level moves by 20 dB
+    let (old, new) = (
+        serde_json::from_slice::<serde_json::Value>(&before).unwrap(),
+        json(&d.join("cal.json")),
+    );
+    let key = "full_scale_db_spl";
+    let delta = new[key].as_f64().unwrap() - old[key].as_f64().unwrap();
+    assert!((delta - 20.0).abs() < 1e-6, "{delta}: {new}");
+}
