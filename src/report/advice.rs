@@ -1,7 +1,7 @@
 //! Warnings in plain words: grouped by what they are about, each group
 //! with what to do about it.
 
-use crate::analysis::room::BandResult;
+use crate::analysis::room::{self, BandResult};
 use crate::model::{Code, Topic, Warning};
 
 /// A group of warnings about one thing.
@@ -21,7 +21,7 @@ pub fn topic(t: Topic) -> (&'static str, &'static str) {
     match t {
         Topic::Curvature => (
             "Decays along more than one slope",
-            "The decay is not a single straight line in these bands (coupled spaces, a strong mode, or an uneven spread of absorption). Read T20 and T30 there with care, prefer EDT for what is heard, and measure at more microphone positions.",
+            "The decay is not a single straight line in these bands, by more than the scatter of T20 and T30 in the band allows (coupled spaces, or absorption gathered on a few surfaces). Read T20 and T30 there with care, prefer EDT for what is heard, look at the decay plot, and measure at more microphone positions.",
         ),
         Topic::ShortDecay => (
             "Decays too short for the band filter",
@@ -57,24 +57,38 @@ pub fn topic(t: Topic) -> (&'static str, &'static str) {
 }
 
 /// Groups `general` warnings (results.json `warnings`) and the bands'
-/// warnings by their codes' topics, in the order topics first appear.
+/// warnings by their codes' topics, in the order topics first appear. The
+/// bands' warnings come one line per code and band width
+/// ([`room::group_band_warnings`], as the terminal prints them), in place
+/// of the whole result's summaries of them; each band's own sentences stay
+/// in its row of the band tables.
 pub fn group(general: &[Warning], bands: &[BandResult]) -> Vec<Group> {
-    let mut groups: Vec<Group> = Vec::new();
+    let lines = room::group_band_warnings(bands);
     let all = general
         .iter()
-        .chain(bands.iter().flat_map(|b| b.warnings.iter()));
-    for w in all {
-        let (title, advice) = topic(w.code.topic());
+        .filter(|w| lines.is_empty() || !room::summarises_bands(w.code))
+        .map(|w| (w.code, w.message.clone()))
+        .chain(lines.iter().map(|g| (g.code, g.line())))
+        .chain(
+            bands
+                .iter()
+                .flat_map(|b| b.warnings.iter())
+                .filter(|w| w.code == Code::Unclassified)
+                .map(|w| (w.code, w.message.clone())),
+        );
+    let mut groups: Vec<Group> = Vec::new();
+    for (code, message) in all {
+        let (title, advice) = topic(code.topic());
         match groups.iter_mut().find(|g| g.title == title) {
             Some(g) => {
-                if !g.items.contains(&w.message) {
-                    g.items.push(w.message.clone());
+                if !g.items.contains(&message) {
+                    g.items.push(message);
                 }
             }
             None => groups.push(Group {
                 title,
                 advice,
-                items: vec![w.message.clone()],
+                items: vec![message],
             }),
         }
     }
