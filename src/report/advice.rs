@@ -177,4 +177,31 @@ mod tests {
         assert_eq!(g[1].title, "Decays along more than one slope");
         assert!(!g[1].advice.is_empty());
     }
+
+    #[test]
+    fn the_bands_warnings_come_one_line_per_code_in_place_of_their_summary() {
+        let mut bands: Vec<BandResult> = [63.0, 80.0, 100.0, 125.0, 160.0]
+            .iter()
+            .map(|&f| BandResult::empty(f, f, crate::model::Fraction::Third))
+            .collect();
+        for i in [0, 1, 3, 4] {
+            let hz = bands[i].center_hz;
+            bands[i].warnings.add(
+                Code::BandCurvature,
+                format!("{hz} Hz (1/3-octave): curvature 80 %"),
+            );
+        }
+        let summary = Warning::new(
+            Code::CurvedDecays,
+            "some bands decay along more than one slope; see bands[].warnings",
+        );
+        let g = group(std::slice::from_ref(&summary), &bands);
+        assert_eq!(g.len(), 1);
+        assert_eq!(
+            g[0].items,
+            ["curvature in 4 of 5 one-third-octave bands: 63, 80, 125, 160 Hz"]
+        );
+        // without bands (a comparison) a summary is shown as it is
+        assert_eq!(group(&[summary], &[])[0].items.len(), 1);
+    }
 }

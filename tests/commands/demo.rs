@@ -413,7 +413,7 @@ fn curved_bands(results: &serde_json::Value) -> Vec<String> {
 #[test]
 fn the_demo_rooms_single_exponential_decays_give_no_curvature_warning() {
     // Issue 14 item 13: the virtual room decays along one exponential per
-    // band, yet every position used to warn of curvature (3 to 11 bands
+    // band, yet every position used to warn of curvature (3 to 12 bands
     // each, a fixed 10 % limit against the scatter of one-third octaves).
     // The single measurement as measurements/rehearsal-room/before-1 was
     // made, then the six committed positions' impulse responses.
