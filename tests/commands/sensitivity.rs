@@ -231,3 +231,29 @@ fn calibrate_replaces_a_calibration_only_with_overwrite() {
     let delta = new[key].as_f64().unwrap() - old[key].as_f64().unwrap();
     assert!((delta - 20.0).abs() < 1e-6, "{delta}: {new}");
 }
+
+#[test]
+fn calibrate_names_the_channel_that_holds_the_tone() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    let tone: Vec<f64> = (0..96_000)
+        .map(|i| 0.2 * (std::f64::consts::TAU * 1000.0 * i as f64 / 48_000.0).sin())
+        .collect();
+    // the microphone on input 2; input 1 silent
+    write_wav_f32(&d.join("two.wav"), 48_000, &[vec![0.0; 96_000], tone]);
+    let before = snapshot(d);
+    let line = refused(d, &["calibrate", "two.wav", "--out", "cal.json"]);
+    assert!(line.contains("give --channel 2"), "{line}");
+    assert_eq!(snapshot(d), before, "nothing written");
+    ok(
+        d,
+        &[
+            "calibrate",
+            "two.wav",
+            "--channel",
+            "2",
+            "--out",
+            "cal.json",
+        ],
+    );
+}
