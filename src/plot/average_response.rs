@@ -4,7 +4,8 @@ use std::path::Path;
 
 use plotters::prelude::*;
 
-use super::axes::{db_range, draw_log_panel};
+use super::annotate::Marks;
+use super::axes::{Clip, db_range, draw_log_panel};
 use super::theme::{BLUE, canvas, plot_error};
 use crate::error::Result;
 
@@ -49,6 +50,7 @@ pub fn average_response_png(
         BLUE,
         format!("power average of {} positions", positions.len()),
     ));
+    let mut marks = Marks::new();
     draw_log_panel(
         &body,
         (f1, f2),
@@ -58,8 +60,12 @@ pub fn average_response_png(
         None,
         &series,
         None,
+        Clip::Nothing,
+        &mut marks,
+        "response",
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    Ok(())
+    drop(root);
+    marks.write(path)
 }
