@@ -50,13 +50,16 @@ pub fn group_delay_png(
                 frequency_hz,
                 &gd,
                 ORANGE,
-                format!("group delay (after the {:.3} ms delay)", delay_s * 1e3),
+                format!("group delay, 0 ms = the arrival at {:.3} ms", delay_s * 1e3),
             ),
             (
                 frequency_hz,
                 &excess,
                 BLUE,
-                "excess group delay (delay included)".to_string(),
+                format!(
+                    "excess group delay: beyond the minimum phase, arrival at {:.3} ms not removed",
+                    delay_s * 1e3
+                ),
             ),
         ],
         None,

@@ -262,3 +262,6 @@ fn not_drawn(kind: PlotKind, why: &str) -> Error {
         format!("{} cannot be drawn: {why}", kind.file()),
     )
 }
+
+#[cfg(test)]
+mod tests;
