@@ -27,22 +27,24 @@ pub fn average_response_png(
         .chain(average.iter().copied())
         .collect();
     let (lo, hi) = db_range(&all, 10.0, 40.0);
-    let faint = RGBColor(160, 175, 190);
+    // each position its own grey (light to dark) and its own legend
+    // entry, so that one can tell which faint line is which
+    let n = positions.len().max(1);
+    let greys: Vec<RGBColor> = (0..positions.len())
+        .map(|k| {
+            let t = if n == 1 {
+                0.5
+            } else {
+                k as f64 / (n - 1) as f64
+            };
+            let v = (185.0 - 95.0 * t).round() as u8;
+            RGBColor(v, v, v.saturating_add(12))
+        })
+        .collect();
     let mut series: Vec<_> = positions
         .iter()
         .enumerate()
-        .map(|(k, (label, v))| {
-            (
-                frequency_hz,
-                v.as_slice(),
-                faint,
-                if k == 0 {
-                    format!("positions ({label} …)")
-                } else {
-                    String::new()
-                },
-            )
-        })
+        .map(|(k, (label, v))| (frequency_hz, v.as_slice(), greys[k], label.clone()))
         .collect();
     series.push((
         frequency_hz,

@@ -72,8 +72,6 @@ fn frequency_axes_end_on_a_labelled_tick() {
     assert!(ticks.ends_with(", 20k"), "{ticks}");
     assert!(ticks.starts_with("20, 50, 100"), "{ticks}");
     assert_eq!(range(&one(&png, "difference x range")).1, 20_000.0);
-    // no 1-2-5 label crowds the edge's
-    assert!(!ticks.contains("10k, 20k") || 20_000.0 / 10_000.0 >= 1.3);
 }
 
 #[test]
@@ -139,7 +137,7 @@ fn the_energy_time_curve_starts_just_before_the_direct_sound() {
     impulse_png(&path, "t", &ir, 0.0, 0.08, fs).unwrap();
     let png = read(&path);
     let (start, _) = range(&one(&png, "etc x range"));
-    assert!(start < 80.0 && start >= 70.0, "{start} ms");
+    assert!((70.0..80.0).contains(&start), "{start} ms");
 }
 
 #[test]
