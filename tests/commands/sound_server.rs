@@ -187,35 +187,9 @@ fn stopped_by(signal: &str) {
         return;
     }
     let t = tempfile::tempdir().unwrap();
-    let bin = assert_cmd::cargo::cargo_bin("gliss");
-    let child = Command::new(bin)
-        .current_dir(t.path())
-        .args([
-            "measure",
-            "--out",
-            "cut",
-            "--length",
-            "8",
-            "--tail",
-            "1",
-            "--no-plots",
-        ])
-        .stdout(std::process::Stdio::piped())
-        .stderr(std::process::Stdio::piped())
-        .spawn()
-        .unwrap();
     // stop once a second has reached the disk (the raw file is written
     // while it is recorded), however slowly the machine started
-    let raw = t.path().join("cut/recording.wav");
-    let one_second = 44 + 48_000 * 4;
-    let waited = std::time::Instant::now();
-    while std::fs::metadata(&raw).map_or(0, |m| m.len()) < one_second {
-        assert!(
-            waited.elapsed() < Duration::from_secs(30),
-            "no recording reached the disk"
-        );
-        std::thread::sleep(Duration::from_millis(50));
-    }
+    let child = measuring_until(t.path(), 1.0, std::process::Stdio::piped);
     let killed = Command::new("kill")
         .args([signal, &child.id().to_string()])
         .status()
@@ -258,33 +232,8 @@ fn after_kill_9_the_raw_header_lags_its_data_by_at_most_a_tenth_of_a_second() {
         .enumerate()
     {
         let t = tempfile::tempdir().unwrap();
-        let bin = assert_cmd::cargo::cargo_bin("gliss");
-        let mut child = Command::new(bin)
-            .current_dir(t.path())
-            .args([
-                "measure",
-                "--out",
-                "cut",
-                "--length",
-                "8",
-                "--tail",
-                "1",
-                "--no-plots",
-            ])
-            .stdout(std::process::Stdio::null())
-            .stderr(std::process::Stdio::null())
-            .spawn()
-            .unwrap();
+        let mut child = measuring_until(t.path(), after_s, std::process::Stdio::null);
         let raw = t.path().join("cut/recording.wav");
-        let enough = 44 + (after_s * 48_000.0) as u64 * 4;
-        let waited = std::time::Instant::now();
-        while std::fs::metadata(&raw).map_or(0, |m| m.len()) < enough {
-            assert!(
-                waited.elapsed() < Duration::from_secs(30),
-                "no recording reached the disk"
-            );
-            std::thread::sleep(Duration::from_millis(7));
-        }
         // a little later, not right as the file grew
         std::thread::sleep(Duration::from_millis(wait_ms));
         child.kill().unwrap(); // SIGKILL: nothing runs after it
@@ -306,6 +255,43 @@ fn after_kill_9_the_raw_header_lags_its_data_by_at_most_a_tenth_of_a_second() {
         assert_eq!(rate, 48_000);
         assert!(rec[0].len() as f64 / 48_000.0 >= after_s - 0.1);
     }
+}
+
+/// Starts an 8 s measurement into `dir/cut` and returns it once `seconds`
+/// of one channel's 32-bit audio have reached the raw file, however slowly
+/// the machine started (`output` makes the child's stdout and stderr).
+fn measuring_until(
+    dir: &Path,
+    seconds: f64,
+    output: fn() -> std::process::Stdio,
+) -> std::process::Child {
+    let child = Command::new(assert_cmd::cargo::cargo_bin("gliss"))
+        .current_dir(dir)
+        .args([
+            "measure",
+            "--out",
+            "cut",
+            "--length",
+            "8",
+            "--tail",
+            "1",
+            "--no-plots",
+        ])
+        .stdout(output())
+        .stderr(output())
+        .spawn()
+        .unwrap();
+    let raw = dir.join("cut/recording.wav");
+    let enough = 44 + (seconds * 48_000.0) as u64 * 4;
+    let waited = std::time::Instant::now();
+    while std::fs::metadata(&raw).map_or(0, |m| m.len()) < enough {
+        assert!(
+            waited.elapsed() < Duration::from_secs(30),
+            "no recording reached the disk"
+        );
+        std::thread::sleep(Duration::from_millis(7));
+    }
+    child
 }
 
 /// A RIFF/WAVE file's data chunk: (declared size, offset of its data, bytes
