@@ -21,8 +21,8 @@ pub(super) fn chart_builder<'a, 'b>(
     b.margin_left(10)
         .margin_right(30)
         .margin_top(10)
-        .x_label_area_size(x_label_area)
-        .y_label_area_size(75);
+        .x_label_area_size(x_label_area + 14)
+        .y_label_area_size(95);
     b
 }
 
@@ -36,8 +36,8 @@ where
     Y: Ranged<ValueType = YT> + ValueFormatter<YT>,
 {
     let mut m = chart.configure_mesh();
-    m.label_style((FONT, 16))
-        .axis_desc_style((FONT, 18))
+    m.label_style((FONT, super::SMALLEST_TEXT_PX))
+        .axis_desc_style((FONT, super::SMALLEST_TEXT_PX + 2))
         .bold_line_style(GRID)
         .light_line_style(GRID_MINOR);
     m
@@ -53,7 +53,7 @@ pub(super) fn legend<'a, DB: DrawingBackend + 'a, CT: CoordTranslate>(
         .position(position)
         .background_style(WHITE.mix(0.85))
         .border_style(GRID)
-        .label_font((FONT, 15))
+        .label_font((FONT, super::SMALLEST_TEXT_PX))
         .draw()
 }
 
