@@ -64,7 +64,7 @@ pub fn run(a: Args) -> Result<()> {
     let written = humantime::format_rfc3339_seconds(std::time::SystemTime::now()).to_string();
     let html = report::render(&folders, &written);
     gliss::folder::write::write_replacing(&a.out, html.as_bytes(), a.overwrite)?;
-    let plots: usize = folders.iter().map(|f| f.plots.len()).sum();
+    let plots = html.matches("<img ").count();
     println!(
         "wrote {}: {} folder{}, {plots} plot{} embedded ({} kB); open it in a browser or print it",
         a.out.display(),

@@ -58,13 +58,24 @@ fn fraction_heading(f: Fraction) -> &'static str {
 /// The verdict tables of one band width: one per parameter, side by side
 /// in print (two to a row).
 pub fn tables(out: &mut String, c: &Comparison, fraction: Fraction, table: &mut usize) {
+    tables_of(out, c, fraction, &Parameter::ALL, table);
+}
+
+/// The verdict tables of `parameters` in one band width.
+pub fn tables_of(
+    out: &mut String,
+    c: &Comparison,
+    fraction: Fraction,
+    parameters: &[Parameter],
+    table: &mut usize,
+) {
     let rows_of = |p: Parameter| -> Vec<&BandRow> {
         c.bands
             .iter()
             .filter(|b| b.fraction == fraction && b.parameter == p)
             .collect()
     };
-    if Parameter::ALL.iter().all(|&p| rows_of(p).is_empty()) {
+    if parameters.iter().all(|&p| rows_of(p).is_empty()) {
         return;
     }
     let _ = write!(
@@ -72,7 +83,7 @@ pub fn tables(out: &mut String, c: &Comparison, fraction: Fraction, table: &mut 
         "<h4>{}</h4><div class=\"grid2\">",
         fraction_heading(fraction)
     );
-    for p in Parameter::ALL {
+    for &p in parameters {
         let rows = rows_of(p);
         if !rows.is_empty() {
             parameter_table(out, c, p, fraction, &rows, table);
@@ -157,7 +168,7 @@ fn parameter_table(
                 let rel = at(&b.changes.relative_change, i);
                 let shown = match (ch, rel) {
                     (Some(d), Some(r)) if p.is_decay_time() => format!(
-                        "{} <span class=\"muted\">({} %)</span>",
+                        "<span title=\"{} s\">{} %</span>",
                         signed(d * scale, dec),
                         signed(r * 100.0, 0)
                     ),

@@ -90,6 +90,16 @@ fn is_position(folders: &[Folder], k: usize) -> bool {
     })
 }
 
+/// Whether the folder `name` is an input of a comparison in the report.
+fn is_compared(folders: &[Folder], name: &str) -> bool {
+    folders.iter().any(|f| match &f.content {
+        Content::Comparison { comparison, .. } => {
+            comparison.inputs.iter().any(|i| i.folder == name)
+        }
+        Content::Measurement { .. } => false,
+    })
+}
+
 /// The report of `folders`, in the order given. `written_utc` is the time
 /// to print as the report's date.
 ///
@@ -213,7 +223,16 @@ pub fn render(folders: &[Folder], written_utc: &str) -> String {
         );
         match &f.content {
             Content::Measurement { manifest, results } => {
-                measurement(&mut out, f, manifest, results, i == 0, &mut counters)
+                let compared = results.average.is_some() && is_compared(folders, &f.name);
+                measurement(
+                    &mut out,
+                    f,
+                    manifest,
+                    results,
+                    i == 0,
+                    compared,
+                    &mut counters,
+                )
             }
             Content::Comparison {
                 manifest,
@@ -557,6 +576,7 @@ fn measurement(
     m: &Manifest,
     r: &Results,
     lead: bool,
+    compared: bool,
     n: &mut Counters,
 ) {
     let _ = write!(out, "<p class=\"lede\">{}</p>", esc(&m.source.description));
@@ -567,7 +587,9 @@ fn measurement(
 
     // plots
     let shown: Vec<&Plot> = if lead { lead_plots(f, r) } else { Vec::new() };
-    if f.plots.is_empty() {
+    if compared && !f.plots.is_empty() {
+        out.push_str("<p class=\"muted\">Its response and reverberation time are drawn with the other condition's in the comparison's figures above; its own plots are in the folder's plots/.</p>");
+    } else if f.plots.is_empty() {
         out.push_str(
             "<h3>Plots</h3><p class=\"muted\">This folder has no plots (it was analysed with --no-plots, or by a gliss built without plots).</p>",
         );
@@ -999,9 +1021,8 @@ fn comparison_appendix(
     c: &Comparison,
     n: &mut Counters,
 ) {
-    comparison::tables(out, c, Fraction::Third, &mut n.table);
-    comparison::absorption(out, c, Fraction::Third, &mut n.table);
-    comparison::tables(out, c, Fraction::Broadband, &mut n.table);
+    comparison::tables_of(out, c, Fraction::Third, &[Parameter::T30], &mut n.table);
+    out.push_str("<p class=\"muted\">The other quantities per one-third-octave band, the values over the whole sweep band and the absorption per one-third-octave band are in the folder's comparison.csv and comparison.json.</p>");
     out.push_str("<table class=\"files\"><caption>The compared measurements</caption><thead><tr><th scope=\"col\">#</th><th scope=\"col\">Label</th><th scope=\"col\">Folder</th><th scope=\"col\">SHA-256 (as recorded)</th></tr></thead><tbody>");
     for (i, input) in c.inputs.iter().enumerate() {
         let _ = write!(
@@ -1119,13 +1140,16 @@ figure.svg svg { display: block; width: 100%; height: auto; }
 .grid2 { display: grid; grid-template-columns: repeat(auto-fit, minmax(20rem, 1fr)); gap: 0 1.2rem; align-items: start; }
 .grid2 table { margin: 0.3rem 0 0.8rem; }
 section.appendix table { font-size: 0.8rem; }
+td.file { overflow-wrap: anywhere; }
+.grid2 thead th { white-space: normal; }
+.grid2 td.verdict { font-size: 0.95em; line-height: 1.2; }
+.hash { word-break: break-all; }
 footer { margin-top: 3rem; padding-top: 0.6rem; border-top: 1px solid var(--rule); font-size: 0.8rem; color: var(--muted); }
 @media print {
   @page { size: A4; margin: 14mm 14mm 14mm; }
   html { font-size: 9.5pt; }
   body { max-width: none; padding: 0; }
   nav.contents, section.appendix { break-before: page; }
-  section.measurement + section.measurement { break-before: page; }
   h2 { margin-top: 0.4rem; }
   h3 { margin: 1rem 0 0.4rem; }
   h2, h3, h4 { break-after: avoid; }
@@ -1133,8 +1157,10 @@ footer { margin-top: 3rem; padding-top: 0.6rem; border-top: 1px solid var(--rule
   figure img { width: 144mm; max-width: none; height: auto; margin: 0 auto; }
   figure { margin: 0.4rem 0 0.6rem; }
   figure.svg svg { width: 170mm; margin: 0 auto; }
-  .grid2 { grid-template-columns: 1fr 1fr; gap: 0 5mm; }
-  .grid2 table, section.appendix table { font-size: 8pt; }
+  .grid2 { grid-template-columns: minmax(0, 1fr) minmax(0, 1fr); gap: 0 5mm; }
+  .grid2 table { font-size: 8pt; }
+  section.appendix table { font-size: 7.5pt; }
+  section.appendix th, section.appendix td { padding: 0.06rem 0.3rem; }
   th, td { padding: 0.12rem 0.35rem; }
   dl.keys { grid-template-columns: repeat(4, 1fr); gap: 0.4rem; }
   .key { padding: 0.3rem 0.5rem; }
