@@ -261,7 +261,9 @@ pub fn render(folders: &[Folder], written_utc: &str) -> String {
                     .iter()
                     .filter(|b| b.fraction == Fraction::Third)
                     .collect();
-                if !thirds.is_empty() {
+                if results.average.is_some() && is_compared(folders, &f.name) {
+                    out.push_str("<p class=\"muted\">Its values per one-third-octave band are in the comparison's appendix (T30) and in the folder's bands.csv (all).</p>");
+                } else if !thirds.is_empty() {
                     band_table(&mut out, &thirds, Fraction::Third, &mut counters);
                 }
                 about(&mut out, f, manifest);
@@ -303,7 +305,7 @@ fn lead_plots<'a>(f: &'a Folder, r: &Results) -> Vec<&'a Plot> {
 /// and its raw files with their SHA-256, no plots (they are in each
 /// position's plots folder).
 fn positions_appendix(out: &mut String, folders: &[Folder], positions: &[bool], n: &mut Counters) {
-    out.push_str("<div class=\"part\" id=\"positions\"><h3>The positions</h3><p class=\"muted\">Each microphone position averaged above, octave bands; their plots and one-third-octave values are in each folder (plots/, bands.csv).</p>");
+    out.push_str("<div class=\"part\" id=\"positions\"><h3>The positions</h3><p class=\"muted\">Each microphone position averaged above, octave bands; their plots and one-third-octave values are in each folder (plots/, bands.csv).</p><div class=\"grid2 positions\">");
     for (i, f) in folders.iter().enumerate() {
         if !positions[i] {
             continue;
@@ -328,7 +330,7 @@ fn positions_appendix(out: &mut String, folders: &[Folder], positions: &[bool], 
         }
         out.push_str("</div>");
     }
-    out.push_str("<table class=\"files\"><caption>The positions' raw files and their SHA-256</caption><thead><tr><th scope=\"col\">Position</th><th scope=\"col\">File</th><th scope=\"col\">SHA-256 (manifest)</th><th scope=\"col\">Check</th></tr></thead><tbody>");
+    out.push_str("</div><table class=\"files\"><caption>The positions' raw files and their SHA-256</caption><thead><tr><th scope=\"col\">Position</th><th scope=\"col\">File</th><th scope=\"col\">SHA-256 (manifest)</th><th scope=\"col\">Check</th></tr></thead><tbody>");
     for (i, f) in folders.iter().enumerate() {
         if !positions[i] {
             continue;
@@ -1149,7 +1151,8 @@ footer { margin-top: 3rem; padding-top: 0.6rem; border-top: 1px solid var(--rule
   @page { size: A4; margin: 14mm 14mm 14mm; }
   html { font-size: 9.5pt; }
   body { max-width: none; padding: 0; }
-  nav.contents, section.appendix { break-before: page; }
+  nav.contents { display: none; }
+  nav.contents + section.measurement, section.appendix { break-before: page; }
   h2 { margin-top: 0.4rem; }
   h3 { margin: 1rem 0 0.4rem; }
   h2, h3, h4 { break-after: avoid; }
@@ -1161,6 +1164,8 @@ footer { margin-top: 3rem; padding-top: 0.6rem; border-top: 1px solid var(--rule
   .grid2 table { font-size: 8pt; }
   section.appendix table { font-size: 7.5pt; }
   section.appendix th, section.appendix td { padding: 0.06rem 0.3rem; }
+  .positions thead th { white-space: normal; }
+  .positions h4 { font-size: 0.85rem; }
   th, td { padding: 0.12rem 0.35rem; }
   dl.keys { grid-template-columns: repeat(4, 1fr); gap: 0.4rem; }
   .key { padding: 0.3rem 0.5rem; }
