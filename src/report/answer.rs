@@ -325,7 +325,7 @@ pub fn reverberation_svg(c: &Comparison) -> Option<String> {
     let mut s = String::new();
     let _ = write!(
         s,
-        "<svg class=\"rt\" xmlns=\"http://www.w3.org/2000/svg\" viewBox=\"0 0 {w} {h}\" role=\"img\" aria-label=\"Reverberation time T30 per octave band\" font-family=\"DejaVu Sans, sans-serif\" font-size=\"13\">"
+        "<svg class=\"rt\" viewBox=\"0 0 {w} {h}\" role=\"img\" aria-label=\"Reverberation time T30 per octave band\" font-family=\"DejaVu Sans, sans-serif\" font-size=\"13\">"
     );
     // grid and y axis
     let mut v = 0.0;
