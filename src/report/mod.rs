@@ -124,7 +124,7 @@ pub fn render(folders: &[Folder], written_utc: &str) -> String {
     );
     let _ = write!(
         out,
-        "<header class=\"report\"><p class=\"kicker\">gliss measurement report · written {} by gliss {}</p><h1>{}</h1></header>\n",
+        "<header class=\"report\"><p class=\"kicker\">gliss measurement report · written {} by gliss {}</p><h1>{}</h1></header>",
         esc(written_utc),
         env!("CARGO_PKG_VERSION"),
         esc(&title),
@@ -202,7 +202,7 @@ pub fn render(folders: &[Folder], written_utc: &str) -> String {
     let npos = positions.iter().filter(|p| **p).count();
     let _ = write!(
         out,
-        "<li><a href=\"#appendix\">Appendix</a> <span class=\"muted\">one-third-octave tables{}, method and provenance</span></li></ol></nav>\n",
+        "<li><a href=\"#appendix\">Appendix</a> <span class=\"muted\">one-third-octave tables{}, method and provenance</span></li></ol></nav>",
         if npos > 0 {
             format!(", the {npos} positions' tables")
         } else {

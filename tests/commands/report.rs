@@ -872,3 +872,20 @@ fn the_demo_report_prints_to_at_most_ten_pages_with_the_answer_on_page_one() {
     }
     assert!(images >= 3, "{images} plots printed");
 }
+
+#[test]
+fn report_refuses_an_out_that_is_not_html_and_says_how_to_get_a_pdf() {
+    let t = tempfile::tempdir().unwrap();
+    let dir = t.path();
+    ok(dir, &["demo", "--single", "--out", "room", "--no-plots"]);
+    let o = run(dir, &["report", "room", "--out", "r.pdf"]);
+    assert_eq!(o.status.code(), Some(2), "a usage error");
+    let e = refused(dir, &["report", "room", "--out", "r.pdf"]);
+    assert!(
+        e.contains("not an .html file name") && e.contains("--print-to-pdf"),
+        "{e}"
+    );
+    assert!(!dir.join("r.pdf").exists());
+    let help = ok(dir, &["report", "--help"]);
+    assert!(help.contains("--out must end in .html"), "{help}");
+}
