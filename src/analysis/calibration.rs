@@ -89,6 +89,46 @@ pub fn calibrate(x: &[f64], fs: f64, level_db_spl: f64) -> Result<Calibration> {
     })
 }
 
+/// [`calibrate`] on channel `channel` (counted from 0) of a recording;
+/// when that channel holds no usable tone but another one does (the
+/// microphone on another input), the refusal names it and says to give
+/// `--channel` (counted from 1).
+pub fn calibrate_channel(
+    channels: &[Vec<f64>],
+    channel: usize,
+    fs: f64,
+    level_db_spl: f64,
+) -> Result<Calibration> {
+    let one = |x: &[f64]| {
+        crate::analysis::check_signal(x, "the calibrator recording")
+            .and_then(|_| calibrate(x, fs, level_db_spl))
+    };
+    let err = match one(&channels[channel]) {
+        Ok(c) => return Ok(c),
+        Err(e) => e,
+    };
+    if err.kind() != crate::error::ErrorKind::InvalidInput {
+        return Err(err);
+    }
+    let other = channels
+        .iter()
+        .enumerate()
+        .filter(|(k, _)| *k != channel)
+        .find_map(|(k, x)| one(x).ok().map(|c| (k, c)));
+    match other {
+        Some((k, c)) => Err(Error::input(format!(
+            "channel {} holds no usable calibrator tone ({}), but channel {} holds a clear {:.0} Hz tone at {:.1} dBFS: give --channel {}",
+            channel + 1,
+            err.message(),
+            k + 1,
+            c.tone_hz,
+            20.0 * (c.tone_rms_fs * std::f64::consts::SQRT_2).log10(),
+            k + 1
+        ))),
+        None => Err(err),
+    }
+}
+
 /// The most harmonic distortion a calibrator's tone may carry, %:
 /// calibrators are specified at 1 to 2 % or less (common practice), so
 /// more means the input overloads or the calibrator is faulty.
@@ -375,5 +415,25 @@ mod tests {
         assert!(e.contains("unsteady"), "{e}");
         // a pistonphone's 250 Hz passes
         assert!(calibrate(&tone(250.0, 0.1, 2.0, |x, _| x), fs, 114.0).is_ok());
+    }
+
+    #[test]
+    fn a_tone_on_another_channel_is_named() {
+        let fs = 48_000.0;
+        let tone: Vec<f64> = (0..96_000)
+            .map(|i| 0.1 * (std::f64::consts::TAU * 1000.0 * i as f64 / fs).sin())
+            .collect();
+        // channel 1 a faint hiss, channel 2 the calibrator
+        let hiss: Vec<f64> = (0..96_000)
+            .map(|i| 1e-4 * ((i as f64 * 12.9898).sin() * 43_758.545).fract())
+            .collect();
+        let e = calibrate_channel(&[hiss.clone(), tone.clone()], 0, fs, 94.0).unwrap_err();
+        assert!(e.message().contains("give --channel 2"), "{e}");
+        // a 0.1-peak sine is -20 dBFS re a full-scale sine (closed form)
+        assert!(e.message().contains("-20.0 dBFS"), "{e}");
+        assert!(calibrate_channel(&[hiss.clone(), tone], 1, fs, 94.0).is_ok());
+        // nowhere a tone: the channel's own refusal
+        let e = calibrate_channel(&[hiss.clone(), hiss], 0, fs, 94.0).unwrap_err();
+        assert!(!e.message().contains("--channel"), "{e}");
     }
 }

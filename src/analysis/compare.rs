@@ -305,6 +305,29 @@ pub fn absorption_area_m2(volume_m3: f64, t_s: f64, c: f64) -> f64 {
     55.3 * volume_m3 / (c * t_s)
 }
 
+/// The fewest grid points a level alignment averages over.
+pub const MIN_ALIGN_POINTS: usize = 5;
+
+/// The level that brings `curve` to `reference` over `band` (Hz) on the
+/// log grid `frequency_hz`: the mean of their dB difference there, each
+/// grid point (an equal share of an octave) weighing the same (common
+/// practice). `None` with fewer than [`MIN_ALIGN_POINTS`] points where
+/// both have a value.
+pub fn level_offset(
+    reference: &[Option<f64>],
+    curve: &[Option<f64>],
+    frequency_hz: &[f64],
+    band: (f64, f64),
+) -> Option<f64> {
+    let diffs: Vec<f64> = frequency_hz
+        .iter()
+        .zip(reference.iter().zip(curve))
+        .filter(|(f, _)| (band.0..=band.1).contains(*f))
+        .filter_map(|(_, (r, c))| Some(r.as_ref()? - c.as_ref()?))
+        .collect();
+    (diffs.len() >= MIN_ALIGN_POINTS).then(|| diffs.iter().sum::<f64>() / diffs.len() as f64)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -442,5 +465,28 @@ mod tests {
         assert!((t - 0.721).abs() < 1e-3);
         assert!((absorption_area_m2(240.0, t, 343.0) - 53.6).abs() < 1e-9);
         assert!((speed_of_sound(20.0) - 343.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn a_level_offset_is_the_mean_difference_over_the_band() {
+        // closed form: a curve 3 dB above the reference over the band, and
+        // anything outside it, needs -3 dB; a tilt averages to its middle
+        let f: Vec<f64> = (0..49)
+            .map(|k| 100.0 * 2f64.powf(k as f64 / 12.0))
+            .collect();
+        let reference: Vec<Option<f64>> = f.iter().map(|_| Some(0.0)).collect();
+        let louder: Vec<Option<f64>> = f
+            .iter()
+            .map(|&x| Some(if x < 1000.0 { 3.0 } else { 20.0 }))
+            .collect();
+        let o = level_offset(&reference, &louder, &f, (200.0, 800.0)).unwrap();
+        assert!((o + 3.0).abs() < 1e-12, "{o}");
+        let tilt: Vec<Option<f64>> = f.iter().map(|&x| Some((x / 400.0).log2())).collect();
+        let o = level_offset(&reference, &tilt, &f, (200.0, 800.0)).unwrap();
+        assert!(o.abs() < 1e-9, "{o}");
+        // too few points in common: no offset
+        let holes: Vec<Option<f64>> = f.iter().map(|_| None).collect();
+        assert!(level_offset(&reference, &holes, &f, (200.0, 800.0)).is_none());
+        assert!(level_offset(&reference, &louder, &f, (20_000.0, 30_000.0)).is_none());
     }
 }

@@ -88,7 +88,7 @@ const WITHIN_DB: f64 = 25.0;
 
 /// The direct sound's decay is judged over the local maxima of this last
 /// stretch of the envelope (and the last one before it), s.
-const DECAY_MEMORY_S: f64 = 1e-3;
+pub const DECAY_MEMORY_S: f64 = 1e-3;
 
 /// A local maximum this far above the direct sound's decay (the highest
 /// local maximum over [`DECAY_MEMORY_S`] before it) is a new arrival, dB.
@@ -101,11 +101,11 @@ pub const UNSURE_DB: f64 = 2.0;
 /// A local maximum as concentrated as the direct sound (see
 /// [`concentration`]) this far above the lowest point since the last
 /// local maximum is a new arrival too, dB.
-const COPY_DIP_DB: f64 = 6.0;
+pub const COPY_DIP_DB: f64 = 6.0;
 
 /// A local maximum whose [`concentration`] is at least this fraction of
 /// the direct sound's is shaped like the direct sound.
-const COPY_CONCENTRATION: f64 = 0.85;
+pub const COPY_CONCENTRATION: f64 = 0.85;
 
 /// The outer half-width of [`concentration`], s.
 const CONCENTRATION_SPAN_S: f64 = 0.15e-3;
@@ -246,7 +246,7 @@ fn spans(env: &[f64], peak: usize, fs: f64) -> (usize, usize) {
 
 /// How concentrated the envelope is at `i`: its energy within ±inner
 /// samples over that within ±outer (`spans`), cut to the envelope.
-fn concentration(env: &[f64], i: usize, (inner, outer): (usize, usize)) -> f64 {
+pub fn concentration(env: &[f64], i: usize, (inner, outer): (usize, usize)) -> f64 {
     let sum = |r: usize| -> f64 {
         env[i.saturating_sub(r)..=(i + r).min(env.len() - 1)]
             .iter()

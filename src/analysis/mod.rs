@@ -596,13 +596,20 @@ pub(crate) fn band_warnings(r: &room::Room, warnings: &mut Warnings) {
             r.bands.len()
         ));
     }
-    if r.bands.iter().any(|b| {
-        b.curvature_percent
-            .is_some_and(|c| c.abs() > room::MAX_CURVATURE_PERCENT)
-    }) {
+    // the bands' own judgement (room::curvature_limit_percent), not the
+    // curvature again against a fixed limit
+    let curved: Vec<String> = room::group_band_warnings(&r.bands)
+        .iter()
+        .filter(|g| g.code == Code::BandCurvature)
+        .map(room::BandGroup::line)
+        .collect();
+    if !curved.is_empty() {
         warnings.add(
             Code::CurvedDecays,
-            "some bands decay along more than one slope (curvature above 10 %); see bands[].warnings",
+            format!(
+                "some bands decay along more than one slope, beyond what the scatter of T20 and T30 allows ({}); see bands[].warnings",
+                curved.join("; ")
+            ),
         );
     }
 }

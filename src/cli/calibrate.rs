@@ -164,9 +164,12 @@ pub fn run(a: Args) -> Result<()> {
             data.channels.len()
         )));
     }
-    let x = &data.channels[a.channel - 1];
-    gliss::analysis::check_signal(x, "the calibrator recording")?;
-    let c = calibration::calibrate(x, f64::from(data.sample_rate_hz), a.level)?;
+    let c = calibration::calibrate_channel(
+        &data.channels,
+        a.channel - 1,
+        f64::from(data.sample_rate_hz),
+        a.level,
+    )?;
     let json = gliss::session::to_json(&c)?;
     if a.overwrite {
         gliss::folder::write::write_replacing(&a.out, &json, true)?;

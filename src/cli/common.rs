@@ -348,20 +348,7 @@ impl TargetArgs {
         let range = self
             .target_range
             .as_deref()
-            .map(|r| {
-                let parts: Vec<&str> = r.split(',').map(str::trim).collect();
-                let nums: Option<Vec<f64>> = (parts.len() == 2)
-                    .then(|| parts.iter().map(|p| p.parse::<f64>().ok()).collect())
-                    .flatten();
-                match nums.as_deref() {
-                    Some(&[lo, hi]) if lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo => {
-                        Ok((lo, hi))
-                    }
-                    _ => Err(Error::parameter(format!(
-                        "--target-range {r:?} is not LO,HI in Hz with 0 < LO < HI; give e.g. --target-range 50,10000"
-                    ))),
-                }
-            })
+            .map(|r| parse_band("--target-range", r, "50,10000"))
             .transpose()?;
         let (bytes, file) = read_input(path)?;
         let text = String::from_utf8_lossy(&bytes);
@@ -426,5 +413,20 @@ pub fn print_octave_verdicts(cmp: &gliss::folder::schema::Comparison, k: usize) 
             100.0 * r.changes.relative_change[k].unwrap_or(0.0),
             area.map_or(String::new(), |x| format!(", {x:+.1} m² absorption")),
         );
+    }
+}
+
+/// Parses a band `LO,HI` in Hz (0 < LO < HI) given to `option`; the
+/// refusal shows `example`.
+pub fn parse_band(option: &str, r: &str, example: &str) -> Result<(f64, f64)> {
+    let parts: Vec<&str> = r.split(',').map(str::trim).collect();
+    let nums: Option<Vec<f64>> = (parts.len() == 2)
+        .then(|| parts.iter().map(|p| p.parse::<f64>().ok()).collect())
+        .flatten();
+    match nums.as_deref() {
+        Some(&[lo, hi]) if lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo => Ok((lo, hi)),
+        _ => Err(Error::parameter(format!(
+            "{option} {r:?} is not LO,HI in Hz with 0 < LO < HI; give e.g. {option} {example}"
+        ))),
     }
 }

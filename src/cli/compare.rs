@@ -49,6 +49,14 @@ pub struct Args {
         allow_hyphen_values = true
     )]
     pub temperature: f64,
+    /// Level-align every response to the reference over the band LO,HI in
+    /// Hz (the mean of their dB difference over it) before the differences
+    /// are taken, e.g. 200,2000: a change of level (a source or gain set
+    /// differently) then does not hide a change of shape. The offsets are
+    /// kept in comparison.json and printed; the band parameters (decay
+    /// times, C80, D50) do not depend on the level and are not touched.
+    #[arg(long, value_name = "LO,HI")]
+    pub align: Option<String>,
     /// Skip the PNG plots.
     #[arg(long)]
     pub no_plots: bool,
@@ -68,6 +76,11 @@ pub fn run(a: Args) -> Result<()> {
         inputs: a.inputs.clone(),
         labels: a.labels.clone(),
         smoothing,
+        align: a
+            .align
+            .as_deref()
+            .map(|r| common::parse_band("--align", r, "200,2000"))
+            .transpose()?,
         volume_m3: a.volume,
         temperature_c: a.temperature,
         plots: !a.no_plots,
@@ -77,6 +90,23 @@ pub fn run(a: Args) -> Result<()> {
     println!("wrote the comparison {}:", common::show(&a.out));
     for f in &written.files {
         println!("  {f}");
+    }
+    if let Some(al) = &cmp.response.alignment {
+        let offsets: Vec<String> = cmp
+            .inputs
+            .iter()
+            .map(|i| &i.label)
+            .zip(&al.offset_db)
+            .skip(1)
+            .map(|(l, o)| format!("{l} {o:+.2} dB"))
+            .collect();
+        println!(
+            "levels aligned to {} over {}–{}: {}",
+            cmp.inputs[0].label,
+            gliss::model::units::hz(al.band_hz[0]),
+            gliss::model::units::hz(al.band_hz[1]),
+            offsets.join(", ")
+        );
     }
     // the octave-band verdict on the decay time, in a few lines
     for k in 1..cmp.inputs.len() {

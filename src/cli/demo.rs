@@ -5,10 +5,12 @@ use std::path::PathBuf;
 use clap::Args as ClapArgs;
 
 use crate::cli::common::{self, OutputArgs, SweepArgs};
+use gliss::analysis::room;
 use gliss::audio::virtual_system::VirtualSystem;
 use gliss::audio::{NoSink, PlayRecord, Playback};
 use gliss::error::{Error, Result};
 use gliss::folder::schema::Source;
+use gliss::model::Severity;
 use gliss::session::compare::{self, AverageJob, CompareJob};
 use gliss::session::{self, Job, Outcome};
 use gliss::signal::wav::{SampleEncoding, decode_wav, encode_wav};
@@ -77,11 +79,31 @@ pub fn print_summary(out: &str, o: &Outcome) {
     if let Some(t) = &o.target {
         println!("{}", session::target_summary(t));
     }
-    if a.warnings.is_empty() {
+    // the bands' warnings once per code (analysis::room::group_band_warnings,
+    // as the report shows them), in place of the whole result's summaries
+    // of them; results.json keeps every one in its band
+    let groups = a
+        .room
+        .as_ref()
+        .map(|r| room::group_band_warnings(&r.bands))
+        .unwrap_or_default();
+    let general: Vec<_> = a
+        .warnings
+        .iter()
+        .filter(|w| groups.is_empty() || !room::summarises_bands(w.code))
+        .collect();
+    if general.is_empty() && groups.is_empty() {
         println!("no warnings");
     }
-    for w in &a.warnings {
+    for w in general {
         println!("warning: {w}");
+    }
+    for g in &groups {
+        let word = match g.code.severity() {
+            Severity::Note => "note",
+            Severity::Caution | Severity::Problem => "warning",
+        };
+        println!("{word}: {}", g.line());
     }
 }
 
@@ -243,6 +265,7 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
         written.push(condition.to_string());
     }
     let (cmp, _) = compare::compare(&CompareJob {
+        align: None,
         out: a.out.join("comparison"),
         overwrite: a.output.overwrite,
         inputs: vec![a.out.join("before"), a.out.join("after")],

@@ -443,6 +443,19 @@ pub struct CompareResponse {
     pub magnitude_db: Vec<Vec<Option<f64>>>,
     /// Per input, its magnitude minus the first's, dB (the first: zeros).
     pub difference_db: Vec<Vec<Option<f64>>>,
+    /// The level alignment applied before the differences (`--align`),
+    /// if any: `magnitude_db` and `difference_db` hold the aligned curves.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub alignment: Option<Alignment>,
+}
+
+/// A level alignment of a comparison's responses to the first.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Alignment {
+    /// The band the levels were matched over, Hz.
+    pub band_hz: [f64; 2],
+    /// Per input, the dB added to its curve (the first: 0).
+    pub offset_db: Vec<f64>,
 }
 
 /// How the responses of a comparison got their smoothing.

@@ -18,7 +18,7 @@ pub enum PlotKind {
     Response,
     /// A measurement's impulse response above its energy-time curve.
     Impulse,
-    /// A measurement's unwrapped phase against the minimum phase.
+    /// A measurement's phase (wrapped unless asked) against the minimum phase.
     Phase,
     /// A measurement's group delay and excess group delay.
     GroupDelay,
@@ -185,7 +185,7 @@ impl PlotKind {
                 f.magnitude_reference
             ),
             PlotKind::Phase => format!(
-                "Phase against frequency with the delay of {delay} removed, beside the minimum phase that the magnitude implies.{gate}"
+                "Phase against frequency, wrapped into ±180°, with the delay of {delay} removed, beside the minimum phase that the magnitude implies.{gate}"
             ),
             PlotKind::GroupDelay => format!(
                 "Group delay against frequency, relative to the arrival at {delay}, with the excess group delay beyond minimum phase.{gate}"
@@ -202,7 +202,7 @@ impl PlotKind {
                 "Impulse response against time, peak at {delay} after the recording's start."
             ),
             PlotKind::AverageResponse => format!(
-                "Frequency response: the power average of the positions (blue) over each position's response (faint), with {smoothing}; {}.",
+                "Frequency response: the power average of the positions (blue) over each position's response (each in its own grey, named in the legend), with {smoothing}; {}.",
                 f.magnitude_reference
             ),
             PlotKind::AverageReverberation => "Reverberation time per band: T30 averaged over the positions, octaves with ± one standard deviation over the positions, one-third octaves thin; missing points are bands where the value could not be measured.".to_string(),

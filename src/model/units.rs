@@ -61,6 +61,24 @@ pub fn hz(f: f64) -> String {
     }
 }
 
+/// Frequencies for people, the unit said once per run: "63, 80, 125 Hz",
+/// "500 Hz and 1, 2 kHz" (each as [`hz`] writes it, in the order given).
+pub fn hz_list(f: &[f64]) -> String {
+    let mut runs: Vec<(String, Vec<String>)> = Vec::new();
+    for &v in f {
+        let s = hz(v);
+        let (n, unit) = s.split_once(' ').unwrap_or((s.as_str(), ""));
+        match runs.last_mut() {
+            Some((u, ns)) if u == unit => ns.push(n.to_string()),
+            _ => runs.push((unit.to_string(), vec![n.to_string()])),
+        }
+    }
+    runs.iter()
+        .map(|(u, ns)| format!("{} {u}", ns.join(", ")))
+        .collect::<Vec<_>>()
+        .join(" and ")
+}
+
 /// `v` with at most `decimals` decimals, trailing zeros dropped.
 pub fn trim(v: f64, decimals: usize) -> String {
     let s = num(v, decimals);
@@ -111,6 +129,12 @@ mod tests {
         assert_eq!(hz(1250.0), "1.25 kHz");
         assert_eq!(hz(12_500.0), "12.5 kHz");
         assert_eq!(hz(18_129.38), "18.13 kHz");
+        assert_eq!(hz_list(&[63.0, 80.0, 125.0, 160.0]), "63, 80, 125, 160 Hz");
+        assert_eq!(
+            hz_list(&[31.5, 500.0, 1000.0, 1250.0]),
+            "31.5, 500 Hz and 1, 1.25 kHz"
+        );
+        assert_eq!(hz_list(&[]), "");
     }
 
     #[test]

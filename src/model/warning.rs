@@ -134,7 +134,8 @@ codes! {
     BandRangeNotReached = "band-range-not-reached", Note, NoiseFloor;
     /// A band: a decay too short for the band's filter.
     BandTooShortForFilter = "band-too-short-for-filter", Note, ShortDecay;
-    /// A band: T30 and T20 differ by more than the curvature limit.
+    /// A band: T30 and T20 differ by more than the band's uncertainty
+    /// allows (and by more than 10 %): a decay along more than one slope.
     BandCurvature = "band-curvature", Caution, Curvature;
     /// A band: too little range for the energy parameters.
     BandEnergyRange = "band-energy-range", Note, NoiseFloor;
@@ -166,6 +167,24 @@ impl Code {
     /// The code whose string form is `s`.
     pub fn from_code(s: &str) -> Option<Code> {
         Code::ALL.iter().copied().find(|c| c.code() == s)
+    }
+
+    /// A band warning in a few words, for a line that lists the bands it
+    /// holds in ("curvature in 4 of 31 one-third-octave bands: …"); the
+    /// stable code for a code that is no band warning.
+    pub fn in_few_words(self) -> &'static str {
+        match self {
+            Code::BandTailCut => "the recording ends before the decay",
+            Code::BandNoDecay => "no decay above the noise",
+            Code::BandDecayRange => "too little decay range for EDT, T20 or T30",
+            Code::BandRangeNotReached => "the decay curve ends before a fit range",
+            Code::BandTooShortForFilter => "a decay too short for the band filter",
+            Code::BandCurvature => "curvature",
+            Code::BandEnergyRange => "too little range for C50, C80, D50 and Ts",
+            Code::BandStartInNoise => "the start lost in the noise",
+            Code::PartialPositions => "a value measured at only some positions",
+            c => c.code(),
+        }
     }
 }
 

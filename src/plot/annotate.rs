@@ -61,6 +61,59 @@ pub fn add_text(path: &Path, keyword: &str, text: &str) -> Result<()> {
     fs::write(path, out).map_err(|e| Error::io("write", path, &e))
 }
 
+/// What a chart marks, gathered while it is drawn and written into its PNG
+/// under [`MARKS_KEYWORD`] as one `key: value` line each, so that a test
+/// or a script reads the tick labels, the axis ranges, the legend's box
+/// and how much data it covers without reading pixels. Boxes are in
+/// pixels of the whole image: `x0,y0,x1,y1`.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Marks {
+    lines: Vec<String>,
+}
+
+impl Marks {
+    /// No marks yet.
+    pub fn new() -> Self {
+        Marks::default()
+    }
+
+    /// Adds the line `key: value`.
+    pub fn push(&mut self, key: &str, value: impl std::fmt::Display) {
+        self.lines.push(format!("{key}: {value}"));
+    }
+
+    /// Adds lines already written as `key: value`.
+    pub fn extend_lines(&mut self, text: &str) {
+        self.lines
+            .extend(text.lines().filter(|l| !l.is_empty()).map(str::to_string));
+    }
+
+    /// The marks as the text of the chunk, one line each.
+    pub fn text(&self) -> String {
+        self.lines.join("\n")
+    }
+
+    /// Writes the marks into the PNG at `path`.
+    pub fn write(&self, path: &Path) -> Result<()> {
+        add_text(path, MARKS_KEYWORD, &self.text())
+    }
+}
+
+/// The values of every line `key: value` in the marks of `png` (the text
+/// under [`MARKS_KEYWORD`]), in order.
+pub fn mark_values(png: &[u8], key: &str) -> Vec<String> {
+    let prefix = format!("{key}: ");
+    texts(png)
+        .into_iter()
+        .filter(|(k, _)| k == MARKS_KEYWORD)
+        .flat_map(|(_, t)| {
+            t.lines()
+                .filter_map(|l| l.strip_prefix(&prefix).map(str::to_string))
+                .collect::<Vec<_>>()
+        })
+        .collect()
+}
+
 /// The tEXt chunks of a PNG as (keyword, text), in file order.
 pub fn texts(png: &[u8]) -> Vec<(String, String)> {
     let mut out = Vec::new();

@@ -4,7 +4,8 @@ use std::path::Path;
 
 use plotters::prelude::*;
 
-use super::axes::{db_range, draw_log_panel};
+use super::annotate::Marks;
+use super::axes::{Clip, db_range, draw_log_panel};
 use super::theme::{BLUE, canvas, plot_error};
 use crate::error::Result;
 
@@ -26,22 +27,24 @@ pub fn average_response_png(
         .chain(average.iter().copied())
         .collect();
     let (lo, hi) = db_range(&all, 10.0, 40.0);
-    let faint = RGBColor(160, 175, 190);
+    // each position its own grey (light to dark) and its own legend
+    // entry, so that one can tell which faint line is which
+    let n = positions.len().max(1);
+    let greys: Vec<RGBColor> = (0..positions.len())
+        .map(|k| {
+            let t = if n == 1 {
+                0.5
+            } else {
+                k as f64 / (n - 1) as f64
+            };
+            let v = (185.0 - 95.0 * t).round() as u8;
+            RGBColor(v, v, v.saturating_add(12))
+        })
+        .collect();
     let mut series: Vec<_> = positions
         .iter()
         .enumerate()
-        .map(|(k, (label, v))| {
-            (
-                frequency_hz,
-                v.as_slice(),
-                faint,
-                if k == 0 {
-                    format!("positions ({label} …)")
-                } else {
-                    String::new()
-                },
-            )
-        })
+        .map(|(k, (label, v))| (frequency_hz, v.as_slice(), greys[k], label.clone()))
         .collect();
     series.push((
         frequency_hz,
@@ -49,6 +52,7 @@ pub fn average_response_png(
         BLUE,
         format!("power average of {} positions", positions.len()),
     ));
+    let mut marks = Marks::new();
     draw_log_panel(
         &body,
         (f1, f2),
@@ -58,8 +62,12 @@ pub fn average_response_png(
         None,
         &series,
         None,
+        Clip::Nothing,
+        &mut marks,
+        "response",
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    Ok(())
+    drop(root);
+    marks.write(path)
 }

@@ -4,7 +4,8 @@ use std::path::Path;
 
 use plotters::prelude::*;
 
-use super::axes::draw_log_panel;
+use super::annotate::Marks;
+use super::axes::{Clip, draw_log_panel};
 use super::theme::{canvas, input_colour, plot_error};
 use crate::error::Result;
 
@@ -41,6 +42,7 @@ pub fn compare_difference_png(
             format!("{label} minus {reference}"),
         ));
     }
+    let mut marks = Marks::new();
     draw_log_panel(
         &body,
         (f1, f2),
@@ -50,8 +52,12 @@ pub fn compare_difference_png(
         None,
         &series,
         None,
+        Clip::Nothing,
+        &mut marks,
+        "difference",
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    Ok(())
+    drop(root);
+    marks.write(path)
 }

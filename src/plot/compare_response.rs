@@ -2,7 +2,8 @@
 
 use std::path::Path;
 
-use super::axes::{TargetOverlay, db_range, draw_log_panel};
+use super::annotate::Marks;
+use super::axes::{Clip, TargetOverlay, db_range, draw_log_panel};
 use super::theme::{canvas, input_colour, plot_error};
 use crate::error::Result;
 
@@ -36,6 +37,7 @@ pub fn compare_response_png(
             )
         })
         .collect();
+    let mut marks = Marks::new();
     draw_log_panel(
         &body,
         (f1, f2),
@@ -45,8 +47,12 @@ pub fn compare_response_png(
         None,
         &series,
         target,
+        Clip::Nothing,
+        &mut marks,
+        "response",
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    Ok(())
+    drop(root);
+    marks.write(path)
 }

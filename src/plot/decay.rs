@@ -4,7 +4,8 @@ use std::path::Path;
 
 use plotters::prelude::*;
 
-use super::axes::{chart_builder, legend, styled_mesh};
+use super::annotate::Marks;
+use super::axes::{Drawn, chart_builder, place_legend, styled_mesh};
 use super::theme::{GRID, band_colour, canvas, plot_error};
 use crate::error::Result;
 use crate::model::units::{format_hz, seconds};
@@ -27,7 +28,10 @@ pub fn decay_png(path: &Path, title: &str, room: &crate::analysis::room::Room) -
                 .fold(0.2f64, f64::max),
         );
     let n = room.curves.len();
-    let draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+    let mut marks = Marks::new();
+    let mut draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+        let mut drawn = Drawn::default();
+        let mut labels: Vec<String> = Vec::new();
         let mut chart = chart_builder(&body, 55).build_cartesian_2d(0.0..t_max, -70.0..2.0)?;
         styled_mesh(&mut chart)
             .x_desc("Time after the direct sound (s)")
@@ -58,6 +62,8 @@ pub fn decay_png(path: &Path, title: &str, room: &crate::analysis::room::Room) -
                 ),
                 None => format!("{} Hz: no decay time", format_hz(c.band.nominal_hz)),
             };
+            drawn.line(pts.iter().copied());
+            labels.push(label.clone());
             chart
                 .draw_series(LineSeries::new(pts, colour.stroke_width(2)))?
                 .label(label)
@@ -84,10 +90,12 @@ pub fn decay_png(path: &Path, title: &str, room: &crate::analysis::room::Room) -
                     BLACK.mix(0.7).stroke_width(1),
                 )
             });
-        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        labels.push("dashed: fitted line over the evaluation range".into());
+        place_legend(&mut chart, &labels, &drawn, &mut marks, "main")?;
         Ok(())
     };
     draw().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    Ok(())
+    drop(root);
+    marks.write(path)
 }

@@ -2,7 +2,8 @@
 
 use std::path::Path;
 
-use super::axes::{Series, draw_log_panel};
+use super::annotate::Marks;
+use super::axes::{Clip, Series, draw_log_panel};
 use super::theme::{band_colour, canvas, plot_error};
 use crate::error::Result;
 
@@ -47,6 +48,7 @@ pub fn decay_spectrum_png(
             )
         })
         .collect();
+    let mut marks = Marks::new();
     draw_log_panel(
         &body,
         (f1, f2),
@@ -56,8 +58,12 @@ pub fn decay_spectrum_png(
         None,
         &series,
         None,
+        Clip::End,
+        &mut marks,
+        "decay spectrum",
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    Ok(())
+    drop(root);
+    marks.write(path)
 }

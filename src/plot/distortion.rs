@@ -4,7 +4,11 @@ use std::path::Path;
 
 use plotters::prelude::*;
 
-use super::axes::{chart_builder, legend, log_label, log_ticks, styled_mesh};
+use super::annotate::Marks;
+use super::axes::{
+    Drawn, axis_end, chart_builder, frequency_label, frequency_ticks, place_legend, styled_mesh,
+    tick_labels,
+};
 use super::theme::{BLUE, GRID, canvas, order_colour, plot_error};
 use crate::error::Result;
 
@@ -63,8 +67,13 @@ pub fn distortion_png(
         .fold(f64::MIN, f64::max);
     let top_hi = (top_max / 10.0).ceil() * 10.0 + 5.0;
     let top_lo = top_hi - 110.0;
-    let (bold, light) = log_ticks(f1, f2);
-    let draw_top = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+    let f2 = axis_end(f2);
+    let (bold, light) = frequency_ticks(f1, f2);
+    let label = frequency_label(f2);
+    let mut marks = Marks::new();
+    marks.push("x ticks", tick_labels(&bold, &label));
+    marks.push("x range", format!("{f1}..{f2}"));
+    let mut draw_top = || -> std::result::Result<(), Box<dyn std::error::Error>> {
         let mut chart = chart_builder(&top, 30).build_cartesian_2d(
             (f1..f2)
                 .log_scale()
@@ -74,7 +83,7 @@ pub fn distortion_png(
         )?;
         styled_mesh(&mut chart)
             .x_labels(40)
-            .x_label_formatter(&log_label)
+            .x_label_formatter(&label)
             .y_label_formatter(&|v: &f64| format!("{v:.0}"))
             .y_desc("Level (dB re sweep)")
             .draw()?;
@@ -84,6 +93,9 @@ pub fn distortion_png(
             .map(|(a, b)| (*a, *b))
             .filter(|(a, _)| *a <= f2)
             .collect();
+        let mut drawn = Drawn::default();
+        let mut labels = vec!["fundamental".to_string()];
+        drawn.line(fund_pts.iter().copied());
         chart
             .draw_series(LineSeries::new(fund_pts, BLUE.stroke_width(2)))?
             .label("fundamental")
@@ -91,6 +103,7 @@ pub fn distortion_png(
         for o in &d.orders {
             let colour = order_colour(o.order);
             let floor = absolute(o, true);
+            drawn.line(floor.iter().copied());
             chart.draw_series(DashedLineSeries::new(
                 floor,
                 6,
@@ -120,7 +133,11 @@ pub fn distortion_png(
                 n => format!("{n}th harmonic"),
             };
             let mut first = true;
+            if !runs.is_empty() {
+                labels.push(name.clone());
+            }
             for run in runs {
+                drawn.line(run.iter().copied());
                 let s = chart.draw_series(LineSeries::new(run, colour.stroke_width(2)))?;
                 if first {
                     s.label(name.clone()).legend(move |(x, y)| {
@@ -137,6 +154,10 @@ pub fn distortion_png(
             .map(|o| o.order.to_string())
             .collect();
         if !silent.is_empty() {
+            labels.push(format!(
+                "orders {}: below their noise floor throughout",
+                silent.join(", ")
+            ));
             chart
                 .draw_series(std::iter::once(PathElement::new(
                     vec![(f1, top_lo - 10.0)],
@@ -160,7 +181,8 @@ pub fn distortion_png(
                     RGBColor(150, 150, 150).stroke_width(1),
                 )
             });
-        legend(&mut chart, SeriesLabelPosition::MiddleRight)?;
+        labels.push("dashed: each order's noise floor".into());
+        place_legend(&mut chart, &labels, &drawn, &mut marks, "orders")?;
         Ok(())
     };
     draw_top().map_err(plot_error(path))?;
@@ -188,7 +210,7 @@ pub fn distortion_png(
         .max(1e-4);
     let hi = 10f64.powf(ymax.log10().ceil());
     let lo = 10f64.powf(ymin.log10().floor()).min(hi / 100.0);
-    let draw_bottom = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+    let mut draw_bottom = || -> std::result::Result<(), Box<dyn std::error::Error>> {
         let mut chart = chart_builder(&bottom, 55).build_cartesian_2d(
             (f1..f2)
                 .log_scale()
@@ -198,7 +220,7 @@ pub fn distortion_png(
         )?;
         styled_mesh(&mut chart)
             .x_labels(40)
-            .x_label_formatter(&log_label)
+            .x_label_formatter(&label)
             .y_label_formatter(&|v: &f64| {
                 if *v >= 1.0 {
                     format!("{v:.0} %")
@@ -230,10 +252,18 @@ pub fn distortion_png(
                 d.harmonics, d.smoothing
             ))
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], BLUE.stroke_width(3)));
-        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        let mut drawn = Drawn::default();
+        drawn.line(thd.iter().copied());
+        drawn.line(thd_floor.iter().copied());
+        let labels = [
+            "THD of the noise floors".to_string(),
+            format!("THD, orders 2–{}, {} smoothing", d.harmonics, d.smoothing),
+        ];
+        place_legend(&mut chart, &labels, &drawn, &mut marks, "thd")?;
         Ok(())
     };
     draw_bottom().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    Ok(())
+    drop(root);
+    marks.write(path)
 }

@@ -2,7 +2,8 @@
 
 use std::path::Path;
 
-use super::axes::draw_log_panel;
+use super::annotate::Marks;
+use super::axes::{Clip, draw_log_panel};
 use super::theme::{BLUE, ORANGE, canvas, plot_error};
 use crate::error::Result;
 
@@ -36,6 +37,7 @@ pub fn group_delay_png(
             .unwrap_or(0.0)
     };
     let (lo, hi) = (q(0.02).min(0.0) - 1.0, q(0.98).max(delay_s * 1e3) + 1.0);
+    let mut marks = Marks::new();
     draw_log_panel(
         &body,
         (f1, f2),
@@ -48,18 +50,25 @@ pub fn group_delay_png(
                 frequency_hz,
                 &gd,
                 ORANGE,
-                format!("group delay (after the {:.3} ms delay)", delay_s * 1e3),
+                format!("group delay, 0 ms = the arrival at {:.3} ms", delay_s * 1e3),
             ),
             (
                 frequency_hz,
                 &excess,
                 BLUE,
-                "excess group delay (delay included)".to_string(),
+                format!(
+                    "excess group delay: beyond the minimum phase, arrival at {:.3} ms not removed",
+                    delay_s * 1e3
+                ),
             ),
         ],
         None,
+        Clip::Mark,
+        &mut marks,
+        "group delay",
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    Ok(())
+    drop(root);
+    marks.write(path)
 }

@@ -4,7 +4,8 @@ use std::path::Path;
 
 use plotters::prelude::*;
 
-use super::axes::{chart_builder, legend, styled_mesh};
+use super::annotate::Marks;
+use super::axes::{Drawn, chart_builder, place_legend, styled_mesh};
 use super::theme::{BLUE, FONT, ORANGE, SIZE, plot_error, register_font};
 use crate::analysis::etc;
 use crate::error::Result;
@@ -52,7 +53,8 @@ pub fn impulse_png(
     // top: from 5 ms before the peak to 60 ms after it
     let d_ms = delay_s * 1e3;
     let (a, b) = (d_ms - 5.0, d_ms + 60.0);
-    let draw_top = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+    let mut marks = Marks::new();
+    let mut draw_top = || -> std::result::Result<(), Box<dyn std::error::Error>> {
         let mut chart = chart_builder(&top, 50).build_cartesian_2d(a..b, -1.05..1.05)?;
         styled_mesh(&mut chart)
             .x_desc("Time after the start of the recording (ms)")
@@ -60,46 +62,86 @@ pub fn impulse_png(
             .x_label_formatter(&|v: &f64| format!("{v:.0}"))
             .y_label_formatter(&|v: &f64| format!("{:.1}", (v * 10.0).round() / 10.0 + 0.0))
             .draw()?;
-        let pts = ir
+        let pts: Vec<(f64, f64)> = ir
             .iter()
             .enumerate()
             .map(|(i, v)| (t_ms(i), v / peak))
-            .filter(|(t, _)| *t >= a && *t <= b);
+            .filter(|(t, _)| *t >= a && *t <= b)
+            .collect();
+        let mut drawn = Drawn::default();
+        drawn.line(pts.iter().copied());
+        let label = format!("impulse response, peak at {d_ms:.3} ms");
         chart
             .draw_series(LineSeries::new(pts, BLUE.stroke_width(1)))?
-            .label(format!("impulse response, peak at {d_ms:.3} ms"))
+            .label(label.clone())
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], BLUE.stroke_width(3)));
-        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        place_legend(&mut chart, &[label], &drawn, &mut marks, "impulse")?;
         Ok(())
     };
     draw_top().map_err(plot_error(path))?;
     let etc_db = etc::energy_time_curve_db(ir, -120.0);
-    let reduced = block_max(&etc_db, 2000);
     let floor = {
         let mut sorted: Vec<f64> = etc_db.clone();
         sorted.sort_by(|x, y| x.total_cmp(y));
         let median = sorted.get(sorted.len() / 2).copied().unwrap_or(-100.0);
         ((median - 20.0) / 10.0).floor() * 10.0
     };
-    let (ta, tb) = (t_ms(0), t_ms(ir.len().saturating_sub(1)));
-    let draw_bottom = || -> std::result::Result<(), Box<dyn std::error::Error>> {
-        let mut chart =
-            chart_builder(&bottom, 50).build_cartesian_2d(ta..tb, floor.max(-120.0)..3.0)?;
+    // the axis starts 5 ms before the direct sound: what comes before is
+    // the circular response's wrap-around and the envelope's tails, not
+    // sound in the room
+    let lead_ms = 5.0;
+    let (ta, tb) = (
+        (d_ms - lead_ms).max(t_ms(0)),
+        t_ms(ir.len().saturating_sub(1)),
+    );
+    let i0 = (((ta / 1e3 - start_s) * fs).floor().max(0.0) as usize).min(etc_db.len());
+    let reduced: Vec<(usize, f64)> = block_max(&etc_db[i0..], 2000)
+        .into_iter()
+        .map(|(i, v)| (i + i0, v))
+        .collect();
+    marks.push("etc x range", format!("{ta:.3}..{tb:.3}"));
+    marks.push("direct sound ms", format!("{d_ms:.3}"));
+    let floor_shown = floor.max(-120.0);
+    // the most the curve shows before the direct sound (the last 0.5 ms
+    // before it excepted: the rise of the peak itself)
+    let before = etc_db
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| t_ms(*i) >= ta && t_ms(*i) < d_ms - 0.5)
+        .map(|(_, v)| *v)
+        .fold(f64::NEG_INFINITY, f64::max);
+    marks.push("etc max before direct sound db", format!("{before:.1}"));
+    marks.push("etc floor db", format!("{floor_shown:.1}"));
+    let mut draw_bottom = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+        let mut chart = chart_builder(&bottom, 50).build_cartesian_2d(ta..tb, floor_shown..3.0)?;
         styled_mesh(&mut chart)
             .x_desc("Time after the start of the recording (ms)")
             .y_desc("Energy (dB re peak)")
             .x_label_formatter(&|v: &f64| format!("{v:.0}"))
             .y_label_formatter(&|v: &f64| format!("{v:.0}"))
             .draw()?;
-        let pts = reduced.iter().map(|(i, v)| (t_ms(*i), *v));
+        let pts: Vec<(f64, f64)> = reduced
+            .iter()
+            .map(|(i, v)| (t_ms(*i), *v))
+            .filter(|(t, _)| *t >= ta)
+            .collect();
+        let mut drawn = Drawn::default();
+        drawn.line(pts.iter().copied());
         chart
             .draw_series(LineSeries::new(pts, ORANGE.stroke_width(1)))?
             .label("energy-time curve (squared envelope)")
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], ORANGE.stroke_width(3)));
-        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        place_legend(
+            &mut chart,
+            &["energy-time curve (squared envelope)".to_string()],
+            &drawn,
+            &mut marks,
+            "etc",
+        )?;
         Ok(())
     };
     draw_bottom().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    Ok(())
+    drop(root);
+    marks.write(path)
 }

@@ -41,7 +41,7 @@ mod spectrogram;
 
 pub use average_response::average_response_png;
 pub use average_reverberation::average_reverberation_png;
-pub use axes::{TargetOverlay, draw_target, log_ticks};
+pub use axes::{TargetOverlay, axis_end, draw_target, frequency_ticks, log_ticks, wrap_phase};
 pub use compare_difference::compare_difference_png;
 pub use compare_response::compare_response_png;
 pub use compare_reverberation::{BandPoints, compare_reverberation_png};
@@ -50,7 +50,7 @@ pub use decay_spectrum::decay_spectrum_png;
 pub use distortion::distortion_png;
 pub use group_delay::group_delay_png;
 pub use impulse::impulse_png;
-pub use phase::phase_png;
+pub use phase::{PhaseView, phase_png};
 pub use response::response_png;
 pub use reverberation::reverberation_png;
 pub use spectrogram::spectrogram_png;
@@ -68,6 +68,8 @@ pub struct MeasurementPlotInput<'a> {
     pub analysis: &'a Analysis,
     /// A target to draw over the response, if one was given.
     pub target: Option<&'a TargetOverlay>,
+    /// How the phase plot shows the phase (wrapped unless asked).
+    pub phase_view: PhaseView,
 }
 
 impl MeasurementPlotInput<'_> {
@@ -122,7 +124,7 @@ pub fn draw_measurement(
             a.delay_s,
             a.sample_rate_hz,
         ),
-        PlotKind::Phase => phase_png(path, title, f, &a.phase),
+        PlotKind::Phase => phase_png(path, title, f, &a.phase, input.phase_view),
         PlotKind::GroupDelay => group_delay_png(path, title, f, &a.phase, a.delay_s),
         PlotKind::Distortion => match &a.distortion {
             Some(d) => distortion_png(path, title, &a.response, d),
@@ -265,3 +267,6 @@ fn not_drawn(kind: PlotKind, why: &str) -> Error {
         format!("{} cannot be drawn: {why}", kind.file()),
     )
 }
+
+#[cfg(test)]
+mod tests;

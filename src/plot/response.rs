@@ -2,7 +2,8 @@
 
 use std::path::Path;
 
-use super::axes::{TargetOverlay, db_range, draw_log_panel};
+use super::annotate::Marks;
+use super::axes::{Clip, TargetOverlay, db_range, draw_log_panel, wrap_phase};
 use super::theme::{BLUE, ORANGE, canvas, plot_error};
 use crate::error::Result;
 
@@ -33,6 +34,8 @@ pub fn response_png(
         }
     }
     let (lo, hi) = db_range(&levels, 10.0, 40.0);
+    let mut marks = Marks::new();
+    let (phase_f, phase) = wrap_phase(frequency_hz, phase_deg);
     draw_log_panel(
         &top,
         (f1, f2),
@@ -47,6 +50,9 @@ pub fn response_png(
             format!("magnitude, {smoothing}"),
         )],
         target,
+        Clip::Nothing,
+        &mut marks,
+        "magnitude",
     )
     .map_err(plot_error(path))?;
     draw_log_panel(
@@ -56,10 +62,14 @@ pub fn response_png(
         "Phase (degrees, delay removed)",
         true,
         resolved,
-        &[(frequency_hz, phase_deg, ORANGE, "phase".to_string())],
+        &[(&phase_f, &phase, ORANGE, "phase (wrapped)".to_string())],
         None,
+        Clip::Nothing,
+        &mut marks,
+        "phase",
     )
     .map_err(plot_error(path))?;
     root.present().map_err(err)?;
-    Ok(())
+    drop(root);
+    marks.write(path)
 }

@@ -4,7 +4,8 @@ use std::path::Path;
 
 use plotters::prelude::*;
 
-use super::axes::{band_chart, legend};
+use super::annotate::Marks;
+use super::axes::{Drawn, band_chart, place_legend};
 use super::theme::{BLUE, ORANGE, canvas, order_colour, plot_error};
 use crate::error::Result;
 use crate::model::{Fraction, Parameter};
@@ -36,21 +37,27 @@ pub fn reverberation_png(
         .collect();
     let y_max = (all.iter().cloned().fold(0.1f64, f64::max) * 1.25 * 10.0).ceil() / 10.0;
     let freqs: Vec<f64> = room.bands.iter().map(|b| b.center_hz).collect();
-    let f_lo = freqs
+    let (f_lo, f_hi) = super::axes::band_axis(&freqs);
+    let ticks: Vec<f64> = room
+        .bands
         .iter()
-        .cloned()
-        .fold(f64::INFINITY, f64::min)
-        .min(31.5)
-        / 1.3;
-    let f_hi = freqs.iter().cloned().fold(0.0f64, f64::max).max(1000.0) * 1.3;
-    let draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+        .filter(|b| b.fraction == Fraction::Octave)
+        .map(|b| b.center_hz)
+        .collect();
+    let mut marks = Marks::new();
+    let mut draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
         let mut chart = band_chart(
             &body,
             (f_lo, f_hi),
+            &ticks,
             y_max,
-            "Band centre frequency (Hz)",
-            "Decay time (s)",
+            ("Band centre frequency (Hz)", "Decay time (s)"),
+            &mut marks,
         )?;
+        let mut drawn = Drawn::default();
+        drawn.line(third.iter().copied());
+        drawn.markers(third.iter().copied(), 2);
+        let mut labels = vec!["T30, one-third octaves".to_string()];
         let grey = RGBColor(150, 150, 150);
         chart
             .draw_series(LineSeries::new(third.iter().copied(), grey.stroke_width(1)))?
@@ -74,11 +81,15 @@ pub fn reverberation_png(
                     PathElement::new(vec![(x, y), (x + 24, y)], colour.stroke_width(3))
                 });
             chart.draw_series(series.iter().map(|&p| Circle::new(p, 5, colour.filled())))?;
+            drawn.line(series.iter().copied());
+            drawn.markers(series.iter().copied(), 5);
+            labels.push(name.to_string());
         }
-        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        place_legend(&mut chart, &labels, &drawn, &mut marks, "main")?;
         Ok(())
     };
     draw().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    Ok(())
+    drop(root);
+    marks.write(path)
 }

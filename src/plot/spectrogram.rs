@@ -4,7 +4,11 @@ use std::path::Path;
 
 use plotters::prelude::*;
 
-use super::axes::{chart_builder, legend, log_label, log_ticks, styled_mesh};
+use super::annotate::Marks;
+use super::axes::{
+    axis_end, chart_builder, frequency_label, frequency_ticks, styled_mesh, tick_labels,
+};
+use super::theme::FONT;
 use super::theme::{canvas, level_colour, plot_error};
 use crate::error::Result;
 use crate::model::units::seconds;
@@ -17,6 +21,8 @@ pub fn spectrogram_png(
     s: &crate::analysis::spectrogram::Spectrogram,
 ) -> Result<()> {
     let (root, body) = canvas(path, &format!("Spectrogram of the decay — {title}"))?;
+    // the note on how it was made goes in a strip below, off the data
+    let (body, note_strip) = body.split_vertically(body.dim_in_pixel().1 - 30);
     let (main, bar) = body.split_horizontally(body.dim_in_pixel().0 - 150);
     let f1 = s.frequency_hz.first().copied().unwrap_or(20.0);
     let f2 = s
@@ -25,15 +31,19 @@ pub fn spectrogram_png(
         .copied()
         .unwrap_or(20_000.0)
         .max(f1 * 1.01);
+    let f2 = axis_end(f2);
     let half_row = 2f64.powf(1.0 / 96.0);
     let half_hop = 0.5 * s.hop_s;
     let t0 = s.time_s.first().copied().unwrap_or(0.0) - half_hop;
     let t1 = (s.time_s.last().copied().unwrap_or(0.0) + half_hop).max(t0 + s.hop_s);
     let ms = t1 < 1.0;
     let (scale, unit) = if ms { (1e3, "ms") } else { (1.0, "s") };
-    let (bold, light) = log_ticks(f1, f2);
+    let (bold, light) = frequency_ticks(f1, f2);
+    let label = frequency_label(f2);
+    let mut marks = Marks::new();
+    marks.push("y ticks", tick_labels(&bold, &label));
     let floor = s.floor_db;
-    let draw_main = || -> std::result::Result<(), Box<dyn std::error::Error>> {
+    let mut draw_main = || -> std::result::Result<(), Box<dyn std::error::Error>> {
         let mut chart = chart_builder(&main, 55).build_cartesian_2d(
             t0 * scale..t1 * scale,
             (f1..f2)
@@ -65,7 +75,7 @@ pub fn spectrogram_png(
             .bold_line_style(WHITE.mix(0.25))
             .light_line_style(TRANSPARENT)
             .y_labels(40)
-            .y_label_formatter(&log_label)
+            .y_label_formatter(&label)
             .x_label_formatter(&time_label)
             .x_desc(format!("Time after the direct sound ({unit})"))
             .y_desc("Frequency (Hz)")
@@ -87,11 +97,18 @@ pub fn spectrogram_png(
                 None => "; runs to the end of the response".to_string(),
             }
         );
-        chart
-            .draw_series(std::iter::empty::<Circle<(f64, f64), i32>>())?
-            .label(note)
-            .legend(|(x, y)| PathElement::new(vec![(x, y)], TRANSPARENT));
-        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        let (xr, yr) = chart.plotting_area().get_pixel_range();
+        marks.push(
+            "main plot area",
+            format!("{},{},{},{}", xr.start, yr.start, xr.end, yr.end),
+        );
+        let (nx, ny) = note_strip.get_base_pixel();
+        let h = note_strip.dim_in_pixel().1 as i32;
+        marks.push(
+            "note",
+            format!("{},{},{},{}", nx + xr.start, ny, nx + xr.end, ny + h),
+        );
+        note_strip.draw(&Text::new(note, (xr.start, 6), (FONT, 15).into_font()))?;
         Ok(())
     };
     draw_main().map_err(plot_error(path))?;
@@ -123,5 +140,6 @@ pub fn spectrogram_png(
     };
     draw_bar().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    Ok(())
+    drop(root);
+    marks.write(path)
 }

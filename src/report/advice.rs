@@ -1,7 +1,7 @@
 //! Warnings in plain words: grouped by what they are about, each group
 //! with what to do about it.
 
-use crate::analysis::room::BandResult;
+use crate::analysis::room::{self, BandResult};
 use crate::model::{Code, Topic, Warning};
 
 /// A group of warnings about one thing.
@@ -21,7 +21,7 @@ pub fn topic(t: Topic) -> (&'static str, &'static str) {
     match t {
         Topic::Curvature => (
             "Decays along more than one slope",
-            "The decay is not a single straight line in these bands (coupled spaces, a strong mode, or an uneven spread of absorption). Read T20 and T30 there with care, prefer EDT for what is heard, and measure at more microphone positions.",
+            "The decay is not a single straight line in these bands, by more than the scatter of T20 and T30 in the band allows (coupled spaces, or absorption gathered on a few surfaces). Read T20 and T30 there with care, prefer EDT for what is heard, look at the decay plot, and measure at more microphone positions.",
         ),
         Topic::ShortDecay => (
             "Decays too short for the band filter",
@@ -57,24 +57,38 @@ pub fn topic(t: Topic) -> (&'static str, &'static str) {
 }
 
 /// Groups `general` warnings (results.json `warnings`) and the bands'
-/// warnings by their codes' topics, in the order topics first appear.
+/// warnings by their codes' topics, in the order topics first appear. The
+/// bands' warnings come one line per code and band width
+/// ([`room::group_band_warnings`], as the terminal prints them), in place
+/// of the whole result's summaries of them; each band's own sentences stay
+/// in its row of the band tables.
 pub fn group(general: &[Warning], bands: &[BandResult]) -> Vec<Group> {
-    let mut groups: Vec<Group> = Vec::new();
+    let lines = room::group_band_warnings(bands);
     let all = general
         .iter()
-        .chain(bands.iter().flat_map(|b| b.warnings.iter()));
-    for w in all {
-        let (title, advice) = topic(w.code.topic());
+        .filter(|w| lines.is_empty() || !room::summarises_bands(w.code))
+        .map(|w| (w.code, w.message.clone()))
+        .chain(lines.iter().map(|g| (g.code, g.line())))
+        .chain(
+            bands
+                .iter()
+                .flat_map(|b| b.warnings.iter())
+                .filter(|w| w.code == Code::Unclassified)
+                .map(|w| (w.code, w.message.clone())),
+        );
+    let mut groups: Vec<Group> = Vec::new();
+    for (code, message) in all {
+        let (title, advice) = topic(code.topic());
         match groups.iter_mut().find(|g| g.title == title) {
             Some(g) => {
-                if !g.items.contains(&w.message) {
-                    g.items.push(w.message.clone());
+                if !g.items.contains(&message) {
+                    g.items.push(message);
                 }
             }
             None => groups.push(Group {
                 title,
                 advice,
-                items: vec![w.message.clone()],
+                items: vec![message],
             }),
         }
     }
@@ -162,5 +176,32 @@ mod tests {
         assert_eq!(g[0].title, "Recording level");
         assert_eq!(g[1].title, "Decays along more than one slope");
         assert!(!g[1].advice.is_empty());
+    }
+
+    #[test]
+    fn the_bands_warnings_come_one_line_per_code_in_place_of_their_summary() {
+        let mut bands: Vec<BandResult> = [63.0, 80.0, 100.0, 125.0, 160.0]
+            .iter()
+            .map(|&f| BandResult::empty(f, f, crate::model::Fraction::Third))
+            .collect();
+        for i in [0, 1, 3, 4] {
+            let hz = bands[i].center_hz;
+            bands[i].warnings.add(
+                Code::BandCurvature,
+                format!("{hz} Hz (1/3-octave): curvature 80 %"),
+            );
+        }
+        let summary = Warning::new(
+            Code::CurvedDecays,
+            "some bands decay along more than one slope; see bands[].warnings",
+        );
+        let g = group(std::slice::from_ref(&summary), &bands);
+        assert_eq!(g.len(), 1);
+        assert_eq!(
+            g[0].items,
+            ["curvature in 4 of 5 one-third-octave bands: 63, 80, 125, 160 Hz"]
+        );
+        // without bands (a comparison) a summary is shown as it is
+        assert_eq!(group(&[summary], &[])[0].items.len(), 1);
     }
 }

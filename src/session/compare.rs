@@ -12,7 +12,7 @@ use crate::analysis::room::{BandResult, Spread};
 use crate::analysis::smoothing::smooth_on_log_grid;
 use crate::error::{Error, ErrorKind, Result};
 use crate::folder::schema::{
-    AbsorptionRow, AverageRecord, BandRow, CompareResponse, CompareTarget, Comparison,
+    AbsorptionRow, Alignment, AverageRecord, BandRow, CompareResponse, CompareTarget, Comparison,
     ComparisonManifest, FileEntry, FolderKind, InputRecord, Manifest, ResponseRecord, Results,
     SCHEMA_VERSION, Settings, SmoothingMethod, Source,
 };
@@ -549,6 +549,8 @@ pub struct CompareJob {
     pub labels: Vec<String>,
     /// Further smoothing of the responses (`None`: as the inputs are).
     pub smoothing: Option<Smoothing>,
+    /// Level-align the responses to the reference over this band, Hz.
+    pub align: Option<(f64, f64)>,
     /// Room volume for the absorption change, m³.
     pub volume_m3: Option<f64>,
     /// Air temperature, °C.
@@ -570,7 +572,7 @@ pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
     let folder = MeasurementFolder::check(&job.out, job.overwrite, &[])?;
     let mut warnings = Warnings::new();
     let grid = common_grid(&inputs, &mut warnings)?;
-    let response = compare_responses(&inputs, grid, job.smoothing)?;
+    let response = compare_responses(&inputs, grid, job.smoothing, job.align)?;
     let bands = band_rows(&inputs);
     let c_sound = calc::speed_of_sound(job.temperature_c);
     let absorption = job
@@ -602,7 +604,12 @@ pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
             "exceeds_uncertainty: the change is larger than twice the combined standard uncertainty of the two values (the spread over positions for an average, ISO 3382-2's formula for T20 and T30 of one measurement; unknown otherwise)".into(),
             "verdict: audible (beyond both), within_uncertainty (beyond the just-noticeable difference but not the uncertainty), beyond_jnd_uncertainty_unknown, below_jnd, or not_measured; the one judgement the terminal, the plots and the report show".into(),
             "absorption: A = 55.3·V/(c·T), the Sabine relation as ISO 354 writes it, c = 331 + 0.6·t m/s; the air term cancels in the difference".into(),
-        ],
+        ]
+        .into_iter()
+        .chain(job.align.map(|_| {
+            "response.alignment: each curve moved by the mean of its dB difference from the reference over the band (equal weight per grid point, i.e. per fraction of an octave) before the differences were taken; band parameters are not affected".to_string()
+        }))
+        .collect(),
         warnings: warnings.clone(),
     };
     write_comparison(job, &folder, &inputs, &comparison)
@@ -638,6 +645,7 @@ fn compare_responses(
     inputs: &[Input],
     grid: Vec<f64>,
     want: Option<Smoothing>,
+    align: Option<(f64, f64)>,
 ) -> Result<CompareResponse> {
     let input_smoothing: Vec<Smoothing> = inputs
         .iter()
@@ -694,6 +702,36 @@ fn compare_responses(
             }
         }
     }
+    let alignment = align
+        .map(|band| {
+            let offset_db = mags
+                .iter()
+                .map(|m| {
+                    calc::level_offset(&mags[0], m, &grid, band).ok_or_else(|| {
+                        Error::parameter(format!(
+                            "--align {}–{}: the responses have fewer than {} points in common there; choose a band inside the measured range ({}–{})",
+                            crate::model::units::hz(band.0),
+                            crate::model::units::hz(band.1),
+                            calc::MIN_ALIGN_POINTS,
+                            crate::model::units::hz(grid.first().copied().unwrap_or(0.0)),
+                            crate::model::units::hz(grid.last().copied().unwrap_or(0.0)),
+                        ))
+                    })
+                })
+                .collect::<Result<Vec<f64>>>()?;
+            Ok::<_, Error>(Alignment {
+                band_hz: [band.0, band.1],
+                offset_db,
+            })
+        })
+        .transpose()?;
+    if let Some(al) = &alignment {
+        for (m, o) in mags.iter_mut().zip(&al.offset_db) {
+            for v in m.iter_mut().flatten() {
+                *v += o;
+            }
+        }
+    }
     let difference_db: Vec<Vec<Option<f64>>> = mags
         .iter()
         .map(|m| {
@@ -711,6 +749,7 @@ fn compare_responses(
         frequency_hz: grid,
         magnitude_db: mags,
         difference_db,
+        alignment,
     })
 }
 
@@ -879,13 +918,33 @@ fn draw_comparison_plots(
     cmp: &Comparison,
 ) -> Result<Vec<FileEntry>> {
     let labels: Vec<String> = inputs.iter().map(|i| i.record.label.clone()).collect();
+    // an aligned curve says by how much it was moved, and over what band
+    let shown: Vec<String> = match &cmp.response.alignment {
+        Some(al) => labels
+            .iter()
+            .zip(&al.offset_db)
+            .enumerate()
+            .map(|(k, (l, o))| {
+                if k == 0 {
+                    l.clone()
+                } else {
+                    format!(
+                        "{l} {o:+.1} dB (level-aligned over {}–{})",
+                        crate::model::units::hz(al.band_hz[0]),
+                        crate::model::units::hz(al.band_hz[1])
+                    )
+                }
+            })
+            .collect(),
+        None => labels.clone(),
+    };
     let nan = |v: &Vec<Option<f64>>| v.iter().map(|x| x.unwrap_or(f64::NAN)).collect::<Vec<_>>();
-    let curves: Vec<(String, Vec<f64>)> = labels
+    let curves: Vec<(String, Vec<f64>)> = shown
         .iter()
         .cloned()
         .zip(cmp.response.magnitude_db.iter().map(nan))
         .collect();
-    let diffs: Vec<(String, Vec<f64>)> = labels
+    let diffs: Vec<(String, Vec<f64>)> = shown
         .iter()
         .cloned()
         .zip(cmp.response.difference_db.iter().map(nan))

@@ -662,6 +662,7 @@ fn draw_plots(
         title: &job.title,
         analysis: a,
         target: overlay.as_ref(),
+        phase_view: plot::PhaseView::default(),
     };
     let mut files = Vec::new();
     for kind in input.kinds() {

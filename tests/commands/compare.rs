@@ -446,3 +446,71 @@ fn compare_smooths_measurements_again_from_their_impulse_responses() {
     let line = refused(d, &["compare", "ab", "a", "--out", "x", "--smooth", "1/24"]);
     assert!(line.contains("finer"), "{line}");
 }
+
+#[test]
+fn align_takes_a_change_of_level_out_of_the_differences_and_says_by_how_much() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    let h = room(0.5, 7);
+    measure_room(d, "a", &h, 1.0);
+    // the same room measured with the gain 6.02 dB lower (closed form:
+    // 20·log10(0.5))
+    measure_room(d, "b", &h, 0.5);
+    let before = snapshot(d);
+    let out = ok(
+        d,
+        &[
+            "compare",
+            "a",
+            "b",
+            "--out",
+            "c",
+            "--align",
+            "200,2000",
+            "--no-plots",
+        ],
+    );
+    let c = json(&d.join("c/comparison.json"));
+    let al = &c["response"]["alignment"];
+    assert_eq!(numbers(&al["band_hz"]), [200.0, 2000.0]);
+    let offset = numbers(&al["offset_db"]);
+    let expected = -20.0 * 0.5f64.log10();
+    assert_eq!(offset[0], 0.0);
+    assert!((offset[1] - expected).abs() < 0.01, "{offset:?}");
+    assert!(
+        out.contains("levels aligned to a over 200 Hz–2 kHz: b +6.02 dB"),
+        "{out}"
+    );
+    // the differences are the shape alone: zero everywhere both have a value
+    let f = numbers(&c["response"]["frequency_hz"]);
+    for (f, v) in f
+        .iter()
+        .zip(c["response"]["difference_db"][1].as_array().unwrap())
+    {
+        if let Some(v) = v.as_f64() {
+            assert!(v.abs() < 0.01, "{f} Hz: {v} dB");
+        }
+    }
+    // without --align the level change is there, and nothing is aligned
+    let c = compare_json(d, "plain", &["a", "b", "--no-plots"]);
+    assert!(c["response"].get("alignment").is_none());
+    let at_1k = f
+        .iter()
+        .position(|x| *x >= 1000.0)
+        .map(|i| c["response"]["difference_db"][1][i].as_f64().unwrap())
+        .unwrap();
+    assert!((at_1k + expected).abs() < 0.01, "{at_1k}");
+    // the inputs are untouched; a band outside the response is refused
+    for (p, bytes) in &before {
+        assert_eq!(&std::fs::read(p).unwrap(), bytes, "{}", p.display());
+    }
+    let line = refused(
+        d,
+        &["compare", "a", "b", "--out", "x", "--align", "30000,40000"],
+    );
+    assert!(
+        line.contains("--align") && line.contains("measured range"),
+        "{line}"
+    );
+    assert!(!d.join("x").exists());
+}

@@ -199,3 +199,61 @@ fn bad_drive_voltages_and_distances_are_refused() {
     // nothing was written
     assert_eq!(snapshot(t.path()), before);
 }
+
+#[test]
+fn calibrate_replaces_a_calibration_only_with_overwrite() {
+    let t = setup();
+    let d = t.path();
+    let before = std::fs::read(d.join("cal.json")).unwrap();
+    let args = [
+        "calibrate",
+        "tone.wav",
+        "--level",
+        "114",
+        "--out",
+        "cal.json",
+    ];
+    let line = refused(d, &args);
+    assert!(
+        line.contains("already exists") && line.contains("--overwrite"),
+        "{line}"
+    );
+    assert_eq!(std::fs::read(d.join("cal.json")).unwrap(), before);
+    let mut again = args.to_vec();
+    again.push("--overwrite");
+    ok(d, &again);
+    // 20 dB more for the same tone: the full-scale level moves by 20 dB
+    let (old, new) = (
+        serde_json::from_slice::<serde_json::Value>(&before).unwrap(),
+        json(&d.join("cal.json")),
+    );
+    let key = "full_scale_db_spl";
+    let delta = new[key].as_f64().unwrap() - old[key].as_f64().unwrap();
+    assert!((delta - 20.0).abs() < 1e-6, "{delta}: {new}");
+}
+
+#[test]
+fn calibrate_names_the_channel_that_holds_the_tone() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    let tone: Vec<f64> = (0..96_000)
+        .map(|i| 0.2 * (std::f64::consts::TAU * 1000.0 * i as f64 / 48_000.0).sin())
+        .collect();
+    // the microphone on input 2; input 1 silent
+    write_wav_f32(&d.join("two.wav"), 48_000, &[vec![0.0; 96_000], tone]);
+    let before = snapshot(d);
+    let line = refused(d, &["calibrate", "two.wav", "--out", "cal.json"]);
+    assert!(line.contains("give --channel 2"), "{line}");
+    assert_eq!(snapshot(d), before, "nothing written");
+    ok(
+        d,
+        &[
+            "calibrate",
+            "two.wav",
+            "--channel",
+            "2",
+            "--out",
+            "cal.json",
+        ],
+    );
+}

@@ -80,6 +80,53 @@ fn an_existing_file_is_never_overwritten() {
 }
 
 #[test]
+fn overwrite_replaces_a_sweep_and_its_description_together() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    make_sweep(d, "s.wav", &["--length", "1", "--tail", "0.5"]);
+    let line = refused(d, &["sweep", "--out", "s.wav", "--length", "2"]);
+    assert!(line.contains("--overwrite"), "{line}");
+    ok(
+        d,
+        &[
+            "sweep",
+            "--out",
+            "s.wav",
+            "--length",
+            "2",
+            "--tail",
+            "0.5",
+            "--overwrite",
+        ],
+    );
+    // the pair describes the new sweep, and analyses as one
+    let j = json(&d.join("s.json"));
+    let len = j["sweep"]["length_s"].as_f64().unwrap();
+    assert!(len > 1.5, "{len}");
+    let (_, x) = read_wav(&d.join("s.wav"));
+    let expected = j["sweep"]["total_samples"].as_u64().unwrap() as usize;
+    assert_eq!(x[0].len(), expected);
+    ok(
+        d,
+        &[
+            "analyze",
+            "s.wav",
+            "--sweep",
+            "s.wav",
+            "--out",
+            "m",
+            "--no-plots",
+        ],
+    );
+    assert!(
+        !std::fs::read_dir(d)
+            .unwrap()
+            .flatten()
+            .any(|e| e.file_name().to_string_lossy().starts_with(".partial"))
+    );
+}
+
+#[test]
 fn every_help_page_explains_its_options() {
     let t = tempfile::tempdir().unwrap();
     let top = ok(t.path(), &["--help"]);
