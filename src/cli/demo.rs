@@ -282,11 +282,17 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
     common::print_octave_verdicts(&cmp, 1);
     let report = a.out.join("report.html");
     super::report::run(super::report::Args {
-        dirs: vec![
-            a.out.join("comparison"),
-            a.out.join("before"),
-            a.out.join("after"),
-        ],
+        // the positions last: the report puts them in its appendix
+        dirs: ["comparison", "before", "after"]
+            .iter()
+            .map(|d| a.out.join(d))
+            .chain(
+                ["before", "after"]
+                    .iter()
+                    .flat_map(|c| (1..=positions.len()).map(move |k| format!("{c}-{k}")))
+                    .map(|d| a.out.join(d)),
+            )
+            .collect(),
         out: report,
         overwrite: a.output.overwrite,
         show_changed_raw: false,

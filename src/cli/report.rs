@@ -12,19 +12,25 @@ use gliss::report::{self, Folder, Plot};
 #[derive(Debug, ClapArgs)]
 #[command(
     after_help = "The report is one HTML file: its style sheet is inline and every \
-plot is embedded, so it opens in any browser without a network and prints on A4 (one \
-measurement per page break). It shows, per folder in the order given: key numbers, \
-warnings with what to do, the band tables (— with the reason where a value could not be \
-measured), the plots with captions, what was measured and how, and the raw files with their \
-SHA-256, checked against the folder. A comparison folder (from gliss compare) gets a verdict \
-per band and parameter. The folders are only read, never changed."
+plot is embedded, so it opens in any browser without a network and prints on A4. Page 1 is \
+the answer for the first folder: for a comparison, the question, the verdict in words for \
+Tmid, the bass ratio, C80, D50 and the change of absorption, counts per quantity and octave \
+band, and the reverberation time per octave before and after with error bars; for a \
+measurement, its key numbers, response and decay. Then the evidence (plots with captions, \
+octave-band tables), then an appendix (one-third-octave tables, the positions of any average \
+given too, how each folder was made with the SHA-256 of its raw files, checked). The folders \
+are only read, never changed.
+
+--out must end in .html: gliss writes no PDF itself; open the report in a browser and print \
+it, or e.g. chromium --headless --no-pdf-header-footer --print-to-pdf=report.pdf report.html."
 )]
 pub struct Args {
     /// Measurement or comparison folders (each with manifest.json), in the
     /// order the report shows them.
     #[arg(value_name = "DIR", required = true)]
     pub dirs: Vec<PathBuf>,
-    /// The HTML file to write.
+    /// The HTML file to write (its name must end in .html or .htm; a PDF
+    /// is refused: print the HTML).
     #[arg(long, value_name = "FILE.html")]
     pub out: PathBuf,
     /// Replace --out if it exists.
@@ -38,6 +44,20 @@ pub struct Args {
 
 /// Runs `gliss report`.
 pub fn run(a: Args) -> Result<()> {
+    let html_name = a
+        .out
+        .extension()
+        .and_then(|e| e.to_str())
+        .is_some_and(|e| e.eq_ignore_ascii_case("html") || e.eq_ignore_ascii_case("htm"));
+    if !html_name {
+        return Err(Error::new(
+            ErrorKind::InvalidParameter,
+            format!(
+                "--out {} is not an .html file name: gliss report writes HTML only; give e.g. --out report.html, then print it to PDF from a browser (chromium --headless --print-to-pdf=report.pdf report.html)",
+                a.out.display()
+            ),
+        ));
+    }
     if a.out.is_dir() {
         return Err(Error::new(
             ErrorKind::AlreadyExists,
@@ -64,7 +84,7 @@ pub fn run(a: Args) -> Result<()> {
     let written = humantime::format_rfc3339_seconds(std::time::SystemTime::now()).to_string();
     let html = report::render(&folders, &written);
     gliss::folder::write::write_replacing(&a.out, html.as_bytes(), a.overwrite)?;
-    let plots: usize = folders.iter().map(|f| f.plots.len()).sum();
+    let plots = html.matches("<img ").count();
     println!(
         "wrote {}: {} folder{}, {plots} plot{} embedded ({} kB); open it in a browser or print it",
         a.out.display(),

@@ -22,8 +22,8 @@ pub(super) fn chart_builder<'a, 'b>(
     b.margin_left(10)
         .margin_right(30)
         .margin_top(10)
-        .x_label_area_size(x_label_area)
-        .y_label_area_size(75);
+        .x_label_area_size(x_label_area + 14)
+        .y_label_area_size(95);
     b
 }
 
@@ -37,15 +37,15 @@ where
     Y: Ranged<ValueType = YT> + ValueFormatter<YT>,
 {
     let mut m = chart.configure_mesh();
-    m.label_style((FONT, 16))
-        .axis_desc_style((FONT, 18))
+    m.label_style((FONT, super::SMALLEST_TEXT_PX))
+        .axis_desc_style((FONT, super::SMALLEST_TEXT_PX + 2))
         .bold_line_style(GRID)
         .light_line_style(GRID_MINOR);
     m
 }
 
 /// The legend's label font size, px.
-const LEGEND_FONT: u32 = 15;
+const LEGEND_FONT: u32 = super::SMALLEST_TEXT_PX;
 
 /// Where a legend went: its box in pixels of the whole image and how many
 /// sampled points of the plotted data it covers.

@@ -44,7 +44,7 @@ pub fn impulse_png(
     head.draw(&Text::new(
         format!("Impulse response — {title}"),
         (20, 14),
-        (FONT, 24).into_font(),
+        (FONT, 26).into_font(),
     ))
     .map_err(plot_error(path))?;
     let (top, bottom) = body.split_vertically(body.dim_in_pixel().1 / 2);

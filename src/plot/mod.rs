@@ -15,6 +15,11 @@ use crate::analysis::room::BandResult;
 use crate::error::{Error, ErrorKind, Result};
 use crate::model::plot_kind::PlotKind;
 
+/// The smallest text on any plot, px, on the 1200 × 800 canvas: tick
+/// labels and legends. The report prints plots at least 8 · 1200 / this
+/// points wide, so that no printed plot text is smaller than 8 pt.
+pub const SMALLEST_TEXT_PX: u32 = 24;
+
 pub mod annotate;
 mod axes;
 mod theme;

@@ -47,7 +47,7 @@ pub(super) fn canvas<'a>(path: &'a Path, heading: &str) -> Result<(Area<'a>, Are
     head.draw(&Text::new(
         heading.to_string(),
         (20, 14),
-        (FONT, 24).into_font(),
+        (FONT, 26).into_font(),
     ))
     .map_err(plot_error(path))?;
     Ok((root, body))

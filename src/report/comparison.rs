@@ -7,7 +7,7 @@ use std::fmt::Write;
 
 use super::html::{esc, hz, signed};
 use crate::analysis::compare::Verdict;
-use crate::folder::schema::{BandRow, Comparison};
+use crate::folder::schema::{AbsorptionRow, BandRow, Comparison};
 use crate::model::{Fraction, Parameter};
 
 fn at<T: Copy>(v: &[Option<T>], i: usize) -> Option<T> {
@@ -30,20 +30,20 @@ pub fn css_class(v: Option<Verdict>) -> &'static str {
     }
 }
 
-/// Counts of the verdicts over every band and input after the first:
-/// (audible, measured but not established as audible, not measured).
-pub fn tally(c: &Comparison) -> (usize, usize, usize) {
-    let (mut audible, mut other, mut missing) = (0, 0, 0);
-    for b in &c.bands {
-        for i in 1..c.inputs.len() {
-            match verdict_of(b, i) {
-                Some(Verdict::Audible) => audible += 1,
-                Some(Verdict::NotMeasured) | None => missing += 1,
-                Some(_) => other += 1,
-            }
-        }
+/// A verdict in a few words for a table cell; the full words
+/// ([`Verdict::words`]) are its tooltip and the legend above the tables.
+pub fn short_words(v: Option<Verdict>) -> &'static str {
+    match v {
+        Some(Verdict::Audible) => "audible",
+        Some(Verdict::BeyondJndUncertaintyUnknown) => "audible if real (uncertainty unknown)",
+        Some(Verdict::WithinUncertainty) => "beyond JND, within uncertainty",
+        Some(Verdict::MeasurableBelowJnd) => "real, below JND",
+        Some(Verdict::BelowJnd) => "below JND",
+        Some(Verdict::MeasurableNoJnd) => "real (no JND)",
+        Some(Verdict::WithinUncertaintyNoJnd) => "within uncertainty",
+        Some(Verdict::NotJudged) | None => "not judged",
+        Some(Verdict::NotMeasured) => "not measured",
     }
-    (audible, other, missing)
 }
 
 /// The heading of a block of tables of one band width.
@@ -55,26 +55,41 @@ fn fraction_heading(f: Fraction) -> &'static str {
     }
 }
 
-/// The verdict tables: one per parameter and band fraction, octave bands first.
-pub fn tables(out: &mut String, c: &Comparison, table: &mut usize) {
-    for fraction in Fraction::ALL {
-        let rows_of = |p: Parameter| -> Vec<&BandRow> {
-            c.bands
-                .iter()
-                .filter(|b| b.fraction == fraction && b.parameter == p)
-                .collect()
-        };
-        if Parameter::ALL.iter().all(|&p| rows_of(p).is_empty()) {
-            continue;
-        }
-        let _ = write!(out, "<h4>{}</h4>", fraction_heading(fraction));
-        for p in Parameter::ALL {
-            let rows = rows_of(p);
-            if !rows.is_empty() {
-                parameter_table(out, c, p, fraction, &rows, table);
-            }
+/// The verdict tables of one band width: one per parameter, side by side
+/// in print (two to a row).
+pub fn tables(out: &mut String, c: &Comparison, fraction: Fraction, table: &mut usize) {
+    tables_of(out, c, fraction, &Parameter::ALL, table);
+}
+
+/// The verdict tables of `parameters` in one band width.
+pub fn tables_of(
+    out: &mut String,
+    c: &Comparison,
+    fraction: Fraction,
+    parameters: &[Parameter],
+    table: &mut usize,
+) {
+    let rows_of = |p: Parameter| -> Vec<&BandRow> {
+        c.bands
+            .iter()
+            .filter(|b| b.fraction == fraction && b.parameter == p)
+            .collect()
+    };
+    if parameters.iter().all(|&p| rows_of(p).is_empty()) {
+        return;
+    }
+    let _ = write!(
+        out,
+        "<h4>{}</h4><div class=\"grid2\">",
+        fraction_heading(fraction)
+    );
+    for &p in parameters {
+        let rows = rows_of(p);
+        if !rows.is_empty() {
+            parameter_table(out, c, p, fraction, &rows, table);
         }
     }
+    out.push_str("</div>");
 }
 
 /// One parameter's table in one band width: each input's value, and for
@@ -96,20 +111,20 @@ fn parameter_table(
     };
     let _ = write!(
         out,
-        "<table class=\"bands compare\" data-parameter=\"{}\" data-fraction=\"{}\"><caption>Table {}. {}{} per {} band{}</caption><thead><tr><th scope=\"col\">Band</th>",
+        "<table class=\"bands compare\" data-parameter=\"{}\" data-fraction=\"{}\"><caption>Table {}. {}{} {}{}</caption><thead><tr><th scope=\"col\">Band</th>",
         esc(p.key()),
         esc(fraction.code()),
         table,
         esc(info.label),
         esc(&u),
-        fraction.words(),
+        match fraction {
+            Fraction::Broadband => "over the whole sweep band".to_string(),
+            f => format!("per {} band", f.words()),
+        },
         if info.jnd_words.is_empty() {
             String::new()
         } else {
-            format!(
-                "; just-noticeable difference {} (ISO 3382-1 Annex A)",
-                info.jnd_words
-            )
+            format!("; JND {}", info.jnd_words)
         }
     );
     for (i, input) in c.inputs.iter().enumerate() {
@@ -136,7 +151,11 @@ fn parameter_table(
             out,
             "<tr data-center-hz=\"{}\"><th scope=\"row\">{}</th>",
             b.center_hz,
-            esc(&hz(b.center_hz))
+            if fraction == Fraction::Broadband {
+                "whole band".to_string()
+            } else {
+                esc(&hz(b.center_hz))
+            }
         );
         for i in 0..c.inputs.len() {
             let _ = write!(
@@ -149,7 +168,7 @@ fn parameter_table(
                 let rel = at(&b.changes.relative_change, i);
                 let shown = match (ch, rel) {
                     (Some(d), Some(r)) if p.is_decay_time() => format!(
-                        "{} <span class=\"muted\">({} %)</span>",
+                        "<span title=\"{} s\">{} %</span>",
                         signed(d * scale, dec),
                         signed(r * 100.0, 0)
                     ),
@@ -159,10 +178,11 @@ fn parameter_table(
                 let v = verdict_of(b, i);
                 let _ = write!(
                     out,
-                    "<td class=\"num nowrap\">{shown}</td><td class=\"verdict {}\" data-verdict=\"{}\">{}</td>",
+                    "<td class=\"num nowrap\">{shown}</td><td class=\"verdict {}\" data-verdict=\"{}\" title=\"{}\">{}</td>",
                     css_class(v),
                     v.map_or("", Verdict::code),
-                    v.map_or("not judged", Verdict::words)
+                    v.map_or("not judged", Verdict::words),
+                    short_words(v)
                 );
             }
         }
@@ -172,15 +192,21 @@ fn parameter_table(
 }
 
 /// The absorption table, if the comparison has one.
-pub fn absorption(out: &mut String, c: &Comparison, table: &mut usize) {
-    if c.absorption.is_empty() {
+pub fn absorption(out: &mut String, c: &Comparison, fraction: Fraction, table: &mut usize) {
+    let rows: Vec<&AbsorptionRow> = c
+        .absorption
+        .iter()
+        .filter(|a| a.fraction == fraction)
+        .collect();
+    if rows.is_empty() {
         return;
     }
     *table += 1;
     let _ = write!(
         out,
-        "<table class=\"bands\" data-parameter=\"delta_area_m2\"><caption>Table {table}. Change of equivalent absorption area against {} (Sabine), m²</caption><thead><tr><th scope=\"col\">Band</th>",
-        esc(c.inputs.first().map_or("the reference", |i| i.name()))
+        "<table class=\"bands\" data-parameter=\"delta_area_m2\"><caption>Table {table}. Change of equivalent absorption area against {} (Sabine), m², per {} band</caption><thead><tr><th scope=\"col\">Band</th>",
+        esc(c.inputs.first().map_or("the reference", |i| i.name())),
+        fraction.words()
     );
     for input in c.inputs.iter().skip(1) {
         let _ = write!(
@@ -190,7 +216,7 @@ pub fn absorption(out: &mut String, c: &Comparison, table: &mut usize) {
         );
     }
     out.push_str("</tr></thead><tbody>");
-    for a in &c.absorption {
+    for a in rows {
         let _ = write!(
             out,
             "<tr data-center-hz=\"{}\"><th scope=\"row\">{} <span class=\"muted\">{}</span></th>",
@@ -253,10 +279,9 @@ mod tests {
         };
         let mut s = String::new();
         let mut n = 0;
-        tables(&mut s, &c, &mut n);
+        tables(&mut s, &c, Fraction::Octave, &mut n);
         assert_eq!(n, 1);
         assert!(s.contains("data-verdict=\"within_uncertainty\""), "{s}");
         assert!(s.contains("within measurement uncertainty, though larger"));
-        assert_eq!(tally(&c), (0, 1, 0));
     }
 }

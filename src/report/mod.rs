@@ -6,6 +6,7 @@
 //! kind and needs no JavaScript. All text from the folders is escaped.
 
 pub mod advice;
+pub mod answer;
 pub mod comparison;
 pub mod html;
 
@@ -76,8 +77,38 @@ struct Counters {
     table: usize,
 }
 
+/// Whether folder `k` is a position of an average that is also in the
+/// report (its name is one of that average's inputs): such folders go to
+/// the appendix as tables only.
+fn is_position(folders: &[Folder], k: usize) -> bool {
+    let name = &folders[k].name;
+    folders.iter().any(|f| match &f.content {
+        Content::Measurement { manifest, results } => {
+            results.average.is_some() && manifest.inputs.iter().any(|i| &i.folder == name)
+        }
+        Content::Comparison { .. } => false,
+    })
+}
+
+/// Whether the folder `name` is an input of a comparison in the report.
+fn is_compared(folders: &[Folder], name: &str) -> bool {
+    folders.iter().any(|f| match &f.content {
+        Content::Comparison { comparison, .. } => {
+            comparison.inputs.iter().any(|i| i.folder == name)
+        }
+        Content::Measurement { .. } => false,
+    })
+}
+
 /// The report of `folders`, in the order given. `written_utc` is the time
 /// to print as the report's date.
+///
+/// Page 1 is the answer for the first folder (a comparison's verdict and
+/// its reverberation figure, or a measurement's key numbers, response and
+/// decay). The evidence follows: each folder's plots with captions and its
+/// octave-band tables. The appendix holds the one-third-octave tables, the
+/// positions of any average in the report (tables only) and the method and
+/// provenance of every folder.
 pub fn render(folders: &[Folder], written_utc: &str) -> String {
     let mut out = String::with_capacity(1 << 20);
     let title = match folders {
@@ -93,16 +124,51 @@ pub fn render(folders: &[Folder], written_utc: &str) -> String {
     );
     let _ = write!(
         out,
-        "<header class=\"report\"><p class=\"kicker\">gliss measurement report</p><h1>{}</h1><p class=\"muted\">Written {} by gliss {} from the measurement folders below; every number comes from their results, every plot from their plots folder.</p>",
-        esc(&title),
+        "<header class=\"report\"><p class=\"kicker\">gliss measurement report · written {} by gliss {}</p><h1>{}</h1></header>",
         esc(written_utc),
-        env!("CARGO_PKG_VERSION")
+        env!("CARGO_PKG_VERSION"),
+        esc(&title),
     );
+    let mut counters = Counters::default();
+    let positions: Vec<bool> = (0..folders.len())
+        .map(|k| is_position(folders, k))
+        .collect();
+    // page 1: the answer
+    if let Some(lead) = folders.first() {
+        out.push_str("<section class=\"answer\" id=\"answer\">");
+        match &lead.content {
+            Content::Comparison {
+                manifest,
+                comparison,
+            } => comparison_answer(&mut out, lead, manifest, comparison, &mut counters),
+            Content::Measurement { manifest, results } => {
+                let _ = write!(
+                    out,
+                    "<p class=\"lede\"><span class=\"folder\">{}</span>: {}</p>",
+                    esc(&lead.name),
+                    esc(&manifest.source.description)
+                );
+                key_numbers(&mut out, lead, manifest, results);
+                for p in lead_plots(lead, results) {
+                    figure(&mut out, p, &caption(p, manifest, results), &mut counters);
+                }
+            }
+        }
+        out.push_str("</section>\n");
+    }
+    // contents, at the head of the evidence
     out.push_str("<nav class=\"contents\"><h2>Contents</h2><ol>");
     for (i, f) in folders.iter().enumerate() {
+        if positions[i] {
+            continue;
+        }
         let (kind, what, nwarn) = match &f.content {
             Content::Measurement { manifest, results } => (
-                "measurement",
+                if results.average.is_some() {
+                    "average"
+                } else {
+                    "measurement"
+                },
                 manifest.source.description.clone(),
                 results.warnings.len()
                     + results
@@ -133,9 +199,21 @@ pub fn render(folders: &[Folder], written_utc: &str) -> String {
             }
         );
     }
-    out.push_str("</ol></nav></header>\n");
-    let mut counters = Counters::default();
+    let npos = positions.iter().filter(|p| **p).count();
+    let _ = write!(
+        out,
+        "<li><a href=\"#appendix\">Appendix</a> <span class=\"muted\">one-third-octave tables{}, method and provenance</span></li></ol></nav>",
+        if npos > 0 {
+            format!(", the {npos} positions' tables")
+        } else {
+            String::new()
+        }
+    );
+    // the evidence
     for (i, f) in folders.iter().enumerate() {
+        if positions[i] {
+            continue;
+        }
         let _ = write!(
             out,
             "<section class=\"measurement\" id=\"m{}\"><h2><span class=\"num-label\">{}.</span> <span class=\"folder\">{}</span></h2>",
@@ -145,7 +223,16 @@ pub fn render(folders: &[Folder], written_utc: &str) -> String {
         );
         match &f.content {
             Content::Measurement { manifest, results } => {
-                measurement(&mut out, f, manifest, results, &mut counters)
+                let compared = results.average.is_some() && is_compared(folders, &f.name);
+                measurement(
+                    &mut out,
+                    f,
+                    manifest,
+                    results,
+                    i == 0,
+                    compared,
+                    &mut counters,
+                )
             }
             Content::Comparison {
                 manifest,
@@ -154,12 +241,176 @@ pub fn render(folders: &[Folder], written_utc: &str) -> String {
         }
         out.push_str("</section>\n");
     }
+    // the appendix
+    out.push_str("<section class=\"appendix\" id=\"appendix\"><h2>Appendix</h2><p class=\"muted\">The finer detail behind the answer: one-third-octave tables, the single positions, and how each folder was made, with the SHA-256 of its raw files.</p>");
+    for (i, f) in folders.iter().enumerate() {
+        if positions[i] {
+            continue;
+        }
+        let _ = write!(
+            out,
+            "<div class=\"part\" id=\"a{}\"><h3><span class=\"num-label\">A{}.</span> <span class=\"folder\">{}</span></h3>",
+            i + 1,
+            i + 1,
+            esc(&f.name)
+        );
+        match &f.content {
+            Content::Measurement { manifest, results } => {
+                let thirds: Vec<&BandResult> = results
+                    .bands
+                    .iter()
+                    .filter(|b| b.fraction == Fraction::Third)
+                    .collect();
+                if results.average.is_some() && is_compared(folders, &f.name) {
+                    out.push_str("<p class=\"muted\">Its values per one-third-octave band are in the comparison's appendix (T30) and in the folder's bands.csv (all).</p>");
+                } else if !thirds.is_empty() {
+                    band_table(&mut out, &thirds, Fraction::Third, &mut counters);
+                }
+                about(&mut out, f, manifest);
+            }
+            Content::Comparison {
+                manifest,
+                comparison,
+            } => comparison_appendix(&mut out, f, manifest, comparison, &mut counters),
+        }
+        out.push_str("</div>");
+    }
+    if npos > 0 {
+        positions_appendix(&mut out, folders, &positions, &mut counters);
+    }
+    out.push_str("</section>\n");
     let _ = write!(
         out,
         "<footer><p>Made with gliss {}. Values that could not be measured honestly are shown as — with the reason beside them, never estimated.</p></footer>\n</body>\n</html>\n",
         env!("CARGO_PKG_VERSION")
     );
     out
+}
+
+/// The plots of a measurement's first page: its response and its decay
+/// (an average has no decay: its reverberation time per band instead).
+fn lead_plots<'a>(f: &'a Folder, r: &Results) -> Vec<&'a Plot> {
+    let second = if r.average.is_some() {
+        PlotKind::AverageReverberation.file()
+    } else {
+        PlotKind::Decay.file()
+    };
+    [PlotKind::Response.file(), second]
+        .iter()
+        .filter_map(|file| f.plots.iter().find(|p| p.file == *file))
+        .collect()
+}
+
+/// The positions of the report's averages: each one's octave-band table
+/// and its raw files with their SHA-256, no plots (they are in each
+/// position's plots folder).
+fn positions_appendix(out: &mut String, folders: &[Folder], positions: &[bool], n: &mut Counters) {
+    out.push_str("<div class=\"part\" id=\"positions\"><h3>The positions</h3><p class=\"muted\">Each microphone position averaged above, octave bands; their plots and one-third-octave values are in each folder (plots/, bands.csv).</p><div class=\"grid2 positions\">");
+    for (i, f) in folders.iter().enumerate() {
+        if !positions[i] {
+            continue;
+        }
+        let Content::Measurement { manifest, results } = &f.content else {
+            continue;
+        };
+        let _ = write!(
+            out,
+            "<div class=\"position\" id=\"m{}\"><h4><span class=\"folder\">{}</span> <span class=\"muted\">{}</span></h4>",
+            i + 1,
+            esc(&f.name),
+            esc(&manifest.source.description)
+        );
+        let octaves: Vec<&BandResult> = results
+            .bands
+            .iter()
+            .filter(|b| b.fraction == Fraction::Octave)
+            .collect();
+        if !octaves.is_empty() {
+            band_table(out, &octaves, Fraction::Octave, n);
+        }
+        out.push_str("</div>");
+    }
+    out.push_str("</div><table class=\"files\"><caption>The positions' raw files and their SHA-256</caption><thead><tr><th scope=\"col\">Position</th><th scope=\"col\">File</th><th scope=\"col\">SHA-256 (manifest)</th><th scope=\"col\">Check</th></tr></thead><tbody>");
+    for (i, f) in folders.iter().enumerate() {
+        if !positions[i] {
+            continue;
+        }
+        for c in f.files.iter().filter(|c| c.entry.role == FileRole::Raw) {
+            let (class, words) = file_state(c.state);
+            let _ = write!(
+                out,
+                "<tr><td class=\"file\">{}</td><td class=\"file\">{}</td><td class=\"hash\">{}</td><td class=\"{class}\">{words}</td></tr>",
+                esc(&f.name),
+                esc(&c.entry.name),
+                esc(&c.entry.sha256)
+            );
+        }
+    }
+    out.push_str("</tbody></table></div>");
+}
+
+/// A file check as a CSS class and words.
+fn file_state(s: FileState) -> (&'static str, &'static str) {
+    match s {
+        FileState::Matches => ("ok", "matches"),
+        FileState::Differs => ("bad", "differs"),
+        FileState::Missing => ("bad", "missing"),
+    }
+}
+
+/// A comparison's first page: the question, the verdict in words, the
+/// headline counts and the reverberation figure.
+fn comparison_answer(
+    out: &mut String,
+    f: &Folder,
+    manifest: &ComparisonManifest,
+    c: &Comparison,
+    n: &mut Counters,
+) {
+    let names: Vec<&str> = c.inputs.iter().map(|i| i.name()).collect();
+    let _ = write!(
+        out,
+        "<p class=\"question\"><strong>The question:</strong> what changed from <em>{}</em> to <em>{}</em>? {}<br><span class=\"muted\">Comparison <span class=\"folder\">{}</span>, made {}{}.</span></p>",
+        esc(names.first().copied().unwrap_or("the reference")),
+        esc(&names[1.min(names.len().saturating_sub(1))..].join(", ")),
+        esc(&comparison_title(manifest, c)),
+        esc(&f.name),
+        esc(&manifest.created_utc),
+        c.volume_m3
+            .map(|v| format!("; room volume {} m³", num(v, 1)))
+            .unwrap_or_default()
+    );
+    for i in 1..c.inputs.len() {
+        if c.inputs.len() > 2 {
+            let _ = write!(out, "<h3>{} against {}</h3>", esc(names[i]), esc(names[0]));
+        }
+        out.push_str("<div class=\"verdict\"><h3>The verdict</h3><ul>");
+        for s in answer::verdict_sentences(c, i) {
+            let _ = write!(out, "<li>{}</li>", esc(&s));
+        }
+        out.push_str("</ul><h4>Per quantity, in the octave bands</h4><ul class=\"counts\">");
+        for s in answer::headlines(c, i) {
+            let _ = write!(out, "<li>{}</li>", esc(&s));
+        }
+        out.push_str("</ul></div>");
+    }
+    if let Some(svg) = answer::reverberation_svg(c) {
+        n.figure += 1;
+        let _ = write!(
+            out,
+            "<figure class=\"svg\">{svg}<figcaption><span class=\"fig\">Figure {}.</span> Reverberation time T30 per octave band, {}. Bars: ± twice each value's standard uncertainty (for an average, from the spread over its positions: their standard deviation / √n); a ring marks an audible change (beyond the just-noticeable difference and the uncertainty).</figcaption></figure>",
+            n.figure,
+            esc(&names.join(" and "))
+        );
+    }
+    if !c.warnings.is_empty() {
+        let _ = write!(
+            out,
+            "<p class=\"todo\"><strong>{} warning{}</strong> about this comparison: see section 1.</p>",
+            c.warnings.len(),
+            if c.warnings.len() == 1 { "" } else { "s" }
+        );
+    }
 }
 
 /// A comparison's one-line description.
@@ -192,40 +443,75 @@ fn key(out: &mut String, label: &str, value: &str, note: &str) {
     );
 }
 
-/// The section of one measurement.
-fn measurement(out: &mut String, f: &Folder, m: &Manifest, r: &Results, n: &mut Counters) {
-    let _ = write!(out, "<p class=\"lede\">{}</p>", esc(&m.source.description));
-    // key numbers
-    out.push_str("<h3>Key numbers</h3><dl class=\"keys\">");
+/// Tmid of a folder's octave bands: the mean of T30 at 500 Hz and 1 kHz.
+fn tmid(r: &Results) -> Option<f64> {
+    let at = |f: f64| {
+        r.bands
+            .iter()
+            .find(|b| b.is(Fraction::Octave, f))
+            .and_then(|b| b.get(Parameter::T30))
+    };
+    Some((at(500.0)? + at(1000.0)?) / 2.0)
+}
+
+/// A measurement's or an average's key numbers. An average shows no delay
+/// or levels (the positions stand at different distances: their mean
+/// means nothing) but how many positions it holds.
+fn key_numbers(out: &mut String, f: &Folder, m: &Manifest, r: &Results) {
+    let _ = f;
+    out.push_str("<dl class=\"keys\">");
     let fs = f64::from(r.sample_rate_hz);
-    key(
-        out,
-        "Delay",
-        &format!("{} ms", num(r.delay_s * 1e3, 3)),
-        &format!(
-            "{} samples; from the {}",
-            num(r.delay_s * fs, 2),
-            r.delay_reference
-                .split(';')
-                .next()
-                .unwrap_or(&r.delay_reference)
+    match &r.average {
+        Some(a) => key(
+            out,
+            "Positions",
+            &a.positions.to_string(),
+            &format!(
+                "{} source position{}; ISO 3382-2 grade: {}",
+                a.sources,
+                if a.sources == 1 { "" } else { "s" },
+                a.grade
+            ),
         ),
-    );
-    key(
-        out,
-        "Recording peak",
-        &format!("{} dBFS", num(r.peak_dbfs, 1)),
-        "0 dBFS = a full-scale sine",
-    );
-    key(
-        out,
-        "Peak to noise",
-        &format!("{} dB", num(r.peak_to_noise_db, 0)),
-        "impulse response peak over its noise",
-    );
+        None => {
+            key(
+                out,
+                "Delay",
+                &format!("{} ms", num(r.delay_s * 1e3, 3)),
+                &format!(
+                    "{} samples; from the {}",
+                    num(r.delay_s * fs, 2),
+                    r.delay_reference
+                        .split(';')
+                        .next()
+                        .unwrap_or(&r.delay_reference)
+                ),
+            );
+            key(
+                out,
+                "Recording peak",
+                &format!("{} dBFS", num(r.peak_dbfs, 1)),
+                "0 dBFS = a full-scale sine",
+            );
+            key(
+                out,
+                "Peak to noise",
+                &format!("{} dB", num(r.peak_to_noise_db, 0)),
+                "impulse response peak over its noise",
+            );
+        }
+    }
+    if let Some(t) = tmid(r) {
+        key(
+            out,
+            "Tmid",
+            &Parameter::T30.show_with_unit(t),
+            "T30 averaged over the 500 Hz and 1 kHz octaves",
+        );
+    }
     if let Some(b) = &r.broadband {
         let band = format!(
-            "over the whole sweep, {}–{}",
+            "over the whole sweep band, {}–{}",
             hz(m.sweep.params.start_hz),
             hz(m.sweep.params.end_hz)
         );
@@ -264,12 +550,13 @@ fn measurement(out: &mut String, f: &Folder, m: &Manifest, r: &Results, n: &mut 
                 hz(g.resolved_to_hz)
             ),
         ),
-        None => key(
+        None if r.average.is_none() => key(
             out,
             "Gate",
             "none",
             "the whole impulse response, room included",
         ),
+        None => {}
     }
     key(
         out,
@@ -281,36 +568,56 @@ fn measurement(out: &mut String, f: &Folder, m: &Manifest, r: &Results, n: &mut 
         "of the frequency response",
     );
     out.push_str("</dl>");
+}
 
+/// The evidence of one measurement or average: its key numbers (unless
+/// page 1 showed them), warnings, plots and octave-band table.
+fn measurement(
+    out: &mut String,
+    f: &Folder,
+    m: &Manifest,
+    r: &Results,
+    lead: bool,
+    compared: bool,
+    n: &mut Counters,
+) {
+    let _ = write!(out, "<p class=\"lede\">{}</p>", esc(&m.source.description));
+    if !lead {
+        key_numbers(out, f, m, r);
+    }
     warnings(out, &r.warnings, &r.bands, f);
+
+    // plots
+    let shown: Vec<&Plot> = if lead { lead_plots(f, r) } else { Vec::new() };
+    if compared && !f.plots.is_empty() {
+        out.push_str("<p class=\"muted\">Its response and reverberation time are drawn with the other condition's in the comparison's figures above; its own plots are in the folder's plots/.</p>");
+    } else if f.plots.is_empty() {
+        out.push_str(
+            "<h3>Plots</h3><p class=\"muted\">This folder has no plots (it was analysed with --no-plots, or by a gliss built without plots).</p>",
+        );
+    } else if f.plots.len() > shown.len() {
+        out.push_str("<h3>Plots</h3>");
+        for p in &f.plots {
+            if !shown.iter().any(|s| std::ptr::eq(*s, p)) {
+                figure(out, p, &caption(p, m, r), n);
+            }
+        }
+    }
 
     // bands
     if r.bands.is_empty() {
         out.push_str("<h3>Bands</h3><p class=\"muted\">No band parameters: this measurement was analysed without bands (the speaker profile's default, or --no-bands).</p>");
     } else {
-        out.push_str("<h3>Reverberation and energy parameters per band</h3><p class=\"muted\">ISO 3382-1 parameters from the impulse response. EDT, T20 and T30 are decay times extrapolated to 60 dB; C50 and C80 the early-to-late energy ratios; D50 the share of energy in the first 50 ms; Ts the centre time; INR the decay's start above the noise. — marks a value that could not be measured; the note says why.</p>");
-        for fraction in [Fraction::Octave, Fraction::Third] {
-            let rows: Vec<&BandResult> =
-                r.bands.iter().filter(|b| b.fraction == fraction).collect();
-            if !rows.is_empty() {
-                band_table(out, &rows, fraction, n);
-            }
+        out.push_str("<h3>Reverberation and energy parameters per octave band</h3><p class=\"muted\">ISO 3382-1 parameters from the impulse response. EDT, T20 and T30 are decay times extrapolated to 60 dB; C50 and C80 the early-to-late energy ratios; D50 the share of energy in the first 50 ms; Ts the centre time; INR the decay's start above the noise. — marks a value that could not be measured; the note says why. One-third-octave bands are in the appendix.</p>");
+        let rows: Vec<&BandResult> = r
+            .bands
+            .iter()
+            .filter(|b| b.fraction == Fraction::Octave)
+            .collect();
+        if !rows.is_empty() {
+            band_table(out, &rows, Fraction::Octave, n);
         }
     }
-
-    // plots
-    if f.plots.is_empty() {
-        out.push_str(
-            "<h3>Plots</h3><p class=\"muted\">This folder has no plots (it was analysed with --no-plots, or by a gliss built without plots).</p>",
-        );
-    } else {
-        out.push_str("<h3>Plots</h3>");
-        for p in &f.plots {
-            figure(out, p, &caption(p, m, r), n);
-        }
-    }
-
-    about(out, f, m);
 }
 
 /// Warnings in plain words, grouped, with what to do.
@@ -503,7 +810,7 @@ fn band_table(out: &mut String, rows: &[&BandResult], fraction: Fraction, n: &mu
 
 /// What was measured, where and how; the raw files and their hashes.
 fn about(out: &mut String, f: &Folder, m: &Manifest) {
-    out.push_str("<h3>What was measured, and how</h3><table class=\"facts\"><tbody>");
+    out.push_str("<table class=\"facts\"><caption>What was measured, and how</caption><tbody>");
     let mut row = |k: &str, v: &str| {
         let _ = write!(
             out,
@@ -662,7 +969,8 @@ fn files_table(out: &mut String, f: &Folder, role: FileRole) {
     out.push_str("</tbody></table>");
 }
 
-/// The section of a comparison folder.
+/// The evidence of a comparison folder: its warnings, plots with captions
+/// and the octave-band tables of every compared quantity.
 fn comparison_section(
     out: &mut String,
     f: &Folder,
@@ -675,39 +983,48 @@ fn comparison_section(
         "<p class=\"lede\">{}</p>",
         esc(&comparison_title(manifest, c))
     );
-    out.push_str("<h3>Key numbers</h3><dl class=\"keys\">");
-    key(
-        out,
-        "Compared",
-        &format!("{} measurements", c.inputs.len()),
-        &format!(
-            "reference: {}",
-            c.inputs.first().map_or("none", |i| i.name())
-        ),
-    );
-    let (audible, other, missing) = comparison::tally(c);
-    key(
-        out,
-        "Audible changes",
-        &audible.to_string(),
-        "band values whose change exceeds both the just-noticeable difference and the measurement's uncertainty",
-    );
-    key(
-        out,
-        "No clear audible change",
-        &other.to_string(),
-        "within the just-noticeable difference or the measurement's uncertainty",
-    );
-    if missing > 0 {
-        key(
-            out,
-            "Not compared",
-            &missing.to_string(),
-            "band values missing in one of the measurements",
-        );
+    warnings(out, &c.warnings, &[], f);
+    if !f.plots.is_empty() {
+        out.push_str("<h3>Plots</h3>");
+        for p in &f.plots {
+            let names = c
+                .inputs
+                .iter()
+                .map(|i| i.name().to_string())
+                .collect::<Vec<_>>()
+                .join(", ");
+            let facts = CaptionFacts {
+                inputs: &names,
+                reference: c.inputs.first().map_or("the first", |i| i.name()),
+                ..CaptionFacts::default()
+            };
+            let text = PlotKind::from_file_among(&p.file, &PlotKind::COMPARISON)
+                .map_or_else(|| unknown_caption(&p.file), |k| k.caption(&facts));
+            figure(out, p, &text, n);
+        }
     }
-    out.push_str("</dl>");
-    // the inputs
+    if c.bands.is_empty() {
+        out.push_str(
+            "<h3>Band by band</h3><p class=\"muted\">The comparison holds no band parameters.</p>",
+        );
+    } else {
+        out.push_str("<h3>Octave bands</h3><p class=\"muted\">Each change against the reference, judged by gliss compare against the just-noticeable difference (JND) of ISO 3382-1 Annex A and against twice the measurement's own combined uncertainty: \"audible\" means beyond both (or beyond the JND where no uncertainty was estimated, as marked); \"real\" means beyond the uncertainty. The one-third-octave bands and the whole-band values are in the appendix.</p>");
+        comparison::tables(out, c, Fraction::Octave, &mut n.table);
+    }
+    comparison::absorption(out, c, Fraction::Octave, &mut n.table);
+}
+
+/// A comparison's appendix: its one-third-octave and whole-band tables,
+/// the compared folders with their hashes, and how it was made.
+fn comparison_appendix(
+    out: &mut String,
+    f: &Folder,
+    manifest: &ComparisonManifest,
+    c: &Comparison,
+    n: &mut Counters,
+) {
+    comparison::tables_of(out, c, Fraction::Third, &[Parameter::T30], &mut n.table);
+    out.push_str("<p class=\"muted\">The other quantities per one-third-octave band, the values over the whole sweep band and the absorption per one-third-octave band are in the folder's comparison.csv and comparison.json.</p>");
     out.push_str("<table class=\"files\"><caption>The compared measurements</caption><thead><tr><th scope=\"col\">#</th><th scope=\"col\">Label</th><th scope=\"col\">Folder</th><th scope=\"col\">SHA-256 (as recorded)</th></tr></thead><tbody>");
     for (i, input) in c.inputs.iter().enumerate() {
         let _ = write!(
@@ -729,37 +1046,7 @@ fn comparison_section(
         );
     }
     out.push_str("</tbody></table>");
-    warnings(out, &c.warnings, &[], f);
-    if c.bands.is_empty() {
-        out.push_str(
-            "<h3>Band by band</h3><p class=\"muted\">The comparison holds no band parameters.</p>",
-        );
-    } else {
-        out.push_str("<h3>Band by band</h3><p class=\"muted\">Each change against the reference, judged against the just-noticeable difference of ISO 3382-1 Annex A and against the measurement's own uncertainty. \"Audible change\" means it exceeds both (or the difference alone where no uncertainty was estimated).</p>");
-        comparison::tables(out, c, &mut n.table);
-    }
-    comparison::absorption(out, c, &mut n.table);
-    if !f.plots.is_empty() {
-        out.push_str("<h3>Plots</h3>");
-        for p in &f.plots {
-            let names = c
-                .inputs
-                .iter()
-                .map(|i| i.name().to_string())
-                .collect::<Vec<_>>()
-                .join(", ");
-            let facts = CaptionFacts {
-                inputs: &names,
-                reference: c.inputs.first().map_or("the first", |i| i.name()),
-                ..CaptionFacts::default()
-            };
-            let text = PlotKind::from_file_among(&p.file, &PlotKind::COMPARISON)
-                .map_or_else(|| unknown_caption(&p.file), |k| k.caption(&facts));
-            figure(out, p, &text, n);
-        }
-    }
-    // what was done
-    out.push_str("<h3>How the comparison was made</h3><table class=\"facts\"><tbody>");
+    out.push_str("<table class=\"facts\"><caption>How the comparison was made</caption><tbody>");
     let mut row = |k: &str, v: &str| {
         let _ = write!(
             out,
@@ -776,6 +1063,9 @@ fn comparison_section(
     );
     if !manifest.command_line.is_empty() {
         row("Command", &manifest.command_line.join(" "));
+    }
+    for k in &c.criteria {
+        row("Criterion", k);
     }
     out.push_str("</tbody></table>");
 }
@@ -842,16 +1132,44 @@ td.verdict { font-size: 0.85rem; }
 td.verdict.audible { color: var(--bad); font-weight: 600; }
 td.verdict.unsure, td.verdict.small { color: var(--warn); }
 td.verdict.none, td.verdict.na { color: var(--muted); }
+.question { font-size: 1.05rem; margin: 0.4rem 0 0.6rem; }
+.verdict { border-left: 3px solid var(--accent); padding: 0.1rem 0 0.1rem 0.9rem; margin: 0.6rem 0; }
+.verdict h3 { margin: 0.3rem 0; }
+.verdict h4 { margin: 0.5rem 0 0.2rem; color: var(--muted); font-weight: 600; }
+.verdict ul { margin: 0.2rem 0; padding-left: 1.2rem; }
+.verdict li { margin: 0.15rem 0; }
+figure.svg svg { display: block; width: 100%; height: auto; }
+.grid2 { display: grid; grid-template-columns: repeat(auto-fit, minmax(20rem, 1fr)); gap: 0 1.2rem; align-items: start; }
+.grid2 table { margin: 0.3rem 0 0.8rem; }
+section.appendix table { font-size: 0.8rem; }
+td.file { overflow-wrap: anywhere; }
+.grid2 thead th { white-space: normal; }
+.grid2 td.verdict { font-size: 0.95em; line-height: 1.2; }
+.hash { word-break: break-all; }
 footer { margin-top: 3rem; padding-top: 0.6rem; border-top: 1px solid var(--rule); font-size: 0.8rem; color: var(--muted); }
 @media print {
-  @page { size: A4; margin: 16mm 15mm 18mm; }
-  html { font-size: 10pt; }
+  @page { size: A4; margin: 14mm 14mm 14mm; }
+  html { font-size: 9.5pt; }
   body { max-width: none; padding: 0; }
-  section.measurement + section.measurement { break-before: page; }
+  nav.contents { display: none; }
+  nav.contents + section.measurement, section.appendix { break-before: page; }
+  h2 { margin-top: 0.4rem; }
+  h3 { margin: 1rem 0 0.4rem; }
   h2, h3, h4 { break-after: avoid; }
-  figure, table, .warning, .key, ol.notes { break-inside: avoid; }
-  figure img { max-height: 105mm; width: auto; max-width: 100%; margin: 0 auto; }
-  figure { margin: 0.6rem 0 1rem; }
+  figure, table, .warning, .key, ol.notes, .verdict, .position { break-inside: avoid; }
+  figure img { width: 144mm; max-width: none; height: auto; margin: 0 auto; }
+  figure { margin: 0.4rem 0 0.6rem; }
+  figure.svg svg { width: 170mm; margin: 0 auto; }
+  .grid2 { grid-template-columns: minmax(0, 1fr) minmax(0, 1fr); gap: 0 5mm; }
+  .grid2 table { font-size: 8pt; }
+  section.appendix table { font-size: 7.5pt; }
+  section.appendix th, section.appendix td { padding: 0.06rem 0.3rem; }
+  .positions thead th { white-space: normal; }
+  .positions h4 { font-size: 0.85rem; }
+  th, td { padding: 0.12rem 0.35rem; }
+  dl.keys { grid-template-columns: repeat(4, 1fr); gap: 0.4rem; }
+  .key { padding: 0.3rem 0.5rem; }
+  .key .value { font-size: 1.1rem; }
   a { color: inherit; text-decoration: none; }
   nav.contents { background: none; border: 1px solid var(--rule); }
   thead { display: table-header-group; }

@@ -48,7 +48,17 @@ fn band_cells(html: &str, section: &str, fraction: &str) -> Vec<(f64, String, St
     let end = html[start..]
         .find("</section>")
         .map_or(html.len(), |e| start + e);
-    let sec = &html[start..end];
+    // the section's evidence and its part of the appendix (a1 for m1)
+    let mut sec = html[start..end].to_string();
+    if let Some(a) = html.find(&format!("id=\"a{}\"", &section[1..])) {
+        let rest = &html[a..];
+        let e = [rest.find("<div class=\"part\""), rest.find("</section>")]
+            .into_iter()
+            .flatten()
+            .min()
+            .unwrap_or(rest.len());
+        sec.push_str(&rest[..e]);
+    }
     let open = format!("<table class=\"bands\" data-fraction=\"{fraction}\">");
     let Some(t0) = sec.find(&open) else {
         return Vec::new();
@@ -466,12 +476,20 @@ fn report_of_a_comparison_gives_a_verdict_per_band_and_parameter() {
     ] {
         assert!(html.contains(&format!("plots/{f}.png")));
     }
-    // every band of every parameter: before, after, change, verdict
-    let sec = &html[..html.find("id=\"m2\"").unwrap()];
-    let mut audible = 0;
+    // every octave band of every parameter, and T30 per one-third octave
+    // (the appendix): before, after, change, verdict
+    let sec = html.as_str();
+    let mut audible_edt = (0, 0);
     for b in c["bands"].as_array().unwrap() {
         let p = b["parameter"].as_str().unwrap();
         let f = b["fraction"].as_str().unwrap();
+        if f != "1/1" && p != "t30_s" {
+            assert!(
+                !sec.contains(&format!("data-parameter=\"{p}\" data-fraction=\"{f}\"")),
+                "{p} {f} belongs in comparison.csv, not the report"
+            );
+            continue;
+        }
         let t0 = sec
             .find(&format!("data-parameter=\"{p}\" data-fraction=\"{f}\""))
             .unwrap_or_else(|| panic!("no table for {p} {f}"));
@@ -501,7 +519,9 @@ fn report_of_a_comparison_gives_a_verdict_per_band_and_parameter() {
         ) {
             (None, ..) => "not measured in both",
             (_, Some(true), Some(true)) => {
-                audible += 1;
+                if p == "edt_s" && f == "1/1" {
+                    audible_edt.0 += 1;
+                }
                 "audible change"
             }
             (_, Some(true), Some(false)) => "within measurement uncertainty, though larger",
@@ -513,14 +533,27 @@ fn report_of_a_comparison_gives_a_verdict_per_band_and_parameter() {
             (_, Some(true), None) => "audible change (uncertainty not estimated)",
         };
         assert!(row.contains(verdict), "{p} {f}: {verdict:?} in {row}");
+        if p == "edt_s" && f == "1/1" && b["change"][1].as_f64().is_some() {
+            audible_edt.1 += 1;
+        }
     }
+    // the headline counts octave bands of one quantity, never table cells
+    let (k, n) = audible_edt;
+    assert!(k > 0, "the quiet room should differ audibly somewhere");
+    let counted = if k == n {
+        format!("in all {n} octave bands")
+    } else {
+        format!("in {k} of the {n} octave bands")
+    };
+    let page1 = &html[..html.find("<nav").unwrap()];
     assert!(
-        audible > 0,
-        "the quiet room should differ audibly somewhere"
+        page1.contains("<li>EDT ")
+            && page1.contains(&format!(
+                "beyond the just-noticeable difference and the uncertainty {counted}"
+            )),
+        "no EDT headline counting {counted}"
     );
-    assert!(html.contains(&format!(
-        "<dt>Audible changes</dt><dd><span class=\"value\">{audible}</span>"
-    )));
+    assert!(!html.contains("Audible changes</dt>"), "a count of cells");
     // no absorption without a room volume
     assert!(!html.contains("absorption area"));
 }
@@ -709,4 +742,150 @@ fn report_renders_in_a_headless_browser_to_a_screenshot_and_a_pdf() {
         "{drawn} images in the PDF, {} distinct plots in the page",
         distinct.len()
     );
+}
+
+/// The text of page `page` (1-based) of `pdf` in the order it is drawn
+/// (poppler's pdftotext -raw).
+fn pdf_page_text(pdf: &Path, page: usize) -> String {
+    let p = page.to_string();
+    let o = Command::new("pdftotext")
+        .args(["-raw", "-f", &p, "-l", &p])
+        .arg(pdf)
+        .arg("-")
+        .output()
+        .expect("pdftotext (poppler-utils) runs");
+    assert!(o.status.success(), "pdftotext failed");
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+#[test]
+fn the_demo_report_prints_to_at_most_ten_pages_with_the_answer_on_page_one() {
+    let Some(browser) = chromium() else {
+        assert!(
+            std::env::var_os("GLISS_REQUIRE_CHROMIUM").is_none(),
+            "GLISS_REQUIRE_CHROMIUM is set but no chromium is on PATH"
+        );
+        eprintln!("skipped: no chromium on PATH (apt-get install chromium, as .ci/run does)");
+        return;
+    };
+    let t = tempfile::tempdir().unwrap();
+    let dir = t.path().canonicalize().unwrap();
+    ok(&dir, &["demo", "--out", "story"]);
+    let page = dir.join("story/report.html");
+    let html = std::fs::read_to_string(&page).unwrap();
+    assert_self_contained(&html);
+    assert!(
+        html.len() < 1_500_000,
+        "the demo report is {} bytes",
+        html.len()
+    );
+    let pdf = dir.join("story.pdf");
+    headless(
+        &browser,
+        &dir,
+        &page,
+        &[
+            "--no-pdf-header-footer".into(),
+            format!("--print-to-pdf={}", pdf.display()),
+        ],
+        "story",
+    );
+    let info = Command::new("pdfinfo").arg(&pdf).output().unwrap();
+    let info = String::from_utf8_lossy(&info.stdout);
+    let pages: usize = info
+        .lines()
+        .find_map(|l| l.strip_prefix("Pages:"))
+        .and_then(|v| v.trim().parse().ok())
+        .expect("pdfinfo gives the page count");
+    assert!(
+        (1..=10).contains(&pages),
+        "the demo report prints to {pages} A4 pages"
+    );
+    let texts: Vec<String> = (1..=pages).map(|p| pdf_page_text(&pdf, p)).collect();
+
+    // page 1: the verdict in words and the reverberation figure
+    let one = &texts[0];
+    for want in [
+        "The verdict",
+        "Mid-frequency reverberation time Tmid",
+        "Bass ratio",
+        "T30 fell beyond the just-noticeable difference and the uncertainty in",
+        "Figure 1. Reverberation time T30 per octave band",
+        "octave band (Hz)",
+    ] {
+        assert!(one.contains(want), "page 1 lacks {want:?}:\n{one}");
+    }
+
+    // no numbered table is split: its caption and every row, in order, on
+    // one page
+    let mut tables = 0;
+    for part in html.split("<caption>Table ").skip(1) {
+        let number = &part[..part.find('.').unwrap()];
+        let table = &part[..part.find("</table>").unwrap()];
+        let rows: Vec<&str> = table
+            .split("<th scope=\"row\">")
+            .skip(1)
+            .map(|r| {
+                let r = &r[..r.find(['<']).unwrap()];
+                r.trim()
+            })
+            .collect();
+        let caption = format!("Table {number}. ");
+        let on: Vec<usize> = (0..pages)
+            .filter(|&p| texts[p].contains(&caption))
+            .collect();
+        assert_eq!(on.len(), 1, "{caption} on pages {on:?}");
+        let text = &texts[on[0]];
+        let mut at = text.find(&caption).unwrap();
+        for r in &rows {
+            match text[at..].find(r) {
+                Some(i) => at += i + r.len(),
+                None => panic!(
+                    "{caption}: row {r:?} is not on page {} after the caption: the table is split",
+                    on[0] + 1
+                ),
+            }
+        }
+        tables += 1;
+    }
+    assert!(tables >= 10, "only {tables} numbered tables");
+
+    // plot text: the smallest text of a plot, scaled by its printed size
+    // (pdfimages gives each image's pixels per inch as printed)
+    let list = Command::new("pdfimages")
+        .arg("-list")
+        .arg(&pdf)
+        .output()
+        .unwrap();
+    let list = String::from_utf8_lossy(&list.stdout);
+    let mut images = 0;
+    for line in list.lines().skip(2) {
+        let f: Vec<&str> = line.split_whitespace().collect();
+        let (width, ppi): (u32, f64) = (f[3].parse().unwrap(), f[12].parse().unwrap());
+        assert_eq!(width, 1200, "{line}");
+        let smallest_pt = f64::from(gliss::plot::SMALLEST_TEXT_PX) * 72.0 / ppi;
+        assert!(
+            smallest_pt >= 8.0,
+            "plot text prints at {smallest_pt:.1} pt: {line}"
+        );
+        images += 1;
+    }
+    assert!(images >= 3, "{images} plots printed");
+}
+
+#[test]
+fn report_refuses_an_out_that_is_not_html_and_says_how_to_get_a_pdf() {
+    let t = tempfile::tempdir().unwrap();
+    let dir = t.path();
+    ok(dir, &["demo", "--single", "--out", "room", "--no-plots"]);
+    let o = run(dir, &["report", "room", "--out", "r.pdf"]);
+    assert_eq!(o.status.code(), Some(2), "a usage error");
+    let e = refused(dir, &["report", "room", "--out", "r.pdf"]);
+    assert!(
+        e.contains("not an .html file name") && e.contains("--print-to-pdf"),
+        "{e}"
+    );
+    assert!(!dir.join("r.pdf").exists());
+    let help = ok(dir, &["report", "--help"]);
+    assert!(help.contains("--out must end in .html"), "{help}");
 }

@@ -78,8 +78,11 @@ fn the_demo_gives_one_verdict_in_the_terminal_the_json_the_plot_and_the_report()
         let code = b["verdict"][1].as_str().expect("a stored verdict");
         assert!(b["verdict"][0].is_null(), "the reference has none");
         seen.insert(code.to_string());
-        // the report, every parameter of every band
-        assert_eq!(report_verdict(&html, p, f, hz), code, "{p} {f} {hz} Hz");
+        // the report: every parameter of every octave band, T30 of every
+        // one-third-octave band (the rest is in comparison.csv)
+        if f == "1/1" || (f == "1/3" && p == "t30_s") {
+            assert_eq!(report_verdict(&html, p, f, hz), code, "{p} {f} {hz} Hz");
+        }
         if p != "t30_s" || f != "1/1" {
             continue;
         }
