@@ -889,13 +889,7 @@ mod tests {
         assert!(a.peak_to_noise_db < 18.0, "{}", a.peak_to_noise_db);
         let mut t20s = 0;
         for b in octaves(&a).filter(|b| b.get(Parameter::Inr).is_some()) {
-            for p in [
-                Parameter::Edt,
-                Parameter::C50,
-                Parameter::C80,
-                Parameter::D50,
-                Parameter::Ts,
-            ] {
+            for p in Parameter::FROM_THE_START {
                 assert!(b.get(p).is_none(), "{} Hz {p}: {:?}", b.center_hz, b.get(p));
             }
             let w = b

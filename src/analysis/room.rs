@@ -354,13 +354,7 @@ pub fn withhold_all(room: &mut Room, code: Code, why: &str) {
 /// C50, C80, D50, Ts) of band `r` called `label`, when the direct sound
 /// rose only `rise_db` above the noise ahead of it.
 fn withhold_early(r: &mut BandResult, label: &str, rise_db: f64) {
-    for p in [
-        Parameter::Edt,
-        Parameter::C50,
-        Parameter::C80,
-        Parameter::D50,
-        Parameter::Ts,
-    ] {
+    for p in Parameter::FROM_THE_START {
         r.values[p] = None;
     }
     r.warnings.add(

@@ -181,6 +181,17 @@ impl Parameter {
         Parameter::Inr,
     ];
 
+    /// The parameters that count from the start of the response (the
+    /// direct sound): withheld together when that start cannot be told
+    /// from the noise.
+    pub const FROM_THE_START: [Parameter; 5] = [
+        Parameter::Edt,
+        Parameter::C50,
+        Parameter::C80,
+        Parameter::D50,
+        Parameter::Ts,
+    ];
+
     /// The parameters compared before and after (those with a
     /// just-noticeable difference).
     pub const COMPARED: [Parameter; 7] = [
