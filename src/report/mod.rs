@@ -1008,7 +1008,7 @@ fn comparison_section(
             "<h3>Band by band</h3><p class=\"muted\">The comparison holds no band parameters.</p>",
         );
     } else {
-        out.push_str("<h3>Octave bands</h3><p class=\"muted\">Each change against the reference, judged by gliss compare against the just-noticeable difference (JND) of ISO 3382-1 Annex A and against twice the measurement's own combined uncertainty: \"audible\" means beyond both (or beyond the JND where no uncertainty was estimated, as marked); \"real\" means beyond the uncertainty. The one-third-octave bands and the whole-band values are in the appendix.</p>");
+        out.push_str("<h3>The changes band by band</h3><p class=\"muted\">Each change against the reference, judged by gliss compare against the just-noticeable difference (JND) of ISO 3382-1 Annex A and against twice the measurement's own combined uncertainty: \"audible\" means beyond both (or beyond the JND where no uncertainty was estimated, as marked); \"real\" means beyond the uncertainty. The one-third-octave bands and the whole-band values are in the appendix.</p>");
         comparison::tables(out, c, Fraction::Octave, &mut n.table);
     }
     comparison::absorption(out, c, Fraction::Octave, &mut n.table);
