@@ -23,6 +23,7 @@ pub mod phase;
 pub mod presence;
 pub mod response;
 pub mod room;
+pub mod rt_target;
 pub mod smoothing;
 pub mod spectrogram;
 pub mod sweep_track;
@@ -61,6 +62,9 @@ pub struct AnalysisConfig {
     pub gate: Option<gate::Gate>,
     /// A microphone correction to remove from the response and phase.
     pub mic_correction: Option<correction::Correction>,
+    /// What is measured (recorded in the manifest; the report leads with
+    /// the numbers this use asks for).
+    pub profile: crate::model::Profile,
 }
 
 impl Default for AnalysisConfig {
@@ -71,6 +75,7 @@ impl Default for AnalysisConfig {
             bands: true,
             gate: None,
             mic_correction: None,
+            profile: crate::model::Profile::Room,
         }
     }
 }

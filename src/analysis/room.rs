@@ -106,6 +106,23 @@ impl BandResult {
         self.values.get(p)
     }
 
+    /// The standard uncertainty of `p` in this band: for an average (a
+    /// `spread` of at least two positions) the standard uncertainty of the
+    /// positions' mean, their standard deviation / √n; otherwise ISO
+    /// 3382-2's formula for T20 and T30 measured at `positions` positions
+    /// with one decay each ([`crate::analysis::compare::t_uncertainty`]);
+    /// unknown for the other parameters of one measurement.
+    pub fn standard_uncertainty(&self, p: Parameter, positions: usize) -> Option<f64> {
+        let v = self.get(p)?;
+        if let Some(s) = self.spread.as_ref().and_then(|s| s.get(&p)) {
+            if let (Some(std), true) = (s.std, s.n >= 2) {
+                return Some(std / (s.n as f64).sqrt());
+            }
+        }
+        let bandwidth = self.fraction.uncertainty_bandwidth_hz(self.center_hz)?;
+        crate::analysis::compare::t_uncertainty(p, v, bandwidth, 1, positions)
+    }
+
     /// Whether this is the band of `fraction` at nominal `center_hz`.
     pub fn is(&self, fraction: Fraction, center_hz: f64) -> bool {
         self.fraction == fraction && (self.center_hz - center_hz).abs() <= 1e-6 * center_hz

@@ -90,24 +90,19 @@ impl SweepArgs {
     }
 }
 
-/// What is being measured: it picks the defaults.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
-pub enum Profile {
-    /// A room: the whole response, 1/6-octave smoothing, bands.
-    Room,
-    /// A loudspeaker in a room: gated before the first reflection,
-    /// 1/12-octave smoothing, no bands.
-    Speaker,
-}
+pub use gliss::model::Profile;
 
 /// Analysis and output options of `analyze` and `demo`.
 #[derive(Debug, Clone, ClapArgs)]
 pub struct OutputArgs {
-    /// Defaults for the job: room (no gate, 1/6-octave smoothing, bands
-    /// on) or speaker (auto gate, 1/12-octave smoothing, bands off);
-    /// distortion is on in both. Every option below overrides its default.
-    #[arg(long, value_enum, default_value_t = Profile::Room)]
-    pub profile: Profile,
+    /// What is measured, which picks the defaults: room, speech or music
+    /// (no gate, 1/6-octave smoothing, bands on; speech and music also
+    /// tell the report to lead with D50 or C80) or speaker (auto gate,
+    /// 1/12-octave smoothing, bands off); distortion is on in all. Every
+    /// option below overrides its default. Recorded in the manifest
+    /// [default: room; the demo's rehearsal room: music].
+    #[arg(long, value_enum)]
+    pub profile: Option<Profile>,
     /// Fractional-octave smoothing of the frequency response: 1/1, 1/2,
     /// 1/3, 1/6, 1/12, 1/24, 1/48, or none [default: 1/6, speaker 1/12].
     #[arg(long, value_name = "1/N|none", allow_hyphen_values = true)]
@@ -182,7 +177,7 @@ impl OutputArgs {
                 distortion::MAX_ORDER
             )));
         }
-        let speaker = self.profile == Profile::Speaker;
+        let speaker = self.profile.is_some_and(Profile::is_speaker);
         let smooth = self
             .smooth
             .as_deref()
@@ -200,6 +195,7 @@ impl OutputArgs {
             gate,
             // read by `mic_correction`, once, by the command
             mic_correction: None,
+            profile: self.profile.unwrap_or_default(),
         })
     }
 

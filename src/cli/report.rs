@@ -14,9 +14,11 @@ use gliss::report::{self, Folder, Plot};
     after_help = "The report is one HTML file: its style sheet is inline and every \
 plot is embedded, so it opens in any browser without a network and prints on A4. Page 1 is \
 the answer for the first folder: for a comparison, the question, the verdict in words for \
-Tmid, the bass ratio, C80, D50 and the change of absorption, counts per quantity and octave \
-band, and the reverberation time per octave before and after with error bars; for a \
-measurement, its key numbers, response and decay. Then the evidence (plots with captions, \
+Tmid, the bass ratio, C80 (a room for music), D50 (a room for speech; both for a room in \
+general: the --profile the folders were analysed with) and the change of absorption, counts \
+per quantity and octave band, and the reverberation time per octave before and after with \
+error bars and the --target-rt range; for a measurement, its key numbers, its T30 against \
+the target, response and decay. Then the evidence (plots with captions, \
 octave-band tables), then an appendix (one-third-octave tables, the positions of any average \
 given too, how each folder was made with the SHA-256 of its raw files, checked). The folders \
 are only read, never changed.
@@ -36,6 +38,14 @@ pub struct Args {
     /// Replace --out if it exists.
     #[arg(long)]
     pub overwrite: bool,
+    /// The reverberation time's target: MIN,MAX in seconds for every
+    /// octave band (e.g. 0.3,0.5), or a file with one band a line,
+    /// "centre_hz min_s max_s" (# comments; bands not listed have no
+    /// target). Drawn as a shaded band on page 1's reverberation figure,
+    /// and T30 per octave is judged against it in words (a value nearer
+    /// a limit than twice its uncertainty is named as such).
+    #[arg(long, value_name = "MIN,MAX|FILE", allow_hyphen_values = true)]
+    pub target_rt: Option<String>,
     /// Report a folder even if a raw file no longer matches the SHA-256 its
     /// manifest recorded, with a warning on its page (otherwise refused).
     #[arg(long)]
@@ -76,13 +86,16 @@ pub fn run(a: Args) -> Result<()> {
             ),
         ));
     }
+    let options = report::Options {
+        target_rt: a.target_rt.as_deref().map(target_rt).transpose()?,
+    };
     let folders = a
         .dirs
         .iter()
         .map(|d| read_folder(d, a.show_changed_raw))
         .collect::<Result<Vec<_>>>()?;
     let written = humantime::format_rfc3339_seconds(std::time::SystemTime::now()).to_string();
-    let html = report::render(&folders, &written);
+    let html = report::render(&folders, &written, &options);
     gliss::folder::write::write_replacing(&a.out, html.as_bytes(), a.overwrite)?;
     let plots = html.matches("<img ").count();
     println!(
@@ -94,6 +107,23 @@ pub fn run(a: Args) -> Result<()> {
         html.len().div_ceil(1024)
     );
     Ok(())
+}
+
+/// `--target-rt`: a file when one exists at that path, else MIN,MAX.
+fn target_rt(arg: &str) -> Result<gliss::analysis::rt_target::RtTarget> {
+    use gliss::analysis::rt_target::RtTarget;
+    let path = Path::new(arg);
+    if path.is_file() {
+        let text = fs::read_to_string(path).map_err(|e| Error::io("read", path, &e))?;
+        RtTarget::parse_file(&text).map_err(|e| {
+            Error::new(
+                ErrorKind::InvalidInput,
+                format!("--target-rt {}: {}", path.display(), e.message()),
+            )
+        })
+    } else {
+        RtTarget::parse_range(arg)
+    }
 }
 
 /// Reads one folder for the report through the one folder reader;

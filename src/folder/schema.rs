@@ -355,6 +355,10 @@ pub struct Settings {
     /// --target-absolute: the levels were compared without aligning.
     #[serde(default, skip_serializing_if = "std::ops::Not::not")]
     pub target_absolute: bool,
+    /// --profile: what was measured (absent in folders written before it
+    /// was recorded, and in an average of positions that differ).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub profile: Option<crate::model::Profile>,
 }
 
 /// What a file of a folder is.
@@ -417,6 +421,9 @@ pub struct Comparison {
     /// How a change is judged, in words.
     #[serde(default)]
     pub criteria: Vec<String>,
+    /// What was measured, when every input records the same profile.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub profile: Option<crate::model::Profile>,
     /// Warnings: `warnings` (the sentences) and `warning_codes` beside them.
     #[serde(flatten)]
     pub warnings: Warnings,

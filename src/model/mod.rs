@@ -1,7 +1,7 @@
 //! The vocabulary every layer shares: band parameters with their keys,
 //! units and just-noticeable differences ([`parameter`]), band widths
 //! ([`fraction`]), warnings with their codes ([`warning`]), the plots gliss
-//! draws ([`plot_kind`]) and units and number formats ([`units`]). Each
+//! draws ([`plot_kind`]), what is measured ([`profile`]) and units and number formats ([`units`]). Each
 //! word is defined once here; nothing here draws, reads or writes; the
 //! analysis, the folder, the plots, the report and the command line speak
 //! it and never re-spell it as a string.
@@ -9,10 +9,12 @@
 pub mod fraction;
 pub mod parameter;
 pub mod plot_kind;
+pub mod profile;
 pub mod units;
 pub mod warning;
 
 pub use fraction::Fraction;
 pub use parameter::{Jnd, Parameter};
 pub use plot_kind::PlotKind;
+pub use profile::Profile;
 pub use warning::{Code, Severity, Topic, Warning, Warnings};

@@ -1,6 +1,7 @@
 //! The report's first page: the answer. For a comparison, the question,
 //! the verdict in words for the quantities a client asks about (Tmid, the
-//! bass ratio, C80 and D50, the change of absorption), the headline counts
+//! bass ratio, C80 or D50 as the profile suits, the change of absorption,
+//! T30 against a target range), the headline counts
 //! per quantity and band, and the reverberation time per octave before and
 //! after as an inline SVG figure. The verdicts are the ones comparison.json
 //! stores; this module only reads and words them.
@@ -9,6 +10,7 @@ use std::fmt::Write;
 
 use super::html::{esc, hz, num, signed};
 use crate::analysis::compare::Verdict;
+use crate::analysis::rt_target::{Fit, Judgement, RtTarget};
 use crate::folder::schema::{BandRow, Comparison, InputRecord};
 use crate::model::{Fraction, Parameter};
 
@@ -103,11 +105,38 @@ fn direction(changes: &[f64], down: &str, up: &str) -> String {
     }
 }
 
+/// One compared quantity's audible changes over the octave bands.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Headline {
+    /// The quantity.
+    pub parameter: Parameter,
+    /// Octave bands where it was measured in both.
+    pub measured: usize,
+    /// Of those, where the change is audible (beyond the just-noticeable
+    /// difference and the uncertainty, as stored).
+    pub audible: usize,
+    /// How the audible changes went: "fell", "rose", "fell or rose";
+    /// `None` with no audible change.
+    pub way: Option<String>,
+    /// The measured bands without an audible change, Hz.
+    pub not_at: Vec<f64>,
+}
+
+impl Headline {
+    /// "all 9 octave bands", "6 of the 9 octave bands".
+    pub fn count(&self) -> String {
+        if self.audible == self.measured {
+            format!("all {} octave bands", self.measured)
+        } else {
+            format!("{} of the {} octave bands", self.audible, self.measured)
+        }
+    }
+}
+
 /// The headline counts of input `i` against the reference: per compared
-/// quantity, in how many octave bands its change is audible (beyond the
-/// just-noticeable difference and the uncertainty, as stored), and which
-/// way it went. Never a count of table cells.
-pub fn headlines(c: &Comparison, i: usize) -> Vec<String> {
+/// quantity, in how many octave bands its change is audible and which way
+/// it went. Never a count of table cells.
+pub fn headline_rows(c: &Comparison, i: usize) -> Vec<Headline> {
     let mut out = Vec::new();
     for p in Parameter::COMPARED {
         let rows = octave_rows(c, p);
@@ -118,50 +147,37 @@ pub fn headlines(c: &Comparison, i: usize) -> Vec<String> {
         if measured.is_empty() {
             continue;
         }
-        let audible: Vec<&&&BandRow> = measured
+        let is_audible = |b: &BandRow| {
+            b.changes
+                .verdict
+                .get(i)
+                .copied()
+                .flatten()
+                .is_some_and(Verdict::is_audible)
+        };
+        let changes: Vec<f64> = measured
             .iter()
-            .filter(|b| {
-                b.changes
-                    .verdict
-                    .get(i)
-                    .copied()
-                    .flatten()
-                    .is_some_and(Verdict::is_audible)
-            })
+            .filter(|b| is_audible(b))
+            .filter_map(|b| b.changes.change.get(i).copied().flatten())
             .collect();
-        let n = measured.len();
-        let of = |k: usize| {
-            if k == n {
-                format!("all {n} octave bands")
-            } else {
-                format!("{k} of the {n} octave bands")
-            }
-        };
-        let label = p.label();
-        let line = if audible.is_empty() {
-            format!("{label}: no audible change in any of the {n} octave bands measured in both")
-        } else {
-            let changes: Vec<f64> = audible
+        out.push(Headline {
+            parameter: p,
+            measured: measured.len(),
+            audible: changes.len(),
+            way: (!changes.is_empty()).then(|| direction(&changes, "fell", "rose")),
+            not_at: measured
                 .iter()
-                .filter_map(|b| b.changes.change.get(i).copied().flatten())
-                .collect();
-            let way = direction(&changes, "fell", "rose");
-            let mut s = format!(
-                "{label} {way} beyond the just-noticeable difference and the uncertainty in {}",
-                of(audible.len())
-            );
-            if audible.len() < n {
-                let rest: Vec<String> = measured
-                    .iter()
-                    .filter(|b| !audible.iter().any(|a| std::ptr::eq(***a, ***b)))
-                    .map(|b| hz(b.center_hz))
-                    .collect();
-                let _ = write!(s, " (not at {})", rest.join(", "));
-            }
-            s
-        };
-        out.push(line);
+                .filter(|b| !is_audible(b))
+                .map(|b| b.center_hz)
+                .collect(),
+        });
     }
+    out
+}
+
+/// The compared quantities not measured in both in some octave band, or
+/// `None` when every one was.
+pub fn not_compared(c: &Comparison, i: usize) -> Option<String> {
     let missing = c
         .bands
         .iter()
@@ -169,22 +185,107 @@ pub fn headlines(c: &Comparison, i: usize) -> Vec<String> {
         .filter(|b| b.changes.change.get(i).copied().flatten().is_none())
         .map(|b| b.parameter)
         .collect::<std::collections::BTreeSet<_>>();
-    if !missing.is_empty() {
-        out.push(format!(
+    (!missing.is_empty()).then(|| {
+        format!(
             "Not compared in some octave bands (not measured in both): {}",
             missing
                 .iter()
                 .map(|p| p.label())
                 .collect::<Vec<_>>()
                 .join(", ")
-        ));
-    }
+        )
+    })
+}
+
+/// The headline counts of input `i` in sentences ([`headline_rows`]), with
+/// the quantities not compared everywhere last.
+pub fn headlines(c: &Comparison, i: usize) -> Vec<String> {
+    let mut out: Vec<String> = headline_rows(c, i)
+        .iter()
+        .map(|h| {
+            let label = h.parameter.label();
+            match &h.way {
+                None => format!(
+                    "{label}: no audible change in any of the {} octave bands measured in both",
+                    h.measured
+                ),
+                Some(way) => {
+                    let mut s = format!(
+                        "{label} {way} beyond the just-noticeable difference and the uncertainty in {}",
+                        h.count()
+                    );
+                    if !h.not_at.is_empty() {
+                        let rest: Vec<String> = h.not_at.iter().map(|f| hz(*f)).collect();
+                        let _ = write!(s, " (not at {})", rest.join(", "));
+                    }
+                    s
+                }
+            }
+        })
+        .collect();
+    out.extend(not_compared(c, i));
     out
+}
+
+/// T30 of input `i` per octave band judged against the target.
+pub fn target_judgements(c: &Comparison, target: &RtTarget, i: usize) -> Vec<Judgement> {
+    octave_rows(c, Parameter::T30)
+        .into_iter()
+        .filter_map(|b| target.judge(b.center_hz, value(b, i)?, uncertainty(b, i)))
+        .collect()
+}
+
+/// One sentence on how `judged` sits against the target, for `who`
+/// ("before treatment: "), or `None` when no band was judged.
+pub fn target_sentence(who: &str, target: &RtTarget, judged: &[Judgement]) -> Option<String> {
+    if judged.is_empty() {
+        return None;
+    }
+    let n = judged.len();
+    let at = |fit: Fit| -> Vec<String> {
+        judged
+            .iter()
+            .filter(|j| j.fit == fit)
+            .map(|j| hz(j.center_hz))
+            .collect()
+    };
+    let within = at(Fit::Within).len();
+    let mut s = format!(
+        "Against the target ({}), {who}T30 is within the target in {}",
+        target.describe(),
+        if within == n {
+            format!("all {n} octave bands with a target")
+        } else {
+            format!("{within} of the {n} octave bands with a target")
+        }
+    );
+    for (fit, word) in [(Fit::Above, "above"), (Fit::Below, "below")] {
+        let bands = at(fit);
+        if !bands.is_empty() {
+            let _ = write!(s, "; {word} it at {}", bands.join(", "));
+        }
+    }
+    let marginal: Vec<String> = judged
+        .iter()
+        .filter(|j| j.marginal)
+        .map(|j| hz(j.center_hz))
+        .collect();
+    s.push('.');
+    if !marginal.is_empty() {
+        let _ = write!(
+            s,
+            " Within twice the uncertainty of a limit, so on either side of it: {}.",
+            marginal.join(", ")
+        );
+    }
+    Some(s)
 }
 
 /// "0.58 s" with its uncertainty when known.
 fn seconds_pm(v: f64, u: Option<f64>) -> String {
     match u {
+        // a small uncertainty keeps a significant digit: ± 0.004 s, not ± 0.00 s
+        Some(u) if u < 0.005 => format!("{} ± {} s", num(v, 3), num(u, 3)),
         Some(u) => format!("{} ± {} s", num(v, 2), num(u, 2)),
         None => format!("{} s", num(v, 2)),
     }
@@ -228,7 +329,12 @@ pub fn verdict_sentences(c: &Comparison, i: usize) -> Vec<String> {
             }
         ));
     }
-    for (p, unit, dec) in [(Parameter::C80, " dB", 1), (Parameter::D50, "", 2)] {
+    for &p in c.profile.unwrap_or_default().clarity_parameters() {
+        let (unit, dec) = if p == Parameter::C80 {
+            (" dB", 1)
+        } else {
+            ("", 2)
+        };
         if let (Some((v0, _)), Some((v1, _))) = (band_mean(c, p, &mid, 0), band_mean(c, p, &mid, i))
         {
             let scale = p.info().display_scale;
@@ -297,7 +403,7 @@ pub fn verdict_sentences(c: &Comparison, i: usize) -> Vec<String> {
 /// SVG: points joined by lines, error bars of ± twice each value's stored
 /// standard uncertainty, the audible changes ringed. Text is sized for
 /// 9 pt when printed 170 mm wide.
-pub fn reverberation_svg(c: &Comparison) -> Option<String> {
+pub fn reverberation_svg(c: &Comparison, target: Option<&RtTarget>) -> Option<String> {
     let rows = octave_rows(c, Parameter::T30);
     if rows.is_empty() || c.inputs.is_empty() {
         return None;
@@ -316,6 +422,13 @@ pub fn reverberation_svg(c: &Comparison) -> Option<String> {
     }
     if top_value <= 0.0 {
         return None;
+    }
+    let limits: Vec<Option<(f64, f64)>> = rows
+        .iter()
+        .map(|b| target.and_then(|t| t.limits_at(b.center_hz)))
+        .collect();
+    for (_, hi) in limits.iter().flatten() {
+        top_value = top_value.max(*hi);
     }
     let step = nice_step(top_value / 5.0);
     let y_max = (top_value / step).ceil() * step;
@@ -361,6 +474,32 @@ pub fn reverberation_svg(c: &Comparison) -> Option<String> {
         left + pw / 2.0,
         h - 6.0
     );
+    // the target range: a green band over the octave columns, one
+    // rectangle per run of columns with the same limits, under the data
+    let band_w = pw / n as f64;
+    let mut k = 0;
+    while k < n {
+        let Some((lo, hi)) = limits[k] else {
+            k += 1;
+            continue;
+        };
+        let run = limits[k..]
+            .iter()
+            .take_while(|l| **l == Some((lo, hi)))
+            .count();
+        {
+            let (lo, hi) = (&lo, &hi);
+            let band_w = band_w * run as f64;
+            let _ = write!(
+                s,
+                "<rect class=\"target\" x=\"{:.1}\" y=\"{:.1}\" width=\"{band_w:.1}\" height=\"{:.1}\" fill=\"#2e8b57\" fill-opacity=\"0.14\" stroke=\"#2e8b57\" stroke-opacity=\"0.5\" stroke-dasharray=\"4 3\"/>",
+                left + pw / n as f64 * k as f64,
+                y_of(*hi),
+                (y_of(*lo) - y_of(*hi)).max(0.5)
+            );
+        }
+        k += run;
+    }
     let colours = ["#16568c", "#c46218", "#2e8b57", "#784fa0", "#b22234"];
     let ni = c.inputs.len();
     for i in 0..ni {
@@ -434,6 +573,7 @@ pub fn reverberation_svg(c: &Comparison) -> Option<String> {
             esc(&clip(c.inputs[i].name(), 16))
         );
     }
+    let mut extra = 0.0;
     if ni > 1 {
         let ly = top + 14.0 + 20.0 * ni as f64;
         let lx = left + pw + 14.0;
@@ -441,6 +581,18 @@ pub fn reverberation_svg(c: &Comparison) -> Option<String> {
             s,
             "<circle cx=\"{:.1}\" cy=\"{ly:.1}\" r=\"7\" fill=\"none\" stroke=\"#222222\" stroke-width=\"1.2\"/><text x=\"{:.1}\" y=\"{:.1}\">audible</text>",
             lx + 9.0,
+            lx + 24.0,
+            ly + 4.5
+        );
+        extra = 20.0;
+    }
+    if limits.iter().any(Option::is_some) {
+        let ly = top + 14.0 + 20.0 * ni as f64 + extra;
+        let lx = left + pw + 14.0;
+        let _ = write!(
+            s,
+            "<rect x=\"{lx:.1}\" y=\"{:.1}\" width=\"18\" height=\"12\" fill=\"#2e8b57\" fill-opacity=\"0.14\" stroke=\"#2e8b57\" stroke-opacity=\"0.5\" stroke-dasharray=\"4 3\"/><text x=\"{:.1}\" y=\"{:.1}\">target</text>",
+            ly - 6.0,
             lx + 24.0,
             ly + 4.5
         );
@@ -525,6 +677,7 @@ mod tests {
             speed_of_sound_m_s: None,
             target: None,
             criteria: Vec::new(),
+            profile: None,
             warnings: Default::default(),
         }
     }
@@ -575,9 +728,34 @@ mod tests {
             row(500.0, Parameter::T30, 0.6, 0.3, 0.01),
             row(1000.0, Parameter::T30, 0.5, 0.49, 0.01),
         ]);
-        let svg = reverberation_svg(&c).unwrap();
+        let svg = reverberation_svg(&c, None).unwrap();
         assert_eq!(svg.matches("<circle").count(), 2 + 1 + 1, "{svg}");
         assert_eq!(svg.matches("width=\"9\"").count(), 2);
         assert!(svg.contains(">1k</text>") && svg.contains(">500</text>"));
+    }
+
+    #[test]
+    fn the_figure_shades_the_target_range_and_the_words_judge_each_band() {
+        let c = comparison(vec![
+            row(250.0, Parameter::T30, 0.8, 0.55, 0.01),
+            row(500.0, Parameter::T30, 0.6, 0.45, 0.01),
+            row(1000.0, Parameter::T30, 0.5, 0.285, 0.01),
+        ]);
+        let flat = RtTarget::parse_range("0.3,0.5").unwrap();
+        let svg = reverberation_svg(&c, Some(&flat)).unwrap();
+        // one rectangle over every column: the limits are the same
+        assert_eq!(svg.matches("class=\"target\"").count(), 1, "{svg}");
+        assert!(svg.contains(">target</text>"));
+        let judged = target_judgements(&c, &flat, 1);
+        let s = target_sentence("after: ", &flat, &judged).unwrap();
+        assert_eq!(
+            s,
+            "Against the target (0.30–0.50 s in every band), after: T30 is within the target in 1 of the 3 octave bands with a target; above it at 250 Hz; below it at 1 kHz. Within twice the uncertainty of a limit, so on either side of it: 1 kHz."
+        );
+        // per band: only the listed bands are shaded and judged
+        let bands = RtTarget::parse_file("500 0.4 0.6\n1000 0.3 0.5\n").unwrap();
+        let svg = reverberation_svg(&c, Some(&bands)).unwrap();
+        assert_eq!(svg.matches("class=\"target\"").count(), 2, "{svg}");
+        assert_eq!(target_judgements(&c, &bands, 0).len(), 2);
     }
 }

@@ -275,6 +275,7 @@ mod tests {
             speed_of_sound_m_s: None,
             target: None,
             criteria: Vec::new(),
+            profile: None,
             warnings: Default::default(),
         };
         let mut s = String::new();

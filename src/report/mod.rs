@@ -15,6 +15,7 @@ use std::fmt::Write;
 use base64::Engine;
 
 use crate::analysis::room::BandResult;
+use crate::analysis::rt_target::RtTarget;
 use crate::folder::schema::{Comparison, ComparisonManifest, FileRole, Manifest, Results};
 use crate::model::plot_kind::{CaptionFacts, PlotKind};
 use crate::model::{Code, Fraction, Parameter, Warning};
@@ -30,6 +31,14 @@ pub struct Plot {
 }
 
 pub use crate::folder::{Content, FileCheck, FileState};
+
+/// What the report is asked for beyond its folders.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Options {
+    /// The reverberation time's target range (`--target-rt`): drawn on
+    /// page 1's figure and judged in words per octave band.
+    pub target_rt: Option<RtTarget>,
+}
 
 /// One folder of the report, read.
 #[derive(Debug, Clone)]
@@ -109,7 +118,7 @@ fn is_compared(folders: &[Folder], name: &str) -> bool {
 /// octave-band tables. The appendix holds the one-third-octave tables, the
 /// positions of any average in the report (tables only) and the method and
 /// provenance of every folder.
-pub fn render(folders: &[Folder], written_utc: &str) -> String {
+pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> String {
     let mut out = String::with_capacity(1 << 20);
     let title = match folders {
         [one] => format!("Measurement report: {}", one.name),
@@ -140,7 +149,14 @@ pub fn render(folders: &[Folder], written_utc: &str) -> String {
             Content::Comparison {
                 manifest,
                 comparison,
-            } => comparison_answer(&mut out, lead, manifest, comparison, &mut counters),
+            } => comparison_answer(
+                &mut out,
+                lead,
+                manifest,
+                comparison,
+                options.target_rt.as_ref(),
+                &mut counters,
+            ),
             Content::Measurement { manifest, results } => {
                 let _ = write!(
                     out,
@@ -149,6 +165,9 @@ pub fn render(folders: &[Folder], written_utc: &str) -> String {
                     esc(&manifest.source.description)
                 );
                 key_numbers(&mut out, lead, manifest, results);
+                if let Some(t) = &options.target_rt {
+                    out.push_str(&measurement_target(t, results));
+                }
                 for p in lead_plots(lead, results) {
                     figure(&mut out, p, &caption(p, manifest, results), &mut counters);
                 }
@@ -365,6 +384,7 @@ fn comparison_answer(
     f: &Folder,
     manifest: &ComparisonManifest,
     c: &Comparison,
+    target: Option<&RtTarget>,
     n: &mut Counters,
 ) {
     let names: Vec<&str> = c.inputs.iter().map(|i| i.name()).collect();
@@ -388,20 +408,75 @@ fn comparison_answer(
         for s in answer::verdict_sentences(c, i) {
             let _ = write!(out, "<li>{}</li>", esc(&s));
         }
-        out.push_str("</ul><h4>Per quantity, in the octave bands</h4><ul class=\"counts\">");
-        for s in answer::headlines(c, i) {
-            let _ = write!(out, "<li>{}</li>", esc(&s));
+        if let Some(t) = target {
+            for k in [0, i] {
+                if k == 0 && i > 1 {
+                    continue; // the reference is judged once, with the first
+                }
+                let who = format!("{}: ", names[k]);
+                if let Some(s) =
+                    answer::target_sentence(&who, t, &answer::target_judgements(c, t, k))
+                {
+                    let _ = write!(out, "<li>{}</li>", esc(&s));
+                }
+            }
         }
         out.push_str("</ul></div>");
     }
-    if let Some(svg) = answer::reverberation_svg(c) {
+    if let Some(svg) = answer::reverberation_svg(c, target) {
         n.figure += 1;
         let _ = write!(
             out,
-            "<figure class=\"svg\">{svg}<figcaption><span class=\"fig\">Figure {}.</span> Reverberation time T30 per octave band, {}. Bars: ± twice each value's standard uncertainty (for an average, from the spread over its positions: their standard deviation / √n); a ring marks an audible change (beyond the just-noticeable difference and the uncertainty).</figcaption></figure>",
+            "<figure class=\"svg\">{svg}<figcaption><span class=\"fig\">Figure {}.</span> Reverberation time T30 per octave band, {}. Bars: ± twice each value's standard uncertainty (for an average, from the spread over its positions: their standard deviation / √n); a ring marks an audible change (beyond the just-noticeable difference and the uncertainty){}.</figcaption></figure>",
             n.figure,
-            esc(&names.join(" and "))
+            esc(&names.join(" and ")),
+            target
+                .map(|t| format!(
+                    "; the shaded band is the target range, {}",
+                    esc(&t.describe())
+                ))
+                .unwrap_or_default()
         );
+    }
+    // the counts per quantity after the figure, one row each, so page 1
+    // holds the verdict, the figure and the counts
+    for i in 1..c.inputs.len() {
+        let _ = write!(
+            out,
+            "<table class=\"counts\"><caption>Audible changes per quantity over the octave bands{}: beyond the just-noticeable difference and twice the uncertainty</caption><thead><tr><th scope=\"col\">Quantity</th><th scope=\"col\">Audible change in</th><th scope=\"col\">Way</th><th scope=\"col\">No audible change at</th></tr></thead><tbody>",
+            if c.inputs.len() > 2 {
+                format!(", {} against {}", esc(names[i]), esc(names[0]))
+            } else {
+                String::new()
+            }
+        );
+        for h in answer::headline_rows(c, i) {
+            let _ = write!(
+                out,
+                "<tr><th scope=\"row\">{}</th><td>{}</td><td>{}</td><td>{}</td></tr>",
+                esc(h.parameter.label()),
+                if h.audible == 0 {
+                    format!("none of the {} octave bands", h.measured)
+                } else {
+                    h.count()
+                },
+                h.way.as_deref().unwrap_or("—"),
+                if h.not_at.is_empty() {
+                    "—".to_string()
+                } else {
+                    esc(&h
+                        .not_at
+                        .iter()
+                        .map(|f| hz(*f))
+                        .collect::<Vec<_>>()
+                        .join(", "))
+                }
+            );
+        }
+        out.push_str("</tbody></table>");
+        if let Some(s) = answer::not_compared(c, i) {
+            let _ = write!(out, "<p class=\"muted\">{}</p>", esc(&s));
+        }
     }
     if !c.warnings.is_empty() {
         let _ = write!(
@@ -452,6 +527,35 @@ fn tmid(r: &Results) -> Option<f64> {
             .and_then(|b| b.get(Parameter::T30))
     };
     Some((at(500.0)? + at(1000.0)?) / 2.0)
+}
+
+/// A measurement's T30 per octave judged against the target, as a
+/// paragraph (empty when it has no octave T30 where the target has limits).
+fn measurement_target(t: &RtTarget, r: &Results) -> String {
+    let positions = r.average.as_ref().map_or(1, |a| a.positions);
+    let judged: Vec<_> = r
+        .bands
+        .iter()
+        .filter(|b| b.fraction == Fraction::Octave)
+        .filter_map(|b| {
+            let v = b.get(Parameter::T30)?;
+            t.judge(
+                b.center_hz,
+                v,
+                b.standard_uncertainty(Parameter::T30, positions),
+            )
+        })
+        .collect();
+    match answer::target_sentence("", t, &judged) {
+        Some(s) => format!("<p class=\"verdict\">{}</p>", esc(&s)),
+        None => format!(
+            "<p class=\"todo\">{}</p>",
+            esc(&format!(
+                "The target ({}) could not be judged: this folder has no octave-band T30 where the target gives limits.",
+                t.describe()
+            ))
+        ),
+    }
 }
 
 /// A measurement's or an average's key numbers. An average shows no delay
@@ -515,7 +619,11 @@ fn key_numbers(out: &mut String, f: &Folder, m: &Manifest, r: &Results) {
             hz(m.sweep.params.start_hz),
             hz(m.sweep.params.end_hz)
         );
-        for p in [Parameter::T30, Parameter::Edt, Parameter::C80] {
+        let profile = m.settings.profile.unwrap_or_default();
+        let leading = [Parameter::T30, Parameter::Edt]
+            .into_iter()
+            .chain(profile.clarity_parameters().iter().copied());
+        for p in leading {
             let label = p.label();
             match b.get(p) {
                 Some(v) => key(out, label, &p.show_with_unit(v), &band),
@@ -1129,6 +1237,9 @@ table.facts th { width: 12rem; color: var(--muted); font-weight: 400; }
 table.files td.hash { font-size: 0.78rem; word-break: break-all; }
 td.ok { color: var(--good); } td.bad { color: var(--bad); font-weight: 600; }
 td.verdict { font-size: 0.85rem; }
+table.counts { font-size: 0.8rem; margin: 0.3rem 0 0.6rem; }
+table.counts caption { font-size: 0.8rem; }
+table.counts th, table.counts td { padding: 0.1rem 0.4rem; }
 td.verdict.audible { color: var(--bad); font-weight: 600; }
 td.verdict.unsure, td.verdict.small { color: var(--warn); }
 td.verdict.none, td.verdict.na { color: var(--muted); }

@@ -18,7 +18,7 @@ use crate::folder::schema::{
 };
 use crate::folder::{self, MeasurementFolder};
 use crate::model::plot_kind::PLOTS_BUILT;
-use crate::model::{Code, Fraction, Parameter, Warnings};
+use crate::model::{Code, Fraction, Parameter, Profile, Warnings};
 #[cfg(feature = "plots")]
 use crate::plot;
 use crate::session::{bands_table_csv, response_csv, to_json};
@@ -487,6 +487,7 @@ fn write_average(
             target: None,
             target_range_hz: None,
             target_absolute: false,
+            profile: Profile::common(inputs.iter().map(|i| i.manifest.settings.profile)),
         },
         files,
         measurement: None,
@@ -610,6 +611,7 @@ pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
             "response.alignment: each curve moved by the mean of its dB difference from the reference over the band (equal weight per grid point, i.e. per fraction of an octave) before the differences were taken; band parameters are not affected".to_string()
         }))
         .collect(),
+        profile: Profile::common(inputs.iter().map(|i| i.manifest.settings.profile)),
         warnings: warnings.clone(),
     };
     write_comparison(job, &folder, &inputs, &comparison)
@@ -769,14 +771,7 @@ impl Input {
     /// for an average (the standard uncertainty of their mean), ISO
     /// 3382-2's formula for T20 and T30 of one measurement, else unknown.
     fn uncertainty(&self, band: &BandResult, p: Parameter) -> Option<f64> {
-        let v = band.get(p)?;
-        if let Some(s) = band.spread.as_ref().and_then(|s| s.get(&p)) {
-            if let (Some(std), true) = (s.std, s.n >= 2) {
-                return Some(std / (s.n as f64).sqrt());
-            }
-        }
-        let bandwidth = band.fraction.uncertainty_bandwidth_hz(band.center_hz)?;
-        calc::t_uncertainty(p, v, bandwidth, 1, self.positions())
+        band.standard_uncertainty(p, self.positions())
     }
 }
 

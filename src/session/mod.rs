@@ -893,6 +893,7 @@ pub fn settings_record(
         target: target.map(|t| t.file.clone()),
         target_range_hz: target.and_then(|t| t.range.map(|r| [r.0, r.1])),
         target_absolute: target.is_some_and(|t| t.absolute),
+        profile: Some(config.profile),
     }
 }
 
