@@ -30,6 +30,7 @@ pub fn main() -> gliss::Result<()> {
     let job = MeasureJob {
         out: dir.path().join("virtual"),
         plots: false,
+        phase_view: Default::default(),
         channel: 0,
         reference: None,
         output_channels: vec![0],

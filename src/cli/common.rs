@@ -91,6 +91,7 @@ impl SweepArgs {
 }
 
 pub use gliss::model::Profile;
+use gliss::model::plot_kind::PhaseView;
 
 /// Analysis and output options of `analyze` and `demo`.
 #[derive(Debug, Clone, ClapArgs)]
@@ -161,6 +162,12 @@ pub struct OutputArgs {
     /// Skip the PNG plots (faster for batch runs).
     #[arg(long)]
     pub no_plots: bool,
+    /// How plots/phase.png shows the phase: wrapped into -180..180 degrees
+    /// (every turn on one scale) or unwrapped (the accumulated phase, on a
+    /// scale that fits it: shows how much phase a crossover or a delay
+    /// adds). results.json always holds both.
+    #[arg(long, value_enum, value_name = "wrapped|unwrapped", default_value_t = PhaseView::Wrapped)]
+    pub phase_plot: PhaseView,
     /// Replace the derived files of an existing measurement folder made
     /// from the same raw files; raw recordings are always kept.
     #[arg(long)]

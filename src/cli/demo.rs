@@ -161,6 +161,7 @@ fn measure_one(
         out: out.to_path_buf(),
         overwrite: a.output.overwrite,
         plots,
+        phase_view: a.output.phase_plot,
         recording: decode(&recording_bytes)?,
         recording_bytes,
         channel: 0,

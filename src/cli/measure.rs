@@ -304,6 +304,7 @@ pub fn run(a: Args) -> Result<()> {
     let job = MeasureJob {
         out: a.out.clone(),
         plots: !a.output.no_plots,
+        phase_view: a.output.phase_plot,
         channel,
         reference,
         output_channels: outputs,

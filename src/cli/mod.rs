@@ -72,14 +72,46 @@ fn wants_plots(command: &Command) -> bool {
     }
 }
 
+/// A usage error as clap renders it (an `error:` line, then usage, tips
+/// and possible values on lines of their own) folded into the one
+/// `error:` line every refusal gets: the error, the possible values or
+/// the tip in brackets, and where to read more.
+fn usage_error_line(rendered: &str) -> String {
+    let mut lines = rendered.lines().map(str::trim).filter(|l| !l.is_empty());
+    let first = lines
+        .next()
+        .unwrap_or("error: the command line is not valid");
+    let mut out = if first.starts_with("error:") {
+        first.to_string()
+    } else {
+        format!("error: {first}")
+    };
+    for l in lines {
+        if let Some(v) = l
+            .strip_prefix("[possible values:")
+            .and_then(|v| v.strip_suffix(']'))
+        {
+            out.push_str(&format!(" (possible values:{v})"));
+        } else if let Some(t) = l.strip_prefix("tip:") {
+            out.push_str(&format!(" (tip:{t})"));
+        }
+    }
+    out.push_str("; see gliss --help, or gliss COMMAND --help");
+    out
+}
+
 /// Parses the command line, runs the command, prints any error once.
 pub fn main() -> ExitCode {
     let cli = match Cli::try_parse() {
         Ok(c) => c,
+        Err(e) if e.use_stderr() => {
+            eprintln!("{}", usage_error_line(&e.render().to_string()));
+            return ExitCode::from(EXIT_USAGE);
+        }
         Err(e) => {
-            let code = if e.use_stderr() { EXIT_USAGE } else { 0 };
+            // --help, --version
             let _ = e.print();
-            return ExitCode::from(code);
+            return ExitCode::SUCCESS;
         }
     };
     let unplotted = wants_plots(&cli.command) && !gliss::model::plot_kind::PLOTS_BUILT;
@@ -110,5 +142,29 @@ pub fn main() -> ExitCode {
             };
             ExitCode::from(code)
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_usage_error_is_one_error_line_with_its_possible_values() {
+        let e = Cli::try_parse_from(["gliss", "demo", "--phase-plot", "rolled"]).unwrap_err();
+        let line = usage_error_line(&e.render().to_string());
+        assert_eq!(line.lines().count(), 1, "{line}");
+        assert!(line.starts_with("error: invalid value 'rolled'"), "{line}");
+        assert!(
+            line.contains("possible values: wrapped, unwrapped"),
+            "{line}"
+        );
+        let e = Cli::try_parse_from(["gliss", "analyse"]).unwrap_err();
+        let line = usage_error_line(&e.render().to_string());
+        assert_eq!(line.lines().count(), 1, "{line}");
+        assert!(
+            line.contains("analyze"),
+            "the tip names the command meant: {line}"
+        );
     }
 }

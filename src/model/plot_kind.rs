@@ -235,6 +235,18 @@ fn ordinal(n: u32) -> String {
     }
 }
 
+/// How the phase plot shows the phase.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
+#[cfg_attr(feature = "cli", derive(clap::ValueEnum))]
+#[serde(rename_all = "lowercase")]
+pub enum PhaseView {
+    /// Wrapped into −180…180° (the default): every turn on one scale.
+    #[default]
+    Wrapped,
+    /// Unwrapped: the accumulated phase, on a scale that fits it.
+    Unwrapped,
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

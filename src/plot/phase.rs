@@ -7,15 +7,7 @@ use super::axes::{Clip, draw_log_panel, wrap_phase};
 use super::theme::{BLUE, ORANGE, canvas, plot_error};
 use crate::error::Result;
 
-/// How the phase plot shows the phase.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-pub enum PhaseView {
-    /// Wrapped into −180…180° (the default): every turn on one scale.
-    #[default]
-    Wrapped,
-    /// Unwrapped: the accumulated phase, on a scale that fits it.
-    Unwrapped,
-}
+pub use crate::model::plot_kind::PhaseView;
 
 /// Draws the measured phase (delay removed) against the minimum phase its
 /// magnitude implies, wrapped into −180…180° or unwrapped as `view` asks.

@@ -136,6 +136,8 @@ pub struct MeasureJob {
     pub out: PathBuf,
     /// Draw PNG plots.
     pub plots: bool,
+    /// How the phase plot shows the phase (`--phase-plot`).
+    pub phase_view: crate::model::plot_kind::PhaseView,
     /// The microphone input, 0-based.
     pub channel: usize,
     /// The loopback reference input, 0-based.
@@ -763,6 +765,7 @@ fn analysis_job(
         out: m.out.clone(),
         overwrite: false,
         plots: m.plots,
+        phase_view: m.phase_view,
         recording_bytes,
         recording: WavData {
             sample_rate_hz: m.design.params.sample_rate_hz,
@@ -854,6 +857,7 @@ mod tests {
         MeasureJob {
             out: out.to_path_buf(),
             plots: true,
+            phase_view: Default::default(),
             channel: 1,
             reference: Some(0),
             output_channels: vec![0, 2],

@@ -33,6 +33,8 @@ pub struct Job {
     pub overwrite: bool,
     /// Draw PNG plots.
     pub plots: bool,
+    /// How the phase plot shows the phase (`--phase-plot`).
+    pub phase_view: crate::model::plot_kind::PhaseView,
     /// The recording file's bytes, kept unchanged as recording.wav.
     pub recording_bytes: Vec<u8>,
     /// The decoded recording.
@@ -662,7 +664,7 @@ fn draw_plots(
         title: &job.title,
         analysis: a,
         target: overlay.as_ref(),
-        phase_view: plot::PhaseView::default(),
+        phase_view: job.phase_view,
     };
     let mut files = Vec::new();
     for kind in input.kinds() {

@@ -313,6 +313,43 @@ fn the_speaker_profile_picks_its_defaults_and_each_can_be_overridden() {
     assert!(r["response"]["gate"].is_null());
     assert_eq!(r["response"]["smoothing"], "1/3");
     assert!(!r["bands"].as_array().unwrap().is_empty());
+    let m = json(&t.path().join("o/manifest.json"));
+    assert_eq!(m["settings"]["profile"], "speaker");
+}
+
+/// The gliss marks (tEXt "gliss-marks") of a PNG, read with the png crate.
+fn png_marks(path: &std::path::Path) -> String {
+    let d = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(path).unwrap()));
+    let r = d.read_info().unwrap();
+    r.info()
+        .uncompressed_latin1_text
+        .iter()
+        .filter(|t| t.keyword == "gliss-marks")
+        .map(|t| t.text.clone())
+        .collect()
+}
+
+#[test]
+fn the_phase_plot_is_wrapped_unless_the_unwrapped_phase_is_asked_for() {
+    let t = tempfile::tempdir().unwrap();
+    for (out, extra) in [("w", None), ("u", Some("unwrapped"))] {
+        let mut args = vec![
+            "demo", "--single", "--out", out, "--length", "1", "--tail", "0.5",
+        ];
+        if let Some(v) = extra {
+            args.extend(["--phase-plot", v]);
+        }
+        ok(t.path(), &args);
+    }
+    let w = png_marks(&t.path().join("w/plots/phase.png"));
+    let u = png_marks(&t.path().join("u/plots/phase.png"));
+    assert!(w.contains("phase view: wrapped"), "{w}");
+    assert!(u.contains("phase view: unwrapped"), "{u}");
+    let e = refused(
+        t.path(),
+        &["demo", "--single", "--out", "x", "--phase-plot", "rolled"],
+    );
+    assert!(e.contains("rolled"), "{e}");
 }
 
 #[test]

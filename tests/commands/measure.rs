@@ -244,6 +244,7 @@ fn job(out: &Path) -> MeasureJob {
     MeasureJob {
         out: out.to_path_buf(),
         plots: false,
+        phase_view: Default::default(),
         channel: 0,
         reference: None,
         output_channels: vec![0],
