@@ -22,7 +22,7 @@ pub fn spectrogram_png(
 ) -> Result<()> {
     let (root, body) = canvas(path, &format!("Spectrogram of the decay — {title}"))?;
     // the note on how it was made goes in a strip below, off the data
-    let (body, note_strip) = body.split_vertically(body.dim_in_pixel().1 - 30);
+    let (body, note_strip) = body.split_vertically(body.dim_in_pixel().1 - 32);
     let (main, bar) = body.split_horizontally(body.dim_in_pixel().0 - 150);
     let f1 = s.frequency_hz.first().copied().unwrap_or(20.0);
     let f2 = s
@@ -88,13 +88,19 @@ pub fn spectrogram_png(
                 format!("{ms:.1} ms")
             }
         };
+        let w = |i: usize| s.window_s.get(i).copied().unwrap_or(0.0) * 1e3;
+        let top = s.window_s.len().saturating_sub(1);
         let note = format!(
-            "Hann windows of {}, step {}, 1/48-octave rows{}",
-            short(s.window_s * 1e3),
+            "{:.0}-period Hann windows: {} at {}, {} at {}; step {}{}",
+            s.cycles,
+            short(w(0)),
+            crate::model::units::hz(f1),
+            short(w(top)),
+            crate::model::units::hz(s.frequency_hz.last().copied().unwrap_or(f2)),
             short(s.hop_s * 1e3),
             match s.noise_s {
-                Some(n) => format!("; ends where the decay meets the noise ({})", seconds(n)),
-                None => "; runs to the end of the response".to_string(),
+                Some(n) => format!("; to the noise at {}", seconds(n)),
+                None => "; to the end".to_string(),
             }
         );
         let (xr, yr) = chart.plotting_area().get_pixel_range();
@@ -108,7 +114,11 @@ pub fn spectrogram_png(
             "note",
             format!("{},{},{},{}", nx + xr.start, ny, nx + xr.end, ny + h),
         );
-        note_strip.draw(&Text::new(note, (xr.start, 6), (FONT, 15).into_font()))?;
+        note_strip.draw(&Text::new(
+            note,
+            (xr.start, 2),
+            (FONT, super::SMALLEST_TEXT_PX).into_font(),
+        ))?;
         Ok(())
     };
     draw_main().map_err(plot_error(path))?;

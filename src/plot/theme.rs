@@ -125,9 +125,14 @@ pub fn ramp(u: f64) -> RGBColor {
 }
 
 /// Colour of a spectrogram level `db` (dB re the maximum, ≤ 0) above a
-/// floor of `floor_db`: the project's ramp from the floor to 0 dB.
+/// floor of `floor_db`: viridis from the floor to 0 dB, a perceptually
+/// uniform map (equal steps of level look like equal steps of colour, and
+/// it reads in grey and to most colour-blind eyes; van der Walt and Smith
+/// 2015, as plotters' `colormaps` feature gives it), dark at the floor.
 pub fn level_colour(db: f64, floor_db: f64) -> RGBColor {
-    ramp(1.0 - db / floor_db)
+    use plotters::style::colors::colormaps::{ColorMap, ViridisRGB};
+    let u = (1.0 - db / floor_db).clamp(0.0, 1.0);
+    ViridisRGB.get_color(u as f32)
 }
 
 /// The colour of input `k` of a comparison: the house blue and orange,
