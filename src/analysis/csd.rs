@@ -99,6 +99,27 @@ pub fn decay_spectrum(
     out
 }
 
+/// The slices worth showing: the first, then each that differs from the
+/// last one kept by more than `tolerance_db` somewhere on the grid (the
+/// windows that start before the response arrives all hold the same
+/// response, and so the same spectrum). Indices into `slices`.
+pub fn distinct(slices: &[Slice], tolerance_db: f64) -> Vec<usize> {
+    let mut kept: Vec<usize> = Vec::new();
+    for (i, s) in slices.iter().enumerate() {
+        let differs = kept.last().is_none_or(|&k| {
+            slices[k]
+                .level_db
+                .iter()
+                .zip(&s.level_db)
+                .any(|(a, b)| (a - b).abs() > tolerance_db)
+        });
+        if differs {
+            kept.push(i);
+        }
+    }
+    kept
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -136,5 +157,45 @@ mod tests {
                 "{f0} Hz Q {q}: {slope} dB/s vs {want}"
             );
         }
+    }
+
+    #[test]
+    fn windows_that_start_before_the_response_are_shown_once() {
+        // a response arriving 2 ms after the analysis starts: every window
+        // starting earlier holds all of it, so their spectra are equal
+        let fs = 48_000.0;
+        let lead = 2000;
+        let mut h = vec![0.0; 16_384];
+        for (i, v) in h.iter_mut().enumerate().skip(lead) {
+            let t = (i - lead) as f64 / fs;
+            *v = (-3000.0 * t).exp() * (std::f64::consts::TAU * 2000.0 * t).sin();
+        }
+        let grid = log_grid(200.0, 20_000.0);
+        let cfg = CsdConfig {
+            first_s: -1.0e-3,
+            step_s: 0.25e-3,
+            slices: 12,
+            end_s: 0.02,
+            rise_s: 0.1e-3,
+        };
+        // the peak is taken as the response's start here, so windows from
+        // -1 ms to -0.25 ms (and 0) start in the silence before it
+        let s = decay_spectrum(
+            &h,
+            lead,
+            fs,
+            &grid,
+            Smoothing::Fraction(6),
+            (200.0, 20_000.0),
+            cfg,
+        );
+        let keep = distinct(&s, 0.5);
+        assert_eq!(keep[0], 0);
+        assert!(
+            keep[1] >= 4,
+            "the windows before the arrival repeat the first: {keep:?}"
+        );
+        // after the arrival every slice cuts off more of the decay
+        assert_eq!(keep.len(), s.len() - keep[1] + 1, "{keep:?}");
     }
 }
