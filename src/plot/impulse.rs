@@ -79,7 +79,7 @@ pub fn impulse_png(
         Ok(())
     };
     draw_top().map_err(plot_error(path))?;
-    let etc_db = etc::energy_time_curve_db(ir, -120.0);
+    let etc_db = etc::energy_time_curve_db(ir, fs, -120.0);
     let floor = {
         let mut sorted: Vec<f64> = etc_db.clone();
         sorted.sort_by(|x, y| x.total_cmp(y));
