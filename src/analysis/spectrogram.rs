@@ -209,7 +209,13 @@ pub fn spectrogram(ir: &[f64], fs: f64, band: (f64, f64), c: SpectrogramConfig) 
         let padding = if w_len < 4096 { 4 } else { 2 };
         let fft_len = fft::fast_len(w_len * padding);
         let df = fs / fft_len as f64;
-        let level_hop = ((w_len / 8) as f64).min(hop).max(1.0).round() as usize;
+        // frames every eighth of a window, but no closer than the columns
+        // need (at most half a window apart, so no event falls between)
+        let level_hop = ((w_len / 2) as f64)
+            .min(hop)
+            .max((w_len / 8) as f64)
+            .max(1.0)
+            .round() as usize;
         // frames whose centres run from one step before the first column
         // to one after the last
         let first_centre = t_first - level_hop as f64;
@@ -217,10 +223,14 @@ pub fn spectrogram(ir: &[f64], fs: f64, band: (f64, f64), c: SpectrogramConfig) 
         let first = onset as isize + first_centre.round() as isize - (w_len / 2) as isize;
         let power = stft_power(ir, &window, first, level_hop, frames, fft_len);
         let rows_f: Vec<f64> = served.iter().map(|&j| grid[j]).collect();
+        // only the bins up to the top row's 1/48 octave (and two more)
+        // enter its rows: the long windows serve the bass alone
+        let top = rows_f.last().map_or(0.0, |f| Smoothing::Fraction(48).band(*f).1);
+        let bins = ((top / df).ceil() as usize + 2).min(fft_len / 2 + 1);
         let rows = power
             .iter()
             .map(|p| {
-                smoothing::smooth_power(p, df, &rows_f, Smoothing::Fraction(48))
+                smoothing::smooth_power(&p[..bins], df, &rows_f, Smoothing::Fraction(48))
                     .into_iter()
                     .map(|v| v / energy)
                     .collect()
