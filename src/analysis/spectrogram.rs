@@ -225,7 +225,9 @@ pub fn spectrogram(ir: &[f64], fs: f64, band: (f64, f64), c: SpectrogramConfig) 
         let rows_f: Vec<f64> = served.iter().map(|&j| grid[j]).collect();
         // only the bins up to the top row's 1/48 octave (and two more)
         // enter its rows: the long windows serve the bass alone
-        let top = rows_f.last().map_or(0.0, |f| Smoothing::Fraction(48).band(*f).1);
+        let top = rows_f
+            .last()
+            .map_or(0.0, |f| Smoothing::Fraction(48).band(*f).1);
         let bins = ((top / df).ceil() as usize + 2).min(fft_len / 2 + 1);
         let rows = power
             .iter()

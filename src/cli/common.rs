@@ -177,6 +177,12 @@ pub struct OutputArgs {
 impl OutputArgs {
     /// The checked analysis settings.
     pub fn config(&self) -> Result<AnalysisConfig> {
+        self.config_for(self.profile.unwrap_or_default())
+    }
+
+    /// The checked analysis settings with `profile`'s defaults (every
+    /// option given still overrides them).
+    pub fn config_for(&self, profile: Profile) -> Result<AnalysisConfig> {
         if self.harmonics == 0 || self.harmonics > distortion::MAX_ORDER {
             return Err(Error::parameter(format!(
                 "--harmonics {} is out of range; use 2 to {} (the orders to separate), or 1 for none",
@@ -184,7 +190,7 @@ impl OutputArgs {
                 distortion::MAX_ORDER
             )));
         }
-        let speaker = self.profile.is_some_and(Profile::is_speaker);
+        let speaker = profile.is_speaker();
         let smooth = self
             .smooth
             .as_deref()
@@ -202,7 +208,7 @@ impl OutputArgs {
             gate,
             // read by `mic_correction`, once, by the command
             mic_correction: None,
-            profile: self.profile.unwrap_or_default(),
+            profile,
         })
     }
 

@@ -359,6 +359,11 @@ pub struct Settings {
     /// was recorded, and in an average of positions that differ).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub profile: Option<crate::model::Profile>,
+    /// --reference: the recording's loopback channel the response was
+    /// divided by, 1-based (absent without one, and in folders written
+    /// before it was recorded).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub reference_channel: Option<usize>,
 }
 
 /// What a file of a folder is.

@@ -488,6 +488,7 @@ fn write_average(
             target_range_hz: None,
             target_absolute: false,
             profile: Profile::common(inputs.iter().map(|i| i.manifest.settings.profile)),
+            reference_channel: None,
         },
         files,
         measurement: None,
@@ -530,11 +531,14 @@ fn draw_average_plots(
         smoothing: &smoothing,
         bands: &results.bands,
     };
-    let mut files = Vec::new();
-    for kind in input.kinds() {
-        files.push(folder.draw(kind.file(), |tmp| plot::draw_average(kind, tmp, &input))?);
-    }
-    Ok(files)
+    // the plots are independent: drawn and encoded in parallel, their
+    // entries kept in the kinds' order
+    use rayon::prelude::*;
+    input
+        .kinds()
+        .into_par_iter()
+        .map(|kind| folder.draw(kind.file(), |tmp| plot::draw_average(kind, tmp, &input)))
+        .collect()
 }
 
 /// What `gliss compare` needs.
@@ -974,11 +978,14 @@ fn draw_comparison_plots(
         bands: &bands,
         mark_label: "ring: audible (beyond the 5 % JND and the uncertainty)",
     };
-    let mut files = Vec::new();
-    for kind in input.kinds() {
-        files.push(folder.draw(kind.file(), |tmp| plot::draw_comparison(kind, tmp, &input))?);
-    }
-    Ok(files)
+    // the plots are independent: drawn and encoded in parallel, their
+    // entries kept in the kinds' order
+    use rayon::prelude::*;
+    input
+        .kinds()
+        .into_par_iter()
+        .map(|kind| folder.draw(kind.file(), |tmp| plot::draw_comparison(kind, tmp, &input)))
+        .collect()
 }
 
 fn write_comparison(

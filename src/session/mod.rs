@@ -4,6 +4,7 @@
 pub mod compare;
 pub mod export;
 pub mod measure;
+pub mod reanalyze;
 pub mod sweep_file;
 
 use std::path::{Path, PathBuf};
@@ -610,14 +611,16 @@ fn write_tables(
 
 /// The settings a job analysed with, for the manifest.
 pub fn job_settings(job: &Job, plots: bool) -> Settings {
-    settings_record(
+    let mut s = settings_record(
         &job.config,
         plots,
         job.mic_correction.as_ref(),
         job.calibration.as_ref().map(|c| &c.1),
         job.drive,
         job.target.as_ref(),
-    )
+    );
+    s.reference_channel = job.reference.filter(|_| !job.impulse).map(|r| r + 1);
+    s
 }
 
 /// The manifest of a finished job, listing `files`.
@@ -666,11 +669,14 @@ fn draw_plots(
         target: overlay.as_ref(),
         phase_view: job.phase_view,
     };
-    let mut files = Vec::new();
-    for kind in input.kinds() {
-        files.push(folder.draw(kind.file(), |tmp| plot::draw_measurement(kind, tmp, &input))?);
-    }
-    Ok(files)
+    // the plots are independent: drawn and encoded in parallel, their
+    // entries kept in the kinds' order
+    use rayon::prelude::*;
+    input
+        .kinds()
+        .into_par_iter()
+        .map(|kind| folder.draw(kind.file(), |tmp| plot::draw_measurement(kind, tmp, &input)))
+        .collect()
 }
 
 /// The legend entry of the target on the response plot.
@@ -896,6 +902,7 @@ pub fn settings_record(
         target_range_hz: target.and_then(|t| t.range.map(|r| [r.0, r.1])),
         target_absolute: target.is_some_and(|t| t.absolute),
         profile: Some(config.profile),
+        reference_channel: None,
     }
 }
 

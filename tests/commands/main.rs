@@ -17,6 +17,7 @@ mod full_disk;
 mod impulse;
 mod measure;
 mod mistakes;
+mod reanalyze;
 mod report;
 mod sensitivity;
 #[cfg(feature = "soundcard")]
