@@ -221,31 +221,59 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
     println!("(no sound is played; the recordings are computed)");
     let positions = [1.2, 1.8, 2.4];
     let mut written = Vec::new();
+    // every position is its own simulated system: all six are measured in
+    // parallel, then reported in order
+    struct Position {
+        condition: &'static str,
+        name: String,
+        system: VirtualSystem,
+        out: std::path::PathBuf,
+        title: String,
+    }
+    let mut all = Vec::new();
     for (condition, system) in [("before", bare.clone()), ("after", bare.treated())] {
-        let mut dirs = Vec::new();
         for (k, d) in positions.iter().enumerate() {
-            let mut s = VirtualSystem {
-                distance_m: *d,
-                seed: bare
-                    .seed
-                    .wrapping_add(k as u64 + if condition == "after" { 10 } else { 0 }),
-                ..system.clone()
-            };
             let name = format!("{condition}-{}", k + 1);
-            let out = a.out.join(&name);
-            let title = format!(
-                "rehearsal room {}, position {} at {d} m (simulated)",
-                if condition == "before" {
-                    "bare"
-                } else {
-                    "treated"
+            all.push(Position {
+                condition,
+                system: VirtualSystem {
+                    distance_m: *d,
+                    seed: bare
+                        .seed
+                        .wrapping_add(k as u64 + if condition == "after" { 10 } else { 0 }),
+                    ..system.clone()
                 },
-                k + 1
-            );
-            let plots = !a.output.no_plots && !a.no_position_plots;
-            let o = measure_one(a, &mut s, &out, &title, plots)?;
+                out: a.out.join(&name),
+                title: format!(
+                    "rehearsal room {}, position {} at {d} m (simulated)",
+                    if condition == "before" {
+                        "bare"
+                    } else {
+                        "treated"
+                    },
+                    k + 1
+                ),
+                name,
+            });
+        }
+    }
+    let plots = !a.output.no_plots && !a.no_position_plots;
+    let outcomes: Vec<Result<Outcome>> = {
+        use rayon::prelude::*;
+        all.par_iter_mut()
+            .map(|p| measure_one(a, &mut p.system, &p.out, &p.title, plots))
+            .collect()
+    };
+    let mut outcomes = outcomes.into_iter();
+    for condition in ["before", "after"] {
+        let mut dirs = Vec::new();
+        for p in all.iter().filter(|p| p.condition == condition) {
+            let o = outcomes
+                .next()
+                .expect("one outcome per position, in order")?;
             println!(
-                "measured {name}: impulse response {:.0} dB above its noise, {} warning{}",
+                "measured {}: impulse response {:.0} dB above its noise, {} warning{}",
+                p.name,
                 o.analysis.peak_to_noise_db,
                 o.analysis.warnings.len(),
                 if o.analysis.warnings.len() == 1 {
@@ -254,8 +282,8 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
                     "s"
                 }
             );
-            dirs.push(out);
-            written.push(name);
+            dirs.push(p.out.clone());
+            written.push(p.name.clone());
         }
         let avg = a.out.join(condition);
         compare::average(&AverageJob {

@@ -106,6 +106,16 @@ fn usage_error_line(rendered: &str) -> String {
 
 /// Parses the command line, runs the command, prints any error once.
 pub fn main() -> ExitCode {
+    // Rust ignores SIGPIPE, so printing to a closed pipe (`gliss demo |
+    // head`) would panic; with the default action the process ends
+    // quietly, as Unix tools do. Files being written are then left as a
+    // kill leaves them, which every writer already survives.
+    #[cfg(unix)]
+    // SAFETY: called once at the start of main, before any thread starts;
+    // setting a signal's action to SIG_DFL has no other effect.
+    unsafe {
+        libc::signal(libc::SIGPIPE, libc::SIG_DFL);
+    }
     let cli = match Cli::try_parse() {
         Ok(c) => c,
         Err(e) if e.use_stderr() => {

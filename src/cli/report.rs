@@ -89,11 +89,14 @@ pub fn run(a: Args) -> Result<()> {
     let options = report::Options {
         target_rt: a.target_rt.as_deref().map(target_rt).transpose()?,
     };
-    let folders = a
-        .dirs
-        .iter()
-        .map(|d| read_folder(d, a.show_changed_raw))
-        .collect::<Result<Vec<_>>>()?;
+    // each folder is read and its raw files hashed on its own: in parallel
+    let folders = {
+        use rayon::prelude::*;
+        a.dirs
+            .par_iter()
+            .map(|d| read_folder(d, a.show_changed_raw))
+            .collect::<Result<Vec<_>>>()?
+    };
     let written = humantime::format_rfc3339_seconds(std::time::SystemTime::now()).to_string();
     let html = report::render(&folders, &written, &options);
     gliss::folder::write::write_replacing(&a.out, html.as_bytes(), a.overwrite)?;

@@ -312,3 +312,32 @@ fn a_recording_of_something_else_is_flagged() {
     );
     assert!(out.contains("above its noise"), "{out}");
 }
+
+/// Output into a pipe that was closed (`gliss demo | head -1`) ends the
+/// process quietly, as Unix tools do: no panic on stderr.
+#[cfg(unix)]
+#[test]
+fn a_closed_pipe_on_stdout_ends_quietly() {
+    let t = tempfile::tempdir().unwrap();
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_gliss"))
+        .args([
+            "demo",
+            "--single",
+            "--out",
+            "d",
+            "--length",
+            "1",
+            "--tail",
+            "0.5",
+            "--no-plots",
+        ])
+        .current_dir(t.path())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    drop(child.stdout.take()); // the reader goes away at once
+    let out = child.wait_with_output().unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(!err.contains("panicked"), "{err}");
+}
