@@ -30,6 +30,36 @@ fn bench(c: &mut Criterion) {
         "whole analysis (impulse, 1/6-octave response, orders 2-5, bands)",
         |b| b.iter(|| analyze(black_box(&recording), &stimulus, &design, &config).unwrap()),
     );
+    // what a user waits for: the same analysis on a fresh thread, so every
+    // FFT plan is built again (the planner is cached per thread)
+    g.bench_function("whole analysis, cold FFT plans (fresh thread)", |b| {
+        b.iter(|| {
+            std::thread::scope(|s| {
+                s.spawn(|| analyze(black_box(&recording), &stimulus, &design, &config).unwrap())
+                    .join()
+                    .unwrap()
+            })
+        })
+    });
+    // the unavoidable transforms: two forward real FFTs and one inverse at
+    // the deconvolution's length, plans included (fresh thread)
+    let n = deconv::fft_len(recording.len(), stimulus.len());
+    g.bench_function("the unavoidable FFTs, cold plans (fresh thread)", |b| {
+        b.iter(|| {
+            std::thread::scope(|s| {
+                s.spawn(|| {
+                    let x = gliss::signal::fft::rfft(black_box(&stimulus), n);
+                    let mut y = gliss::signal::fft::rfft(black_box(&recording), n);
+                    for (a, b) in y.iter_mut().zip(&x) {
+                        *a *= b.conj();
+                    }
+                    gliss::signal::fft::irfft(&mut y, n)
+                })
+                .join()
+                .unwrap()
+            })
+        })
+    });
     let linear_only = AnalysisConfig {
         harmonics: 1,
         bands: false,
@@ -73,10 +103,73 @@ fn bench(c: &mut Criterion) {
     g.finish();
 }
 
+/// PNG encoding of the committed example charts with each row filter and
+/// compression level: prints the total size once, times each choice.
+#[cfg(feature = "plots")]
+fn png(c: &mut Criterion) {
+    use gliss::plot::annotate::encode_png_with;
+    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("measurements/kestrel5-speaker/plots");
+    let charts: Vec<(Vec<u8>, (u32, u32))> = std::fs::read_dir(&dir)
+        .expect("the committed example plots")
+        .flatten()
+        .filter(|e| e.path().extension().is_some_and(|x| x == "png"))
+        .map(|e| {
+            let d = png::Decoder::new(std::io::BufReader::new(
+                std::fs::File::open(e.path()).unwrap(),
+            ));
+            let mut r = d.read_info().unwrap();
+            let mut buf = vec![0; r.output_buffer_size()];
+            let info = r.next_frame(&mut buf).unwrap();
+            buf.truncate(info.buffer_size());
+            (buf, (info.width, info.height))
+        })
+        .collect();
+    let mut g = c.benchmark_group("png_encoding_6_charts");
+    g.sample_size(10);
+    for (fname, filter) in [
+        ("none", png::FilterType::NoFilter),
+        ("sub", png::FilterType::Sub),
+        ("up", png::FilterType::Up),
+        ("paeth", png::FilterType::Paeth),
+    ] {
+        for (cname, compression) in [
+            ("fast", png::Compression::Fast),
+            ("default", png::Compression::Default),
+            ("best", png::Compression::Best),
+        ] {
+            let size: usize = charts
+                .iter()
+                .map(|(px, s)| {
+                    encode_png_with(px, *s, "", filter, compression)
+                        .unwrap()
+                        .len()
+                })
+                .sum();
+            println!(
+                "png {fname}/{cname}: {} kB for {} charts",
+                size / 1024,
+                charts.len()
+            );
+            g.bench_function(format!("{fname} filter, {cname} compression"), |b| {
+                b.iter(|| {
+                    for (px, s) in &charts {
+                        black_box(encode_png_with(px, *s, "", filter, compression).unwrap());
+                    }
+                })
+            });
+        }
+    }
+    g.finish();
+}
+
+#[cfg(not(feature = "plots"))]
+fn png(_: &mut Criterion) {}
+
 criterion_group! {
     name = benches;
     // Criterion's own charts would need a system font; the numbers suffice.
     config = Criterion::default().without_plots();
-    targets = bench
+    targets = bench, png
 }
 criterion_main!(benches);

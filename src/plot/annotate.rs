@@ -61,6 +61,58 @@ pub fn add_text(path: &Path, keyword: &str, text: &str) -> Result<()> {
     fs::write(path, out).map_err(|e| Error::io("write", path, &e))
 }
 
+/// The row filter and compression the plots are encoded with, chosen by
+/// measurement on the demo's charts (docs/performance.md): the Paeth
+/// filter on every row, zlib at its fast level. Trying every filter on
+/// every row (the adaptive choice) costs several times the time for a few
+/// per cent of size.
+pub const PNG_FILTER: png::FilterType = png::FilterType::Paeth;
+/// See [`PNG_FILTER`].
+pub const PNG_COMPRESSION: png::Compression = png::Compression::Fast;
+
+/// An RGB image of `size` as a PNG (8 bits per channel) with `marks` as a
+/// tEXt chunk under [`MARKS_KEYWORD`] (left out when empty), encoded with
+/// [`PNG_FILTER`] and [`PNG_COMPRESSION`].
+pub fn encode_png(
+    px: &[u8],
+    size: (u32, u32),
+    marks: &str,
+) -> std::result::Result<Vec<u8>, png::EncodingError> {
+    encode_png_with(px, size, marks, PNG_FILTER, PNG_COMPRESSION)
+}
+
+/// [`encode_png`] with a chosen filter and compression (for measuring
+/// them).
+pub fn encode_png_with(
+    px: &[u8],
+    size: (u32, u32),
+    marks: &str,
+    filter: png::FilterType,
+    compression: png::Compression,
+) -> std::result::Result<Vec<u8>, png::EncodingError> {
+    let mut out = Vec::with_capacity(px.len() / 8);
+    {
+        let mut e = png::Encoder::new(&mut out, size.0, size.1);
+        e.set_color(png::ColorType::Rgb);
+        e.set_depth(png::BitDepth::Eight);
+        e.set_filter(filter);
+        e.set_adaptive_filter(png::AdaptiveFilterType::NonAdaptive);
+        e.set_compression(compression);
+        if !marks.is_empty() {
+            // tEXt is Latin-1: anything beyond ASCII is replaced
+            let text: String = marks
+                .chars()
+                .map(|c| if c.is_ascii() { c } else { '?' })
+                .collect();
+            e.add_text_chunk(MARKS_KEYWORD.to_string(), text)?;
+        }
+        let mut w = e.write_header()?;
+        w.write_image_data(px)?;
+        w.finish()?;
+    }
+    Ok(out)
+}
+
 /// What a chart marks, gathered while it is drawn and written into its PNG
 /// under [`MARKS_KEYWORD`] as one `key: value` line each, so that a test
 /// or a script reads the tick labels, the axis ranges, the legend's box
@@ -96,6 +148,15 @@ impl Marks {
     /// Writes the marks into the PNG at `path`.
     pub fn write(&self, path: &Path) -> Result<()> {
         add_text(path, MARKS_KEYWORD, &self.text())
+    }
+
+    /// Encodes the chart `px` (RGB, [`super::theme::SIZE`]) as a PNG with
+    /// these marks as its tEXt chunk and writes it to `path`.
+    pub fn save(&self, path: &Path, px: &[u8]) -> Result<()> {
+        let png = encode_png(px, super::theme::SIZE, &self.text()).map_err(|e| {
+            Error::input(format!("could not encode the plot {}: {e}", path.display()))
+        })?;
+        fs::write(path, png).map_err(|e| Error::io("write", path, &e))
     }
 }
 

@@ -6,7 +6,7 @@ use plotters::prelude::*;
 
 use super::annotate::Marks;
 use super::axes::{Clip, db_range, draw_log_panel};
-use super::theme::{BLUE, canvas, plot_error};
+use super::theme::{BLUE, canvas, pixels, plot_error};
 use crate::error::Result;
 
 /// The average of several positions over the positions themselves.
@@ -18,7 +18,8 @@ pub fn average_response_png(
     average: &[f64],
     smoothing: &str,
 ) -> Result<()> {
-    let (root, body) = canvas(path, &format!("Frequency response — {title}"))?;
+    let mut px = pixels();
+    let (root, body) = canvas(&mut px, path, &format!("Frequency response — {title}"))?;
     let f1 = frequency_hz.first().copied().unwrap_or(20.0);
     let f2 = frequency_hz.last().copied().unwrap_or(20_000.0);
     let all: Vec<f64> = positions
@@ -68,6 +69,7 @@ pub fn average_response_png(
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, body));
+    marks.save(path, &px)
 }

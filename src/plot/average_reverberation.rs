@@ -6,14 +6,19 @@ use plotters::prelude::*;
 
 use super::annotate::Marks;
 use super::axes::{Drawn, band_axis, band_chart, place_legend};
-use super::theme::{BLUE, canvas, plot_error};
+use super::theme::{BLUE, canvas, pixels, plot_error};
 use crate::analysis::room::BandResult;
 use crate::error::Result;
 use crate::model::{Fraction, Parameter};
 
 /// Mean T30 per band over positions with ± one standard deviation.
 pub fn average_reverberation_png(path: &Path, title: &str, bands: &[BandResult]) -> Result<()> {
-    let (root, body) = canvas(path, &format!("Reverberation time per band — {title}"))?;
+    let mut px = pixels();
+    let (root, body) = canvas(
+        &mut px,
+        path,
+        &format!("Reverberation time per band — {title}"),
+    )?;
     let get = |fraction: Fraction| -> Vec<(f64, f64, f64)> {
         bands
             .iter()
@@ -116,6 +121,7 @@ pub fn average_reverberation_png(path: &Path, title: &str, bands: &[BandResult])
     };
     draw().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, body));
+    marks.save(path, &px)
 }

@@ -6,7 +6,7 @@ use plotters::prelude::*;
 
 use super::annotate::Marks;
 use super::axes::{Clip, draw_log_panel};
-use super::theme::{canvas, input_colour, plot_error};
+use super::theme::{canvas, input_colour, pixels, plot_error};
 use crate::error::Result;
 
 /// Each response minus the reference's.
@@ -17,7 +17,8 @@ pub fn compare_difference_png(
     diffs: &[(String, Vec<f64>)],
     reference: &str,
 ) -> Result<()> {
-    let (root, body) = canvas(path, &format!("Change of the response — {title}"))?;
+    let mut px = pixels();
+    let (root, body) = canvas(&mut px, path, &format!("Change of the response — {title}"))?;
     let f1 = frequency_hz.first().copied().unwrap_or(20.0);
     let f2 = frequency_hz.last().copied().unwrap_or(20_000.0);
     let all: Vec<f64> = diffs.iter().flat_map(|c| c.1.iter().copied()).collect();
@@ -58,6 +59,7 @@ pub fn compare_difference_png(
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, body));
+    marks.save(path, &px)
 }

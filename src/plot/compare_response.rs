@@ -4,7 +4,7 @@ use std::path::Path;
 
 use super::annotate::Marks;
 use super::axes::{Clip, TargetOverlay, db_range, draw_log_panel};
-use super::theme::{canvas, input_colour, plot_error};
+use super::theme::{canvas, input_colour, pixels, plot_error};
 use crate::error::Result;
 
 /// The responses of a comparison over each other.
@@ -16,7 +16,8 @@ pub fn compare_response_png(
     smoothing: &str,
     target: Option<&TargetOverlay>,
 ) -> Result<()> {
-    let (root, body) = canvas(path, &format!("Frequency responses — {title}"))?;
+    let mut px = pixels();
+    let (root, body) = canvas(&mut px, path, &format!("Frequency responses — {title}"))?;
     let f1 = frequency_hz.first().copied().unwrap_or(20.0);
     let f2 = frequency_hz.last().copied().unwrap_or(20_000.0);
     let all: Vec<f64> = curves.iter().flat_map(|c| c.1.iter().copied()).collect();
@@ -53,6 +54,7 @@ pub fn compare_response_png(
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, body));
+    marks.save(path, &px)
 }

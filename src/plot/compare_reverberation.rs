@@ -6,7 +6,7 @@ use plotters::prelude::*;
 
 use super::annotate::Marks;
 use super::axes::{Drawn, band_axis, band_chart, place_legend};
-use super::theme::{canvas, input_colour, plot_error};
+use super::theme::{canvas, input_colour, pixels, plot_error};
 use crate::analysis::compare::Verdict;
 use crate::error::Result;
 use crate::model::{Fraction, Parameter};
@@ -79,7 +79,12 @@ pub fn compare_reverberation_png(
     bands: &[BandPoints],
     mark_label: &str,
 ) -> Result<()> {
-    let (root, body) = canvas(path, &format!("Reverberation time per octave — {title}"))?;
+    let mut px = pixels();
+    let (root, body) = canvas(
+        &mut px,
+        path,
+        &format!("Reverberation time per octave — {title}"),
+    )?;
     let per_band: Vec<&BandPoints> = bands
         .iter()
         .filter(|b| b.fraction == Fraction::Octave)
@@ -173,9 +178,10 @@ pub fn compare_reverberation_png(
     };
     draw().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, body));
     marks.extend_lines(&marks_text(bands, labels.len()));
-    marks.write(path)
+    marks.save(path, &px)
 }
 
 /// The shape that marks a verdict: its place in [`Verdict::ALL`] (0 a

@@ -6,14 +6,19 @@ use plotters::prelude::*;
 
 use super::annotate::Marks;
 use super::axes::{Drawn, chart_builder, place_legend, styled_mesh};
-use super::theme::{GRID, band_colour, canvas, plot_error};
+use super::theme::{GRID, band_colour, canvas, pixels, plot_error};
 use crate::error::Result;
 use crate::model::units::{format_hz, seconds};
 
 /// Draws the Schroeder decay curves of the octave bands, each with the
 /// line fitted for T30 (or T20, or EDT) over its evaluation range.
 pub fn decay_png(path: &Path, title: &str, room: &crate::analysis::room::Room) -> Result<()> {
-    let (root, body) = canvas(path, &format!("Energy decay per octave band — {title}"))?;
+    let mut px = pixels();
+    let (root, body) = canvas(
+        &mut px,
+        path,
+        &format!("Energy decay per octave band — {title}"),
+    )?;
     let t_max = room
         .curves
         .iter()
@@ -96,6 +101,7 @@ pub fn decay_png(path: &Path, title: &str, room: &crate::analysis::room::Room) -
     };
     draw().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, body));
+    marks.save(path, &px)
 }

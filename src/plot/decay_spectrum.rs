@@ -4,7 +4,7 @@ use std::path::Path;
 
 use super::annotate::Marks;
 use super::axes::{Clip, Series, draw_log_panel};
-use super::theme::{FONT, band_colour, canvas, plot_error};
+use super::theme::{FONT, band_colour, canvas, pixels, plot_error};
 use crate::error::Result;
 use plotters::prelude::*;
 
@@ -20,7 +20,12 @@ pub fn decay_spectrum_png(
     slices: &[crate::analysis::csd::Slice],
     resolved: (f64, f64),
 ) -> Result<()> {
-    let (root, body) = canvas(path, &format!("Decay spectrum within the gate — {title}"))?;
+    let mut px = pixels();
+    let (root, body) = canvas(
+        &mut px,
+        path,
+        &format!("Decay spectrum within the gate — {title}"),
+    )?;
     // only where the gate resolves the response
     let f1 = frequency_hz
         .first()
@@ -101,6 +106,7 @@ pub fn decay_spectrum_png(
     };
     draw_key().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, body, main, key));
+    marks.save(path, &px)
 }

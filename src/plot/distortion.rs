@@ -9,7 +9,7 @@ use super::axes::{
     Drawn, axis_end, chart_builder, frequency_label, frequency_ticks, place_legend, styled_mesh,
     tick_labels,
 };
-use super::theme::{BLUE, GRID, canvas, order_colour, plot_error};
+use super::theme::{BLUE, GRID, canvas, order_colour, pixels, plot_error};
 use crate::error::Result;
 
 /// Draws the distortion orders: above, the fundamental and each order in
@@ -21,7 +21,8 @@ pub fn distortion_png(
     response: &crate::analysis::FrequencyResponse,
     d: &crate::analysis::Distortion,
 ) -> Result<()> {
-    let (root, body) = canvas(path, &format!("Harmonic distortion — {title}"))?;
+    let mut px = pixels();
+    let (root, body) = canvas(&mut px, path, &format!("Harmonic distortion — {title}"))?;
     let (top, bottom) = body.split_vertically((body.dim_in_pixel().1 as f64 * 0.6) as u32);
     let f = &response.frequency_hz;
     let fund = &response.magnitude_db;
@@ -264,6 +265,7 @@ pub fn distortion_png(
     };
     draw_bottom().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, body, top, bottom));
+    marks.save(path, &px)
 }

@@ -4,7 +4,7 @@ use std::path::Path;
 
 use super::annotate::Marks;
 use super::axes::{Clip, draw_log_panel};
-use super::theme::{BLUE, ORANGE, canvas, plot_error};
+use super::theme::{BLUE, ORANGE, canvas, pixels, plot_error};
 use crate::error::Result;
 
 /// Draws the group delay (delay removed) and the excess group delay (with
@@ -16,7 +16,8 @@ pub fn group_delay_png(
     p: &crate::analysis::phase::PhaseAnalysis,
     delay_s: f64,
 ) -> Result<()> {
-    let (root, body) = canvas(path, &format!("Group delay — {title}"))?;
+    let mut px = pixels();
+    let (root, body) = canvas(&mut px, path, &format!("Group delay — {title}"))?;
     let f1 = frequency_hz.first().copied().unwrap_or(20.0);
     let f2 = frequency_hz.last().copied().unwrap_or(20_000.0);
     let gd: Vec<f64> = p.group_delay_s.iter().map(|t| t * 1e3).collect();
@@ -69,6 +70,7 @@ pub fn group_delay_png(
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, body));
+    marks.save(path, &px)
 }

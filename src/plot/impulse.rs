@@ -6,7 +6,7 @@ use plotters::prelude::*;
 
 use super::annotate::Marks;
 use super::axes::{Drawn, chart_builder, place_legend, styled_mesh};
-use super::theme::{BLUE, FONT, ORANGE, SIZE, plot_error, register_font};
+use super::theme::{BLUE, FONT, ORANGE, SIZE, pixels, plot_error, register_font};
 use crate::analysis::etc;
 use crate::error::Result;
 
@@ -38,7 +38,8 @@ pub fn impulse_png(
 ) -> Result<()> {
     register_font();
     let fs = f64::from(sample_rate_hz);
-    let root = BitMapBackend::new(path, SIZE).into_drawing_area();
+    let mut px = pixels();
+    let root = BitMapBackend::with_buffer(&mut px, SIZE).into_drawing_area();
     root.fill(&WHITE).map_err(plot_error(path))?;
     let (head, body) = root.split_vertically(50);
     head.draw(&Text::new(
@@ -142,6 +143,7 @@ pub fn impulse_png(
     };
     draw_bottom().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, head, body, top, bottom));
+    marks.save(path, &px)
 }

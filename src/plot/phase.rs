@@ -4,7 +4,7 @@ use std::path::Path;
 
 use super::annotate::Marks;
 use super::axes::{Clip, draw_log_panel, wrap_phase};
-use super::theme::{BLUE, ORANGE, canvas, plot_error};
+use super::theme::{BLUE, ORANGE, canvas, pixels, plot_error};
 use crate::error::Result;
 
 pub use crate::model::plot_kind::PhaseView;
@@ -18,7 +18,8 @@ pub fn phase_png(
     p: &crate::analysis::phase::PhaseAnalysis,
     view: PhaseView,
 ) -> Result<()> {
-    let (root, body) = canvas(path, &format!("Phase — {title}"))?;
+    let mut px = pixels();
+    let (root, body) = canvas(&mut px, path, &format!("Phase — {title}"))?;
     let f1 = frequency_hz.first().copied().unwrap_or(20.0);
     let f2 = frequency_hz.last().copied().unwrap_or(20_000.0);
     let mut marks = Marks::new();
@@ -85,6 +86,7 @@ pub fn phase_png(
     )
     .map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, body));
+    marks.save(path, &px)
 }

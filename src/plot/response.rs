@@ -4,7 +4,7 @@ use std::path::Path;
 
 use super::annotate::Marks;
 use super::axes::{Clip, TargetOverlay, db_range, draw_log_panel, wrap_phase};
-use super::theme::{BLUE, ORANGE, canvas, plot_error};
+use super::theme::{BLUE, ORANGE, canvas, pixels, plot_error};
 use crate::error::Result;
 
 /// Draws the frequency response (magnitude above, phase below) to a PNG,
@@ -21,7 +21,8 @@ pub fn response_png(
     target: Option<&TargetOverlay>,
 ) -> Result<()> {
     let err = plot_error(path);
-    let (root, body) = canvas(path, &format!("Frequency response — {title}"))?;
+    let mut px = pixels();
+    let (root, body) = canvas(&mut px, path, &format!("Frequency response — {title}"))?;
     let (top, bottom) = body.split_vertically((body.dim_in_pixel().1 as f64 * 0.64) as u32);
     let f1 = frequency_hz.first().copied().unwrap_or(20.0);
     let f2 = frequency_hz.last().copied().unwrap_or(20_000.0);
@@ -59,10 +60,15 @@ pub fn response_png(
         &bottom,
         (f1, f2),
         (-180.0, 180.0),
-        "Phase (degrees, delay removed)",
+        "Phase (degrees)",
         true,
         resolved,
-        &[(&phase_f, &phase, ORANGE, "phase (wrapped)".to_string())],
+        &[(
+            &phase_f,
+            &phase,
+            ORANGE,
+            "phase, delay removed, wrapped".to_string(),
+        )],
         None,
         Clip::Nothing,
         &mut marks,
@@ -70,6 +76,7 @@ pub fn response_png(
     )
     .map_err(plot_error(path))?;
     root.present().map_err(err)?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, body, top, bottom));
+    marks.save(path, &px)
 }

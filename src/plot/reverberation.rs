@@ -6,7 +6,7 @@ use plotters::prelude::*;
 
 use super::annotate::Marks;
 use super::axes::{Drawn, band_chart, place_legend};
-use super::theme::{BLUE, ORANGE, canvas, order_colour, plot_error};
+use super::theme::{BLUE, ORANGE, canvas, order_colour, pixels, plot_error};
 use crate::error::Result;
 use crate::model::{Fraction, Parameter};
 
@@ -17,7 +17,12 @@ pub fn reverberation_png(
     title: &str,
     room: &crate::analysis::room::Room,
 ) -> Result<()> {
-    let (root, body) = canvas(path, &format!("Reverberation time per band — {title}"))?;
+    let mut px = pixels();
+    let (root, body) = canvas(
+        &mut px,
+        path,
+        &format!("Reverberation time per band — {title}"),
+    )?;
     let get = |fraction: Fraction,
                f: fn(&crate::analysis::room::BandResult) -> Option<f64>|
      -> Vec<(f64, f64)> {
@@ -90,6 +95,7 @@ pub fn reverberation_png(
     };
     draw().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, body));
+    marks.save(path, &px)
 }

@@ -9,7 +9,7 @@ use super::axes::{
     axis_end, chart_builder, frequency_label, frequency_ticks, styled_mesh, tick_labels,
 };
 use super::theme::FONT;
-use super::theme::{canvas, level_colour, plot_error};
+use super::theme::{canvas, level_colour, pixels, plot_error};
 use crate::error::Result;
 use crate::model::units::seconds;
 
@@ -20,9 +20,14 @@ pub fn spectrogram_png(
     title: &str,
     s: &crate::analysis::spectrogram::Spectrogram,
 ) -> Result<()> {
-    let (root, body) = canvas(path, &format!("Spectrogram of the decay — {title}"))?;
+    let mut px = pixels();
+    let (root, whole) = canvas(
+        &mut px,
+        path,
+        &format!("Spectrogram of the decay — {title}"),
+    )?;
     // the note on how it was made goes in a strip below, off the data
-    let (body, note_strip) = body.split_vertically(body.dim_in_pixel().1 - 32);
+    let (body, note_strip) = whole.split_vertically(whole.dim_in_pixel().1 - 32);
     let (main, bar) = body.split_horizontally(body.dim_in_pixel().0 - 150);
     let f1 = s.frequency_hz.first().copied().unwrap_or(20.0);
     let f2 = s
@@ -150,6 +155,7 @@ pub fn spectrogram_png(
     };
     draw_bar().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop(root);
-    marks.write(path)
+    // the chart's areas hold the pixels until they are dropped
+    drop((root, whole, body, note_strip, main, bar));
+    marks.save(path, &px)
 }

@@ -37,11 +37,22 @@ pub(super) fn register_font() {
 
 pub(super) type Area<'a> = DrawingArea<BitMapBackend<'a>, Shift>;
 
-/// A white canvas of [`SIZE`] with `heading` across its top: the root (to
-/// present when done) and the area below the heading.
-pub(super) fn canvas<'a>(path: &'a Path, heading: &str) -> Result<(Area<'a>, Area<'a>)> {
+/// The pixels of one chart of [`SIZE`] (RGB, 8 bits each), drawn into by
+/// [`canvas`] and encoded by [`super::annotate::Marks::save`].
+pub(super) fn pixels() -> Vec<u8> {
+    vec![0; SIZE.0 as usize * SIZE.1 as usize * 3]
+}
+
+/// A white canvas of [`SIZE`] on `px` ([`pixels`]) with `heading` across
+/// its top: the root (to present when done) and the area below the
+/// heading. `path` is the file it will be saved to, for messages.
+pub(super) fn canvas<'a>(
+    px: &'a mut [u8],
+    path: &Path,
+    heading: &str,
+) -> Result<(Area<'a>, Area<'a>)> {
     register_font();
-    let root = BitMapBackend::new(path, SIZE).into_drawing_area();
+    let root = BitMapBackend::with_buffer(px, SIZE).into_drawing_area();
     root.fill(&WHITE).map_err(plot_error(path))?;
     let (head, body) = root.split_vertically(50);
     head.draw(&Text::new(
