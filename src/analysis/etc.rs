@@ -11,7 +11,7 @@
 //! the envelope of anything above 1 kHz, and most of it below); before
 //! the onset only what is there, the noise, remains.
 
-use rustfft::{FftPlanner, num_complex::Complex};
+use rustfft::num_complex::Complex;
 
 use crate::signal::fft;
 
@@ -28,7 +28,7 @@ pub fn envelope_squared(h: &[f64]) -> Vec<f64> {
     for k in 1..n / 2 {
         full[k] = half[k] * 2.0;
     }
-    FftPlanner::new().plan_fft_inverse(n).process(&mut full);
+    fft::complex_plan(n, true).process(&mut full);
     let scale = 1.0 / (n as f64 * n as f64);
     full[..h.len()]
         .iter()

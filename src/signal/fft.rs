@@ -9,6 +9,21 @@ use rustfft::num_complex::Complex;
 
 thread_local! {
     static PLANNER: RefCell<RealFftPlanner<f64>> = RefCell::new(RealFftPlanner::new());
+    static COMPLEX_PLANNER: RefCell<rustfft::FftPlanner<f64>> =
+        RefCell::new(rustfft::FftPlanner::new());
+}
+
+/// A complex FFT plan of length n, forward or inverse (cached per thread,
+/// like the real plans, so every stage shares one plan per size).
+pub fn complex_plan(n: usize, inverse: bool) -> Arc<dyn rustfft::Fft<f64>> {
+    COMPLEX_PLANNER.with(|p| {
+        let mut p = p.borrow_mut();
+        if inverse {
+            p.plan_fft_inverse(n)
+        } else {
+            p.plan_fft_forward(n)
+        }
+    })
 }
 
 /// A forward real FFT plan of length n (cached per thread by realfft).

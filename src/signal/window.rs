@@ -82,7 +82,7 @@ pub fn taper_energy(len: usize, fade_in_len: usize, fade_out_len: usize) -> f64 
 #[cfg(test)]
 mod tests {
     use super::*;
-    use rustfft::{FftPlanner, num_complex::Complex};
+    use rustfft::num_complex::Complex;
 
     /// Highest sidelobe in dB relative to the main lobe, from a heavily
     /// zero-padded FFT: the first local minimum ends the main lobe.
@@ -92,7 +92,7 @@ mod tests {
         let mut buf: Vec<Complex<f64>> = (0..pad)
             .map(|n| Complex::new(if n < len { w.value(n, len) } else { 0.0 }, 0.0))
             .collect();
-        FftPlanner::new().plan_fft_forward(pad).process(&mut buf);
+        crate::signal::fft::complex_plan(pad, false).process(&mut buf);
         let mag: Vec<f64> = buf[..pad / 2].iter().map(|c| c.norm()).collect();
         let mut k = 1;
         while k + 1 < mag.len() && mag[k + 1] < mag[k] {
