@@ -40,9 +40,6 @@ use crate::signal::fft;
 /// Harmonic orders whose responses are cut off: 2 to this.
 pub const EXCLUDED_ORDERS: u32 = 5;
 
-/// The recorded channels are judged clipping at or above this (−0.01 dBFS).
-pub const CLIP_LEVEL: f64 = 0.998_85;
-
 /// Median |Z| above this over the band is no driver but an open circuit
 /// (the input's own impedance, or a disconnected lead).
 pub const OPEN_CIRCUIT_OHMS: f64 = 1000.0;
@@ -228,7 +225,7 @@ fn check_levels(input: &ImpedanceInput) -> Result<()> {
     for (what, x) in channels {
         let Some(x) = x else { continue };
         let p = peak(x);
-        if p >= CLIP_LEVEL {
+        if p >= crate::analysis::CLIP_LEVEL {
             return Err(Error::input(format!(
                 "the {what} channel clips (peak {:.2} dBFS); the impedance of a clipped recording is wrong: lower the amplifier's level or pad that input further, check with a voltmeter that the input sees no more than its rated voltage, and measure again",
                 20.0 * p.log10()

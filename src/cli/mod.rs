@@ -9,6 +9,7 @@ mod compare;
 mod demo;
 mod devices;
 mod export;
+mod impedance;
 mod measure;
 mod report;
 mod sweep;
@@ -46,6 +47,8 @@ enum Command {
     Measure(measure::Args),
     /// Analyse a recording of a gliss sweep made with any recorder into a measurement folder.
     Analyze(analyze::Args),
+    /// A loudspeaker driver's impedance through a sense resistor, and its small-signal (Thiele–Small) parameters.
+    Impedance(impedance::Args),
     /// Run the whole job on the built-in virtual loudspeaker and room (simulated).
     Demo(demo::Args),
     /// Average several microphone positions of one condition into one folder.
@@ -65,6 +68,7 @@ fn wants_plots(command: &Command) -> bool {
     match command {
         Command::Measure(a) => !a.output.no_plots,
         Command::Analyze(a) => !a.output.no_plots,
+        Command::Impedance(a) => !a.no_plots,
         Command::Demo(a) => !a.output.no_plots,
         Command::Average(a) => !a.no_plots,
         Command::Compare(a) => !a.no_plots,
@@ -88,6 +92,7 @@ pub fn main() -> ExitCode {
         Command::Devices(a) => devices::run(a),
         Command::Measure(a) => measure::run(a),
         Command::Analyze(a) => analyze::run(a),
+        Command::Impedance(a) => impedance::run(a),
         Command::Demo(a) => demo::run(a),
         Command::Calibrate(a) => calibrate::run(a),
         Command::Average(a) => average::run(a),

@@ -786,6 +786,7 @@ fn analysis_job(
         target: m.target.clone(),
         impulse: false,
         recovered_sweep: None,
+        impedance: None,
     })
 }
 

@@ -1,0 +1,118 @@
+//! A driver's electrical impedance: |Z| in ohms above, its phase below,
+//! the fitted lumped model faint over the measurement and fs marked.
+
+use std::path::Path;
+
+use plotters::style::RGBColor;
+
+use super::annotate::Marks;
+use super::axes::{Clip, draw_log_panel};
+use super::theme::{BLUE, ORANGE, canvas, plot_error};
+use crate::analysis::impedance::Impedance;
+use crate::analysis::thiele_small::{Lumped, ThieleSmall};
+use crate::error::Result;
+
+/// The model's colours: the measurement's, lightened (faint).
+const MODEL_MAGNITUDE: RGBColor = RGBColor(140, 180, 215);
+const MODEL_PHASE: RGBColor = RGBColor(235, 180, 135);
+/// The resonance's mark.
+const MARK: RGBColor = RGBColor(90, 90, 90);
+
+/// Draws the impedance (with the fitted model and fs when the parameters
+/// were read) to a PNG.
+pub fn impedance_png(
+    path: &Path,
+    title: &str,
+    z: &Impedance,
+    ts: Option<&ThieleSmall>,
+) -> Result<()> {
+    let err = plot_error(path);
+    let (root, body) = canvas(path, &format!("Impedance — {title}"))?;
+    let (top, bottom) = body.split_vertically((body.dim_in_pixel().1 as f64 * 0.64) as u32);
+    let f = &z.frequency_hz;
+    let f1 = f.first().copied().unwrap_or(20.0);
+    let f2 = f.last().copied().unwrap_or(20_000.0);
+    let model = ts.map(|t| Lumped {
+        re: t.re_ohm,
+        le: t.le_mh * 1e-3,
+        res: t.res_ohm,
+        qms: t.qms,
+        fs: t.fs_hz,
+    });
+    let model_z: Vec<_> = model.map_or_else(Vec::new, |m| f.iter().map(|&x| m.z(x)).collect());
+    let model_mag: Vec<f64> = model_z.iter().map(|c| c.norm()).collect();
+    let model_phase: Vec<f64> = model_z.iter().map(|c| c.arg().to_degrees()).collect();
+    let top_ohm = z
+        .magnitude_ohm
+        .iter()
+        .chain(&model_mag)
+        .copied()
+        .filter(|v| v.is_finite())
+        .fold(1.0f64, f64::max);
+    // a round top: the next multiple of 5 Ω above 110 % of the peak
+    let hi = ((top_ohm * 1.1) / 5.0).ceil() * 5.0;
+    let mut marks = Marks::new();
+    let fs_line = ts.map(|t| ([t.fs_hz, t.fs_hz], format!("fs {:.1} Hz", t.fs_hz)));
+    let mut upper: Vec<(&[f64], &[f64], RGBColor, String)> =
+        vec![(f, &z.magnitude_ohm, BLUE, "|Z| measured".to_string())];
+    let fs_mag = [0.0, hi];
+    if let Some(t) = ts {
+        upper.push((
+            f,
+            &model_mag,
+            MODEL_MAGNITUDE,
+            format!(
+                "lumped model (Re {:.2} Ω, Qts {:.3}, Le {:.3} mH)",
+                t.re_ohm, t.qts, t.le_mh
+            ),
+        ));
+    }
+    if let Some((x, label)) = &fs_line {
+        upper.push((x, &fs_mag, MARK, label.clone()));
+    }
+    draw_log_panel(
+        &top,
+        (f1, f2),
+        (0.0, hi),
+        "Impedance magnitude (Ω)",
+        false,
+        None,
+        &upper,
+        None,
+        Clip::Nothing,
+        &mut marks,
+        "magnitude",
+    )
+    .map_err(plot_error(path))?;
+    let mut lower: Vec<(&[f64], &[f64], RGBColor, String)> =
+        vec![(f, &z.phase_deg, ORANGE, "phase measured".to_string())];
+    if ts.is_some() {
+        lower.push((
+            f,
+            &model_phase,
+            MODEL_PHASE,
+            "phase of the model".to_string(),
+        ));
+    }
+    let fs_phase = [-90.0, 90.0];
+    if let Some((x, _)) = &fs_line {
+        lower.push((x, &fs_phase, MARK, String::new()));
+    }
+    draw_log_panel(
+        &bottom,
+        (f1, f2),
+        (-90.0, 90.0),
+        "Phase (degrees)",
+        true,
+        None,
+        &lower,
+        None,
+        Clip::End,
+        &mut marks,
+        "phase",
+    )
+    .map_err(plot_error(path))?;
+    root.present().map_err(err)?;
+    drop(root);
+    marks.write(path)
+}
