@@ -18,6 +18,16 @@ const MODEL_PHASE: RGBColor = RGBColor(235, 180, 135);
 /// The resonance's mark.
 const MARK: RGBColor = RGBColor(90, 90, 90);
 
+/// A curve on the 48-per-octave grid as dashes (4 points drawn, 3 left
+/// out: a break, as the panels draw a non-finite value), so that the
+/// measurement shows through the model drawn over it.
+fn dashed(values: impl Iterator<Item = f64>) -> Vec<f64> {
+    values
+        .enumerate()
+        .map(|(i, v)| if i % 7 < 4 { v } else { f64::NAN })
+        .collect()
+}
+
 /// Draws the impedance (with the fitted model and fs when the parameters
 /// were read) to a PNG.
 pub fn impedance_png(
@@ -40,8 +50,8 @@ pub fn impedance_png(
         fs: t.fs_hz,
     });
     let model_z: Vec<_> = model.map_or_else(Vec::new, |m| f.iter().map(|&x| m.z(x)).collect());
-    let model_mag: Vec<f64> = model_z.iter().map(|c| c.norm()).collect();
-    let model_phase: Vec<f64> = model_z.iter().map(|c| c.arg().to_degrees()).collect();
+    let model_mag: Vec<f64> = dashed(model_z.iter().map(|c| c.norm()));
+    let model_phase: Vec<f64> = dashed(model_z.iter().map(|c| c.arg().to_degrees()));
     let top_ohm = z
         .magnitude_ohm
         .iter()
@@ -49,8 +59,9 @@ pub fn impedance_png(
         .copied()
         .filter(|v| v.is_finite())
         .fold(1.0f64, f64::max);
-    // a round top: the next multiple of 5 Ω above 110 % of the peak
-    let hi = ((top_ohm * 1.1) / 5.0).ceil() * 5.0;
+    // a round top: the next multiple of 5 Ω above 130 % of the peak,
+    // room for the legend above the curves
+    let hi = ((top_ohm * 1.3) / 5.0).ceil() * 5.0;
     let mut marks = Marks::new();
     let fs_line = ts.map(|t| ([t.fs_hz, t.fs_hz], format!("fs {:.1} Hz", t.fs_hz)));
     let mut upper: Vec<(&[f64], &[f64], RGBColor, String)> =
@@ -62,7 +73,7 @@ pub fn impedance_png(
             &model_mag,
             MODEL_MAGNITUDE,
             format!(
-                "lumped model (Re {:.2} Ω, Qts {:.3}, Le {:.3} mH)",
+                "fitted model, dashed (Re {:.2} Ω, Qts {:.3}, Le {:.3} mH)",
                 t.re_ohm, t.qts, t.le_mh
             ),
         ));
@@ -91,7 +102,7 @@ pub fn impedance_png(
             f,
             &model_phase,
             MODEL_PHASE,
-            "phase of the model".to_string(),
+            "phase of the model, dashed".to_string(),
         ));
     }
     let fs_phase = [-90.0, 90.0];
