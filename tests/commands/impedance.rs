@@ -1,0 +1,166 @@
+//! `gliss impedance` and `gliss measure --impedance`: a driver's impedance
+//! through a sense resistor and its small-signal parameters, on the
+//! virtual system's woofer (invented: Re 5.6 Ω, fs 48 Hz, Qms 3.8, Qes
+//! 0.42, Le 0.45 mH, Mms 14 g; `VirtualDriver::kestrel_woofer`).
+
+use std::path::Path;
+
+use crate::util::{json, ok, read_wav, refused, snapshot, write_wav_f32};
+
+/// Measures the virtual woofer behind 10 Ω into `out`.
+fn measure_woofer(dir: &Path, out: &str) -> String {
+    ok(
+        dir,
+        &[
+            "measure",
+            "--device",
+            "virtual",
+            "--impedance",
+            "--sense-ohms",
+            "10",
+            "--start",
+            "10",
+            "--length",
+            "3",
+            "--out",
+            out,
+        ],
+    )
+}
+
+#[test]
+fn the_virtual_woofer_measures_as_its_model() {
+    let t = tempfile::tempdir().unwrap();
+    let said = measure_woofer(t.path(), "woofer");
+    assert!(said.contains("Qts"), "{said}");
+    let r = json(&t.path().join("woofer/results.json"));
+    let ts = &r["thiele_small"];
+    let get = |k: &str| ts[k].as_f64().unwrap_or_else(|| panic!("{k} in {ts}"));
+    let rel = |a: f64, b: f64| (a - b).abs() / b;
+    // the model's own values (invented driver); the tolerances
+    assert!(rel(get("fs_hz"), 48.0) < 0.005, "{ts}");
+    assert!(rel(get("re_ohm"), 5.6) < 0.01, "{ts}");
+    assert!(rel(get("qms"), 3.8) < 0.03, "{ts}");
+    assert!(rel(get("qes"), 0.42) < 0.03, "{ts}");
+    // Qts = Qms·Qes/(Qms + Qes) = 3.8·0.42/4.22 = 0.37820 [calc]
+    assert!(rel(get("qts"), 0.378_20) < 0.03, "{ts}");
+    assert!(rel(get("le_mh"), 0.45) < 0.05, "{ts}");
+    // |Z| on the grid peaks at Re + Res = Re·(1 + Qms/Qes) = 56.27 Ω [calc]
+    let m: Vec<f64> = r["impedance"]["magnitude_ohm"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    let peak = m[..m.len() / 2].iter().copied().fold(0.0, f64::max);
+    assert!(rel(peak, 56.27) < 0.01, "{peak}");
+    let manifest = json(&t.path().join("woofer/manifest.json"));
+    assert_eq!(manifest["kind"], "impedance");
+    let csv = std::fs::read_to_string(t.path().join("woofer/impedance.csv")).unwrap();
+    assert!(csv.starts_with("frequency_hz,magnitude_ohm,phase_deg,real_ohm,imaginary_ohm\n"));
+    assert!(csv.lines().count() > 10 * m.len(), "full resolution");
+    assert!(t.path().join("woofer/plots/impedance.png").is_file());
+    // the report shows the parameters
+    ok(t.path(), &["report", "woofer", "--out", "r.html"]);
+    let html = std::fs::read_to_string(t.path().join("r.html")).unwrap();
+    assert!(
+        html.contains("Small-signal parameters"),
+        "no parameters table"
+    );
+    assert!(html.contains("Qts"));
+}
+
+#[test]
+fn the_impedance_command_reads_the_same_recording_and_refuses_swapped_channels() {
+    let t = tempfile::tempdir().unwrap();
+    measure_woofer(t.path(), "woofer");
+    let (rate, channels) = read_wav(&t.path().join("woofer/recording.wav"));
+    write_wav_f32(&t.path().join("rec.wav"), rate, &channels);
+    std::fs::copy(
+        t.path().join("woofer/stimulus.wav"),
+        t.path().join("sweep.wav"),
+    )
+    .unwrap();
+    let args = |r: &'static str, c: &'static str, out: &'static str| {
+        vec![
+            "impedance",
+            "rec.wav",
+            "--sweep",
+            "sweep.wav",
+            "--reference",
+            r,
+            "--channel",
+            c,
+            "--sense-ohms",
+            "10",
+            "--out",
+            out,
+        ]
+    };
+    ok(t.path(), &args("1", "2", "again"));
+    let a = json(&t.path().join("woofer/results.json"));
+    let b = json(&t.path().join("again/results.json"));
+    let fs = |v: &serde_json::Value| v["thiele_small"]["fs_hz"].as_f64().unwrap();
+    assert!(
+        (fs(&a) - fs(&b)).abs() < 1e-3 * fs(&a),
+        "{} {}",
+        fs(&a),
+        fs(&b)
+    );
+    let before = snapshot(t.path());
+    let e = refused(t.path(), &args("2", "1", "swapped"));
+    assert!(e.contains("swapped"), "{e}");
+    assert_eq!(snapshot(t.path()), before, "a refused run writes nothing");
+    let e = refused(
+        t.path(),
+        &[
+            "impedance",
+            "rec.wav",
+            "--sweep",
+            "sweep.wav",
+            "--reference",
+            "1",
+            "--channel",
+            "2",
+            "--sense-ohms",
+            "0",
+            "--out",
+            "zero",
+        ],
+    );
+    assert!(e.contains("--sense-ohms"), "{e}");
+}
+
+#[test]
+fn an_open_circuit_is_refused() {
+    // no driver: the second input sees the first (a lead off the driver,
+    // the input's own impedance in its place)
+    let t = tempfile::tempdir().unwrap();
+    measure_woofer(t.path(), "woofer");
+    let (rate, channels) = read_wav(&t.path().join("woofer/recording.wav"));
+    let open = vec![channels[0].clone(), channels[0].clone()];
+    write_wav_f32(&t.path().join("open.wav"), rate, &open);
+    std::fs::copy(
+        t.path().join("woofer/stimulus.wav"),
+        t.path().join("sweep.wav"),
+    )
+    .unwrap();
+    let e = refused(
+        t.path(),
+        &[
+            "impedance",
+            "open.wav",
+            "--sweep",
+            "sweep.wav",
+            "--reference",
+            "1",
+            "--channel",
+            "2",
+            "--sense-ohms",
+            "10",
+            "--out",
+            "open",
+        ],
+    );
+    assert!(e.contains("open circuit"), "{e}");
+}
