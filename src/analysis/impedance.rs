@@ -279,7 +279,7 @@ fn judge(z: &mut Impedance, two_channels: bool) -> Result<()> {
         ));
     }
     let typical = median(z.magnitude_ohm.clone());
-    if !(typical < OPEN_CIRCUIT_OHMS) {
+    if typical.is_nan() || typical >= OPEN_CIRCUIT_OHMS {
         return Err(Error::input(format!(
             "the impedance is {} over most of the band: no driver is connected (an open circuit); check the leads and the terminals, then measure again",
             if typical.is_finite() {

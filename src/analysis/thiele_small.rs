@@ -317,10 +317,11 @@ fn solve5(mut a: [[f64; 5]; 5], mut b: [f64; 5]) -> Option<[f64; 5]> {
         }
         a.swap(c, p);
         b.swap(c, p);
+        let pivot = a[c];
         for i in c + 1..5 {
-            let m = a[i][c] / a[c][c];
-            for k in c..5 {
-                a[i][k] -= m * a[c][k];
+            let m = a[i][c] / pivot[c];
+            for (x, p) in a[i][c..].iter_mut().zip(&pivot[c..]) {
+                *x -= m * p;
             }
             b[i] -= m * b[c];
         }
@@ -488,7 +489,7 @@ pub fn added_mass(free: &ThieleSmall, loaded_fs: f64, m_g: f64, cone_mm: f64) ->
     positive(m_g, "--added-mass")?;
     positive(cone_mm, "--cone-diameter")?;
     let ratio = (free.fs_hz / loaded_fs).powi(2) - 1.0;
-    if !(ratio > 0.02) {
+    if ratio.is_nan() || ratio <= 0.02 {
         return Err(Error::input(format!(
             "with the added mass the resonance is {loaded_fs:.2} Hz against {:.2} Hz in free air: it must fall clearly (at least 1 %) for the method; use a larger mass (one that lowers fs by 20 to 40 %), and check that FREE_DIR is the same driver unloaded",
             free.fs_hz
@@ -506,7 +507,7 @@ pub fn added_mass(free: &ThieleSmall, loaded_fs: f64, m_g: f64, cone_mm: f64) ->
 
 /// The closed-box method: in a sealed box of volume `vb_l` litres the
 /// resonance rises to fc with electrical Q Qec; Vas = Vb·(fc·Qec/(fs·Qes) − 1)
-/// (Small 1972, closed-box systems [mem]). With a cone diameter, Cms, Mms
+/// (Small 1972, closed-box systems (from memory)). With a cone diameter, Cms, Mms
 /// and Bl follow from Vas and Sd.
 pub fn closed_box(
     free: &ThieleSmall,
@@ -516,7 +517,7 @@ pub fn closed_box(
 ) -> Result<Mechanics> {
     positive(vb_l, "--box-volume")?;
     let ratio = boxed.fs_hz * boxed.qes / (free.fs_hz * free.qes) - 1.0;
-    if !(ratio > 0.02) {
+    if ratio.is_nan() || ratio <= 0.02 {
         return Err(Error::input(format!(
             "in the box the resonance is {:.2} Hz (Qes {:.3}) against {:.2} Hz (Qes {:.3}) in free air: it must rise for the method; check the box is sealed and FREE_DIR is the same driver in free air",
             boxed.fs_hz, boxed.qes, free.fs_hz, free.qes
