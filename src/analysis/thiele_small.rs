@@ -29,7 +29,7 @@ use serde::{Deserialize, Serialize};
 use crate::error::{Error, Result};
 use crate::model::{Code, Warning};
 
-/// Density of air, kg/m³ (about 20 °C) [mem, agrees with REFERENCES.md].
+/// Density of air, kg/m³ (about 20 °C) (from memory; the team's references agree).
 pub const RHO: f64 = 1.18;
 /// Speed of sound, m/s (about 20 °C).
 pub const C: f64 = 343.0;
