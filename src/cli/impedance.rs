@@ -16,6 +16,9 @@ use gliss::signal::wav::decode_wav;
 /// The cautions every impedance measurement needs, shared by `impedance`
 /// and `measure --impedance`.
 pub const CAUTIONS: &str = "\
+Example:\n  gliss sweep --start 10 --out sweep.wav\n  \
+(play sweep.wav into the amplifier; record the two inputs below)\n  \
+gliss impedance rec.wav --sweep sweep.wav --reference 1 --channel 2 --sense-ohms 10 --out woofer\n\n\
 Wiring: amplifier output -> sense resistor R -> driver -> back to the amplifier's \
 return. The reference input records the amplifier side of R, the driver input the \
 voltage across the driver, both against the amplifier's return (the inputs' grounds \
@@ -27,12 +30,12 @@ each input lead (e.g. 10 kOhm over 1 kOhm, /11) and, before connecting the sound
 card, play a sine at the level you will measure with and check with a voltmeter \
 (AC volts) that each input would see less than its rated level.\n\
 - The sense resistor carries the driver's whole current: rate it for the power \
-(I^2 * R) with room to spare; a 5 W to 10 W wirewound of 1 to 10 ohm near the \
-driver's nominal impedance is usual. Measure its value with an ohmmeter and give \
+(I^2 * R) with room to spare; a 5 W to 10 W non-inductive power resistor of 1 to \
+10 ohm, near the driver's nominal impedance, is usual. Measure its value with an ohmmeter and give \
 that to --sense-ohms.\n\
 - Small-signal parameters depend on level: drive the driver gently (well under \
 1 V at its terminals is usual, IEC 60268-5 asks for a level in the driver's linear \
-range) and give the level with the results.\n\
+range) and note the level with the results.\n\
 - Mind the excursion: a driver in free air at its resonance moves most; fix it \
 (magnet down or clamped, the cone free and away from walls), and keep the level \
 low so the cone stays well within its travel.\n\n\
@@ -57,9 +60,10 @@ pub struct Args {
     /// The channel at the amplifier side of the sense resistor, from 1.
     #[arg(long, value_name = "N", required_unless_present = "constant_current")]
     pub reference: Option<usize>,
-    /// The channel across the driver, from 1.
-    #[arg(long, value_name = "N", default_value_t = 2)]
-    pub channel: usize,
+    /// The channel across the driver, from 1 [default: 2; with
+    /// --constant-current 1].
+    #[arg(long, value_name = "N")]
+    pub channel: Option<usize>,
     /// The sense resistor in series with the driver, ohms (as measured
     /// with an ohmmeter).
     #[arg(long, value_name = "R", allow_hyphen_values = true)]
@@ -189,7 +193,8 @@ fn read(path: &PathBuf, what: &str) -> Result<(Vec<u8>, gliss::signal::wav::WavD
 
 /// Runs `gliss impedance`.
 pub fn run(a: Args) -> Result<()> {
-    if a.channel == 0 {
+    let channel = a.channel.unwrap_or(if a.constant_current { 1 } else { 2 });
+    if channel == 0 {
         return Err(Error::parameter(
             "--channel counts from 1; use --channel 2 for the second channel",
         ));
@@ -209,7 +214,7 @@ pub fn run(a: Args) -> Result<()> {
         plots: !a.no_plots,
         recording_bytes,
         recording,
-        channel: a.channel - 1,
+        channel: channel - 1,
         stimulus_bytes,
         stimulus,
         design,
