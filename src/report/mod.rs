@@ -561,6 +561,8 @@ fn key_numbers(out: &mut String, f: &Folder, m: &Manifest, r: &Results) {
                 hz(g.resolved_to_hz)
             ),
         ),
+        // an impedance is taken from the whole response, with no room in it
+        None if r.impedance.is_some() => {}
         None if r.average.is_none() => key(
             out,
             "Gate",

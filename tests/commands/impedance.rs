@@ -164,3 +164,62 @@ fn an_open_circuit_is_refused() {
     );
     assert!(e.contains("open circuit"), "{e}");
 }
+
+#[test]
+fn a_clipping_reference_is_refused_and_a_small_sense_resistor_warned_of() {
+    let t = tempfile::tempdir().unwrap();
+    measure_woofer(t.path(), "woofer");
+    let (rate, channels) = read_wav(&t.path().join("woofer/recording.wav"));
+    // the reference 26 dB hotter, clipped at full scale
+    let hot: Vec<f64> = channels[0]
+        .iter()
+        .map(|v| (v * 20.0).clamp(-1.0, 1.0))
+        .collect();
+    write_wav_f32(&t.path().join("hot.wav"), rate, &[hot, channels[1].clone()]);
+    std::fs::copy(
+        t.path().join("woofer/stimulus.wav"),
+        t.path().join("sweep.wav"),
+    )
+    .unwrap();
+    let e = refused(
+        t.path(),
+        &[
+            "impedance",
+            "hot.wav",
+            "--sweep",
+            "sweep.wav",
+            "--reference",
+            "1",
+            "--channel",
+            "2",
+            "--sense-ohms",
+            "10",
+            "--out",
+            "hot",
+        ],
+    );
+    assert!(e.contains("reference channel clips"), "{e}");
+    // 0.1 Ω against a woofer of 5.6 to 56 Ω: V1 − V2 is some 55 dB down
+    // at resonance, the noise reaches Z 55 dB louder: warned
+    ok(
+        t.path(),
+        &[
+            "measure",
+            "--device",
+            "virtual",
+            "--impedance",
+            "--sense-ohms",
+            "0.1",
+            "--start",
+            "10",
+            "--length",
+            "3",
+            "--out",
+            "small",
+            "--no-plots",
+        ],
+    );
+    let r = json(&t.path().join("small/results.json"));
+    let codes = r["warning_codes"].to_string();
+    assert!(codes.contains("sense-resistor-mismatch"), "{codes}");
+}
