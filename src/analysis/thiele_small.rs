@@ -3,8 +3,8 @@
 //! 1972; the measurement conditions of IEC 60268-5).
 //!
 //! Two steps. First the classical closed forms read off the resonance
-//! ([`closed_form`]): Re from the low-frequency limit (the least real
-//! part of Z over the band) or as given, fs and Zmax at the peak of |Z|,
+//! ([`closed_form`]): Re from the low-frequency limit (where the real
+//! part of Z bottoms out over the band) or as given, fs and Zmax at the peak of |Z|,
 //! r0 = Zmax/Re, f1 and f2 where |Z| = √(Re·Zmax) on either side, then
 //! Qms = fs·√r0/(f2 − f1), Qes = Qms/(r0 − 1), Qts = Qms·Qes/(Qms + Qes).
 //! Then a least-squares fit ([`fit`]) of the lumped model
@@ -152,15 +152,26 @@ fn crossing(f: &[f64], y: &[f64], a: usize, b: usize, level: f64) -> f64 {
     (f[a].ln() + u * (f[b].ln() - f[a].ln())).exp()
 }
 
+/// Re from the impedance: the real part of Z is Re plus the motional
+/// part's, which is never negative, and an inductance adds none, so Re is
+/// where the real part bottoms out. Its 2nd percentile over the band
+/// rather than its least value, so that a few noisy points cannot pull
+/// it down (the fit refines it).
+fn low_frequency_limit(z: &[Complex<f64>]) -> f64 {
+    let mut re: Vec<f64> = z.iter().map(|c| c.re).filter(|v| v.is_finite()).collect();
+    re.sort_by(f64::total_cmp);
+    re.get(re.len() / 50).copied().unwrap_or(f64::NAN)
+}
+
 /// The refusal of a resonance that cannot be read, with `why`.
 fn withheld(why: &str) -> Error {
     Error::input(format!(
-        "the small-signal parameters cannot be read: {why}; sweep from a lower frequency (--start-hz) or measure the driver out of its box"
+        "the small-signal parameters cannot be read: {why}; sweep from a lower frequency (gliss sweep --start 10), check the sense resistor and the wiring, or measure the driver out of its box"
     ))
 }
 
 /// The closed forms from Z on a log grid (`f` rising); `re` given or
-/// `None` for the least real part of Z. Refuses a resonance at the band's
+/// `None` for the 2nd percentile of the real part of Z. Refuses a resonance at the band's
 /// edge or without both −3 dB points (in the √(Re·Zmax) sense) inside it.
 pub fn closed_form(f: &[f64], z: &[Complex<f64>], re: Option<f64>) -> Result<ClosedForm> {
     let m: Vec<f64> = z.iter().map(|c| c.norm()).collect();
@@ -190,7 +201,7 @@ pub fn closed_form(f: &[f64], z: &[Complex<f64>], re: Option<f64>) -> Result<Clo
     let zmax = yb - 0.25 * (ya - yc) * p;
     let re = match re {
         Some(r) => r,
-        None => z.iter().map(|c| c.re).fold(f64::INFINITY, f64::min),
+        None => low_frequency_limit(z),
     };
     if !(re > 0.0 && zmax > re * 1.1) {
         return Err(withheld(&format!(
