@@ -223,3 +223,96 @@ fn a_clipping_reference_is_refused_and_a_small_sense_resistor_warned_of() {
     let codes = r["warning_codes"].to_string();
     assert!(codes.contains("sense-resistor-mismatch"), "{codes}");
 }
+
+#[test]
+fn the_added_mass_method_gives_the_model_s_vas_through_the_binary() {
+    use gliss::audio::virtual_system::VirtualDriver;
+    let t = tempfile::tempdir().unwrap();
+    let sweep = crate::util::make_sweep(t.path(), "sweep.wav", &["--start", "10", "--length", "3"]);
+    let (rate, s) = read_wav(&sweep);
+    let fs = f64::from(rate);
+    let free = VirtualDriver::kestrel_woofer(10.0);
+    // 6 g on the cone of the 14 g woofer: fs falls by √(14/20) [alg]
+    let loaded = VirtualDriver {
+        mms_kg: free.mms_kg + 0.006,
+        // the same suspension and motor: Qms and Qes rise with √(Mms)
+        qms: free.qms * (20.0f64 / 14.0).sqrt(),
+        qes: free.qes * (20.0f64 / 14.0).sqrt(),
+        fs_hz: free.fs_hz * (14.0f64 / 20.0).sqrt(),
+        ..free
+    };
+    for (d, name) in [(free, "free.wav"), (loaded, "loaded.wav")] {
+        let (v1, v2) = d.render(&s[0], fs, 100);
+        write_wav_f32(&t.path().join(name), rate, &[v1, v2]);
+    }
+    let common = [
+        "--sweep",
+        "sweep.wav",
+        "--reference",
+        "1",
+        "--channel",
+        "2",
+        "--sense-ohms",
+        "10",
+    ];
+    let mut args = vec!["impedance", "free.wav", "--out", "free"];
+    args.extend_from_slice(&common);
+    ok(t.path(), &args);
+    let mut args = vec![
+        "impedance",
+        "loaded.wav",
+        "--out",
+        "loaded",
+        "--added-mass",
+        "6",
+        "--cone-diameter",
+        "105",
+        "--free-air",
+        "free",
+    ];
+    args.extend_from_slice(&common);
+    let said = ok(t.path(), &args);
+    assert!(said.contains("Vas"), "{said}");
+    let m = &json(&t.path().join("loaded/results.json"))["thiele_small"]["mechanics"];
+    // the model: Cms = 1/((2π·48)²·0.014), Sd = π·0.0525², Vas = ρc²Sd²Cms
+    // with ρ = 1.18 kg/m³, c = 343 m/s (REFERENCES.md) [calc]
+    let w = std::f64::consts::TAU * 48.0;
+    let cms = 1.0 / (w * w * 0.014);
+    let sd = std::f64::consts::PI * 0.0525f64.powi(2);
+    let vas_l = 1.18 * 343.0f64.powi(2) * sd * sd * cms * 1e3;
+    let got = m["vas_l"].as_f64().unwrap();
+    assert!(
+        (got - vas_l).abs() / vas_l < 0.05,
+        "Vas {got} l against {vas_l} l: {m}"
+    );
+    let mms = m["mms_g"].as_f64().unwrap();
+    assert!((mms - 14.0).abs() / 14.0 < 0.05, "Mms {mms} g");
+    // a folder that is no impedance measurement is refused as FREE_DIR
+    ok(
+        t.path(),
+        &[
+            "analyze",
+            "free.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "plain",
+            "--no-plots",
+        ],
+    );
+    let mut args = vec![
+        "impedance",
+        "loaded.wav",
+        "--out",
+        "wrong",
+        "--added-mass",
+        "6",
+        "--cone-diameter",
+        "105",
+        "--free-air",
+        "plain",
+    ];
+    args.extend_from_slice(&common);
+    let e = refused(t.path(), &args);
+    assert!(e.contains("not an impedance measurement"), "{e}");
+}
