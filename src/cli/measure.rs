@@ -80,7 +80,8 @@ pub struct Args {
     pub channel: Option<usize>,
     /// An input wired straight back from an output that also plays the
     /// sweep (a loopback): the response is divided by it, which removes the
-    /// interface's own response and latency.
+    /// interface's own response and latency. With --impedance: the input at
+    /// the amplifier side of the sense resistor [default with --impedance: 1].
     #[arg(long, value_name = "N")]
     pub reference: Option<usize>,
     /// Play N sweeps with short gaps and average them synchronously (each
