@@ -223,7 +223,7 @@ impl PlotKind {
             PlotKind::CompareReverberation => {
                 format!("Reverberation time per band of {}.", f.inputs)
             }
-            PlotKind::Impedance => "Electrical impedance of the driver: magnitude in ohms above, phase below, on a log frequency axis; the fitted lumped model drawn faint over the measurement, the resonance fs marked.".to_string(),
+            PlotKind::Impedance => "Electrical impedance of the driver: magnitude in ohms above, phase below, on a log frequency axis; the fitted lumped model dashed over the measurement, the resonance fs marked.".to_string(),
         }
     }
 }

@@ -102,11 +102,18 @@ fn free_air(dir: &Path) -> Result<ThieleSmall> {
 pub fn analyse(job: &Job, imp: &ImpedanceJob) -> Result<ImpedanceOutcome> {
     let channels = &job.recording.channels;
     if let Some(r) = imp.reference {
-        if r >= channels.len() || r == job.channel {
+        if r == job.channel {
             return Err(Error::parameter(format!(
-                "--reference {} must be another channel of the recording, which has {}",
+                "--reference {} is also --channel: give the channel at the amplifier side of the sense resistor as --reference and the one across the driver as --channel",
+                r + 1
+            )));
+        }
+        if r >= channels.len() {
+            return Err(Error::parameter(format!(
+                "--reference {} does not exist: the recording has {} channel{}",
                 r + 1,
-                channels.len()
+                channels.len(),
+                if channels.len() == 1 { "" } else { "s" }
             )));
         }
     }
