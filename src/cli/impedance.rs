@@ -279,6 +279,12 @@ pub fn print_summary(out: &str, o: &Outcome) {
                 t.res_ohm,
                 t.fit_rms_percent
             );
+            if let Some(s) = &t.semi_inductance {
+                println!(
+                    "semi-inductance model: K {:.4e} Ω·s^n, n {:.3} (fit {:.2} % RMS)",
+                    s.k, s.n, s.fit_rms_percent
+                );
+            }
             if let Some(m) = &t.mechanics {
                 let opt = |v: Option<f64>, unit: &str, d: usize| {
                     v.map_or("—".to_string(), |v| format!("{v:.d$} {unit}"))

@@ -101,6 +101,21 @@ pub(super) fn parameters(out: &mut String, r: &Results, counters: &mut super::Co
             num(c.f2_hz, 2)
         ),
     );
+    if let Some(s) = &t.semi_inductance {
+        row(
+            out,
+            "Semi-inductance",
+            &format!("K {:.4e}, n {}", s.k, num(s.n, 3)),
+            "Ω·sⁿ",
+            &format!(
+                "the voice coil as K·(jω)ⁿ in place of jωLe (Leach 2002): fit {} % RMS, Re {} Ω, fs {} Hz, Qms {}",
+                num(s.fit_rms_percent, 2),
+                num(s.re_ohm, 3),
+                num(s.fs_hz, 2),
+                num(s.qms, 3)
+            ),
+        );
+    }
     if let Some(m) = &t.mechanics {
         let method = format!(
             "{} method; fs {} Hz in that measurement",
