@@ -7,8 +7,9 @@
 use criterion::{Criterion, criterion_group, criterion_main};
 use std::hint::black_box;
 
-use gliss::analysis::{AnalysisConfig, analyze, room, smoothing};
-use gliss::audio::virtual_system::VirtualSystem;
+use gliss::analysis::impedance::{self, ImpedanceInput};
+use gliss::analysis::{AnalysisConfig, analyze, room, smoothing, thiele_small};
+use gliss::audio::virtual_system::{VirtualDriver, VirtualSystem};
 use gliss::deconv;
 use gliss::signal::sweep::SweepParams;
 
@@ -100,6 +101,47 @@ fn bench(c: &mut Criterion) {
         "octave + third-octave bands, all parameters, 2 s response",
         |b| b.iter(|| room::analyze(black_box(&ir2), design.fs(), 20.0, 20_000.0)),
     );
+    g.finish();
+    impedance(c);
+}
+
+/// Impedance and the small-signal fit for a 5 s sweep (1 s tail) through
+/// the virtual woofer behind 10 Ω: both channels deconvolved, Z on the
+/// grid, closed forms and the Levenberg–Marquardt fit.
+fn impedance(c: &mut Criterion) {
+    let design = SweepParams {
+        requested_length_s: 5.0,
+        tail_s: 1.0,
+        start_hz: 10.0,
+        ..SweepParams::default()
+    }
+    .design()
+    .expect("a valid sweep");
+    let stimulus = design.generate();
+    let driver = VirtualDriver::kestrel_woofer(10.0);
+    let (v1, v2) = driver.render(&stimulus, design.fs(), 293);
+    let input = ImpedanceInput {
+        reference: Some(&v1),
+        driver: &v2,
+        stimulus: &stimulus,
+        fs: design.fs(),
+        band: (design.params.start_hz, design.params.end_hz),
+        rate_s: design.harmonic_offset_s(2) / 2f64.ln(),
+        sense_ohms: 10.0,
+    };
+    let mut g = c.benchmark_group("impedance_5s_48k");
+    g.sample_size(20);
+    g.bench_function("impedance and the small-signal fit", |b| {
+        b.iter(|| {
+            let z = impedance::impedance(black_box(&input)).unwrap();
+            thiele_small::thiele_small(&z.frequency_hz, &z.grid_complex(), None).unwrap()
+        })
+    });
+    let z = impedance::impedance(&input).unwrap();
+    let zc = z.grid_complex();
+    g.bench_function("the small-signal fit alone", |b| {
+        b.iter(|| thiele_small::thiele_small(black_box(&z.frequency_hz), &zc, None).unwrap())
+    });
     g.finish();
 }
 

@@ -51,6 +51,7 @@ pub fn main() -> gliss::Result<()> {
         drive: None,
         source_kind: "virtual".into(),
         target: None,
+        impedance: None,
     };
     let mut system = VirtualSystem::default();
     // nothing stops this run early; a program would set the flag from its

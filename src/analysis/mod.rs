@@ -18,6 +18,7 @@ pub mod delay;
 pub mod distortion;
 pub mod etc;
 pub mod gate;
+pub mod impedance;
 pub mod impulse;
 pub mod phase;
 pub mod presence;
@@ -28,6 +29,7 @@ pub mod smoothing;
 pub mod spectrogram;
 pub mod sweep_track;
 pub mod target;
+pub mod thiele_small;
 
 use crate::deconv;
 use crate::error::{Error, Result};

@@ -86,6 +86,92 @@ pub struct VirtualSystem {
     /// Faults to inject, for tests of what a measurement does when the
     /// sound path fails.
     pub faults: Faults,
+    /// Instead of the loudspeaker in the room: its woofer on the bench,
+    /// wired for an impedance measurement (input 1 the amplifier side of
+    /// the sense resistor, input 2 across the driver).
+    pub driver: Option<VirtualDriver>,
+}
+
+/// The Kestrel 5's woofer (virtual, invented) on the bench behind a sense
+/// resistor: the lumped model Z = Re + jωLe + Bl²/(Rms + jωMms + 1/(jωCms))
+/// (Small 1972's equivalent circuit) with its small-signal parameters.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct VirtualDriver {
+    /// Voice-coil DC resistance, Ω.
+    pub re_ohm: f64,
+    /// Voice-coil inductance, H.
+    pub le_h: f64,
+    /// Resonance, Hz.
+    pub fs_hz: f64,
+    /// Mechanical Q.
+    pub qms: f64,
+    /// Electrical Q.
+    pub qes: f64,
+    /// Moving mass, kg.
+    pub mms_kg: f64,
+    /// The sense resistor in series, Ω.
+    pub sense_ohms: f64,
+    /// The amplifier's output as the pads deliver it to the inputs, per
+    /// unit of the sweep (the gain of amplifier and pad).
+    pub gain: f64,
+}
+
+impl VirtualDriver {
+    /// The Kestrel 5's woofer (invented): Re 5.6 Ω, fs 48 Hz, Qms 3.8,
+    /// Qes 0.42, Le 0.45 mH, Mms 14 g, behind `sense_ohms`.
+    pub fn kestrel_woofer(sense_ohms: f64) -> Self {
+        VirtualDriver {
+            re_ohm: 5.6,
+            le_h: 0.45e-3,
+            fs_hz: 48.0,
+            qms: 3.8,
+            qes: 0.42,
+            mms_kg: 0.014,
+            sense_ohms,
+            gain: 0.5,
+        }
+    }
+
+    /// Z at `f` Hz (Re at 0 Hz).
+    pub fn z(&self, f: f64) -> rustfft::num_complex::Complex<f64> {
+        use rustfft::num_complex::Complex;
+        if f <= 0.0 {
+            return Complex::new(self.re_ohm, 0.0);
+        }
+        let w0 = std::f64::consts::TAU * self.fs_hz;
+        let cms = 1.0 / (w0 * w0 * self.mms_kg);
+        let rms = w0 * self.mms_kg / self.qms;
+        let bl2 = w0 * self.mms_kg * self.re_ohm / self.qes;
+        let w = std::f64::consts::TAU * f;
+        let j = Complex::new(0.0, 1.0);
+        self.re_ohm + j * w * self.le_h + bl2 / (rms + j * w * self.mms_kg + 1.0 / (j * w * cms))
+    }
+
+    /// The two inputs for a drive signal: V1 = gain·drive, V2 = V1
+    /// filtered by Z/(R + Z) in the frequency domain (over a buffer twice
+    /// as long, so the driver's ringing does not wrap), both delayed by
+    /// the interface's latency.
+    pub fn render(&self, drive: &[f64], fs: f64, latency: usize) -> (Vec<f64>, Vec<f64>) {
+        let n = drive.len();
+        let len = fft::fast_len(2 * n);
+        let mut spec = fft::rfft(drive, len);
+        let df = fs / len as f64;
+        for (k, c) in spec.iter_mut().enumerate() {
+            let z = self.z(k as f64 * df);
+            *c *= self.gain * z / (self.sense_ohms + z);
+        }
+        let last = spec.len() - 1;
+        spec[0].im = 0.0;
+        spec[last].im = 0.0;
+        let across = fft::irfft(&mut spec, len);
+        let mut v1 = vec![0.0; n];
+        let mut v2 = vec![0.0; n];
+        for i in latency..n {
+            v1[i] = self.gain * drive[i - latency];
+            v2[i] = across[i - latency];
+        }
+        (v1, v2)
+    }
 }
 
 /// Faults the virtual interface can be told to have.
@@ -129,6 +215,7 @@ impl Default for VirtualSystem {
             seed: 2026,
             loopback: false,
             faults: Faults::default(),
+            driver: None,
         }
     }
 }
@@ -322,6 +409,12 @@ impl VirtualSystem {
 
 impl PlayRecord for VirtualSystem {
     fn describe(&self) -> String {
+        if let Some(d) = &self.driver {
+            return format!(
+                "virtual system (simulated): the Kestrel 5's woofer on the bench behind {} Ω; input 1 the amplifier side of the resistor, input 2 across the driver; latency {} samples",
+                d.sense_ohms, self.latency_samples
+            );
+        }
         format!(
             "virtual system (simulated): Kestrel 5 monitor at {:.1} m in a {:.1} × {:.1} × {:.1} m room, T {:.2} s at 125 Hz to {:.2} s at 4 kHz, latency {} samples{}",
             self.distance_m,
@@ -340,7 +433,11 @@ impl PlayRecord for VirtualSystem {
     }
 
     fn input_channels(&self) -> usize {
-        if self.loopback { 2 } else { 1 }
+        if self.loopback || self.driver.is_some() {
+            2
+        } else {
+            1
+        }
     }
 
     fn output_channels(&self) -> usize {
@@ -394,8 +491,22 @@ impl PlayRecord for VirtualSystem {
             }
             d
         };
-        let mut channels = vec![self.render(&drive_of(0), fs)];
-        if self.loopback {
+        let mut channels = match &self.driver {
+            Some(d) => {
+                let (v1, v2) = d.render(&drive_of(0), fs, self.latency_samples);
+                // the interface's noise on both inputs (no room is heard)
+                let mut rng = StdRng::seed_from_u64(self.seed);
+                let normal =
+                    Normal::new(0.0, 10f64.powf(self.noise_dbfs / 20.0)).expect("a normal");
+                let mut inputs = vec![v1, v2];
+                for v in inputs.iter_mut().flatten() {
+                    *v += normal.sample(&mut rng);
+                }
+                inputs
+            }
+            None => vec![self.render(&drive_of(0), fs)],
+        };
+        if self.loopback && self.driver.is_none() {
             let d = drive_of(1);
             let mut wire = vec![0.0; n];
             for (i, v) in wire.iter_mut().enumerate().skip(self.latency_samples) {

@@ -130,6 +130,7 @@ pub fn run(a: Args) -> Result<()> {
         target,
         impulse: false,
         recovered_sweep,
+        impedance: None,
     };
     let outcome = session::run(&job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);
@@ -193,6 +194,7 @@ fn run_impulse(
         target,
         impulse: true,
         recovered_sweep: None,
+        impedance: None,
     };
     let outcome = session::run(&job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);

@@ -185,6 +185,7 @@ fn measure_one(
         target,
         impulse: false,
         recovered_sweep: None,
+        impedance: None,
     };
     session::run(&job)
 }

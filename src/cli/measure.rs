@@ -11,7 +11,7 @@ use clap::Args as ClapArgs;
 use crate::cli::common::{self, OutputArgs, SweepArgs};
 #[cfg(feature = "soundcard")]
 use gliss::audio::soundcard::{Request, SoundCard};
-use gliss::audio::virtual_system::VirtualSystem;
+use gliss::audio::virtual_system::{VirtualDriver, VirtualSystem};
 use gliss::audio::{PlayRecord, Progress};
 use gliss::error::{Error, Result};
 use gliss::session::measure::{self, MeasureJob};
@@ -38,7 +38,13 @@ the interface's own response and latency are then divided out, so a loopback rea
 and 0 s. Without it the measured delay includes the interface's latency.
 
 --device virtual measures the built-in simulated system (nothing is played; input 2 is \
-a loopback from output 2).";
+a loopback from output 2; with --impedance, the simulated system's woofer on the bench \
+behind the sense resistor, input 1 before it and input 2 across the driver).
+
+--impedance measures a driver's impedance instead (see gliss impedance --help for the \
+wiring and the cautions: a divider or pad on each input, levels checked with a \
+voltmeter before connecting, the sense resistor's power rating, a low drive level, the \
+driver's excursion).";
 
 /// Options of `gliss measure`.
 #[derive(Debug, ClapArgs)]
@@ -68,12 +74,14 @@ pub struct Args {
         default_value = "1"
     )]
     pub output_channel: Vec<usize>,
-    /// The microphone input, counted from 1.
-    #[arg(long, value_name = "N", default_value_t = 1)]
-    pub channel: usize,
+    /// The microphone input, counted from 1 [default: 1; with
+    /// --impedance 2, the input across the driver].
+    #[arg(long, value_name = "N")]
+    pub channel: Option<usize>,
     /// An input wired straight back from an output that also plays the
     /// sweep (a loopback): the response is divided by it, which removes the
-    /// interface's own response and latency.
+    /// interface's own response and latency. With --impedance: the input at
+    /// the amplifier side of the sense resistor [default with --impedance: 1].
     #[arg(long, value_name = "N")]
     pub reference: Option<usize>,
     /// Play N sweeps with short gaps and average them synchronously (each
@@ -85,6 +93,32 @@ pub struct Args {
     /// risk lost samples on a busy machine.
     #[arg(long, value_name = "FRAMES")]
     pub buffer: Option<u32>,
+    /// Measure a loudspeaker driver's impedance through a sense resistor
+    /// instead of a response: --reference (default 1) records the amplifier
+    /// side of the resistor, --channel (default 2) the voltage across the
+    /// driver; the folder is an impedance folder as `gliss impedance`
+    /// writes. Read the wiring and cautions of `gliss impedance --help`
+    /// first: never connect the amplifier's output to an input directly.
+    #[arg(long, requires = "sense_ohms")]
+    pub impedance: bool,
+    /// With --impedance: the sense resistor in series with the driver,
+    /// ohms (as an ohmmeter reads it).
+    #[arg(
+        long,
+        value_name = "R",
+        allow_hyphen_values = true,
+        requires = "impedance"
+    )]
+    pub sense_ohms: Option<f64>,
+    /// With --impedance: the voice coil's DC resistance, ohms, as an
+    /// ohmmeter reads it [default: read from the impedance].
+    #[arg(
+        long,
+        value_name = "OHMS",
+        allow_hyphen_values = true,
+        requires = "impedance"
+    )]
+    pub re_ohms: Option<f64>,
     /// Play above -6 dBFS without asking (for scripts; mind the safety
     /// notes below).
     #[arg(long)]
@@ -264,11 +298,25 @@ pub fn run(a: Args) -> Result<()> {
     let target = a
         .output
         .target((design.params.start_hz, design.params.end_hz))?;
-    let channel = one_based(a.channel, "--channel")?;
-    let reference = a
-        .reference
+    let channel_given = a.channel.unwrap_or(if a.impedance { 2 } else { 1 });
+    let channel = one_based(channel_given, "--channel")?;
+    let reference_given = a.reference.or(a.impedance.then_some(1));
+    let reference = reference_given
         .map(|r| one_based(r, "--reference"))
         .transpose()?;
+    let impedance = match (a.impedance, a.sense_ohms) {
+        (true, Some(r)) => Some(super::impedance::impedance_job(
+            reference_given,
+            r,
+            a.re_ohms,
+            None,
+        )?),
+        _ => None,
+    };
+    if impedance.is_some() {
+        // the impedance's own settings: no gate, no bands
+        config = super::impedance::config()?;
+    }
     let mut outputs = Vec::new();
     for &o in &a.output_channel {
         let o = one_based(o, "--output-channel")?;
@@ -294,6 +342,7 @@ pub fn run(a: Args) -> Result<()> {
     let mut device: Box<dyn PlayRecord> = if is_virtual {
         Box::new(VirtualSystem {
             loopback: true,
+            driver: a.sense_ohms.map(VirtualDriver::kestrel_woofer),
             ..VirtualSystem::default()
         })
     } else {
@@ -311,10 +360,10 @@ pub fn run(a: Args) -> Result<()> {
         repeat: a.repeat,
         design: design.clone(),
         config,
-        title: if is_virtual {
-            "Kestrel 5 in the rehearsal room (simulated)".into()
-        } else {
-            format!("{}, input {}", common::show(&a.out), a.channel)
+        title: match (is_virtual, a.impedance) {
+            (true, true) => "Kestrel 5 woofer on the bench (simulated)".into(),
+            (true, false) => "Kestrel 5 in the rehearsal room (simulated)".into(),
+            _ => format!("{}, input {channel_given}", common::show(&a.out)),
         },
         command_line: std::env::args().collect(),
         mic_correction: mic.map(|m| m.1),
@@ -322,6 +371,7 @@ pub fn run(a: Args) -> Result<()> {
         drive,
         source_kind: if is_virtual { "virtual" } else { "soundcard" }.into(),
         target,
+        impedance,
     };
     measure::check(&job, device.as_ref())?;
     // Ctrl-C, SIGTERM and a hangup (ctrlc's "termination" feature) stop
@@ -340,8 +390,8 @@ pub fn run(a: Args) -> Result<()> {
             .map(|c| c.to_string())
             .collect::<Vec<_>>()
             .join(","),
-        a.channel,
-        a.reference
+        channel_given,
+        reference_given
             .map(|r| format!(" (reference: input {r})"))
             .unwrap_or_default()
     );
@@ -358,7 +408,11 @@ pub fn run(a: Args) -> Result<()> {
             .collect();
         println!("input peaks: {}", peaks.join(", "));
     }
-    super::demo::print_summary(&common::show(&a.out), &outcome);
+    if outcome.impedance.is_some() {
+        super::impedance::print_summary(&common::show(&a.out), &outcome);
+    } else {
+        super::demo::print_summary(&common::show(&a.out), &outcome);
+    }
     if a.repeat > 1 {
         println!(
             "{} sweeps averaged synchronously: uncorrelated noise {:.1} dB lower than one sweep's",
@@ -366,7 +420,7 @@ pub fn run(a: Args) -> Result<()> {
             10.0 * (a.repeat as f64).log10()
         );
     }
-    if reference.is_none() {
+    if reference.is_none() && !a.impedance {
         println!(
             "note: no --reference, so the delay includes the interface's latency (known to about one buffer)"
         );

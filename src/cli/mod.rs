@@ -9,6 +9,7 @@ mod compare;
 mod demo;
 mod devices;
 mod export;
+mod impedance;
 mod measure;
 mod reanalyze;
 mod report;
@@ -49,6 +50,8 @@ enum Command {
     Analyze(analyze::Args),
     /// Analyse measurement folders again from their raw files with new settings, in parallel.
     Reanalyze(reanalyze::Args),
+    /// A loudspeaker driver's impedance through a sense resistor, and its small-signal (Thiele–Small) parameters.
+    Impedance(impedance::Args),
     /// Run the whole job on the built-in virtual loudspeaker and room (simulated).
     Demo(demo::Args),
     /// Average several microphone positions of one condition into one folder.
@@ -69,6 +72,7 @@ fn wants_plots(command: &Command) -> bool {
         Command::Measure(a) => !a.output.no_plots,
         Command::Analyze(a) => !a.output.no_plots,
         Command::Reanalyze(a) => !a.output.no_plots,
+        Command::Impedance(a) => !a.no_plots,
         Command::Demo(a) => !a.output.no_plots,
         Command::Average(a) => !a.no_plots,
         Command::Compare(a) => !a.no_plots,
@@ -135,6 +139,7 @@ pub fn main() -> ExitCode {
         Command::Measure(a) => measure::run(a),
         Command::Analyze(a) => analyze::run(a),
         Command::Reanalyze(a) => reanalyze::run(a),
+        Command::Impedance(a) => impedance::run(a),
         Command::Demo(a) => demo::run(a),
         Command::Calibrate(a) => calibrate::run(a),
         Command::Average(a) => average::run(a),

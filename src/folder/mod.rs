@@ -113,7 +113,7 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
     let name = dir.display();
     if !dir.is_dir() {
         return Err(Error::input(format!(
-            "{name} is not a folder; give folders written by gliss (measure, analyze, demo, average or compare)"
+            "{name} is not a folder; give folders written by gliss (measure, analyze, impedance, demo, average or compare)"
         )));
     }
     let mpath = dir.join("manifest.json");
@@ -136,6 +136,8 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
         "gliss compare ... --overwrite"
     } else if value.get("kind").and_then(serde_json::Value::as_str) == Some("average") {
         "gliss average ... --overwrite"
+    } else if value.get("kind").and_then(serde_json::Value::as_str) == Some("impedance") {
+        "gliss impedance ... --overwrite"
     } else {
         "gliss analyze ... --overwrite"
     };

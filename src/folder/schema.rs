@@ -9,7 +9,9 @@ use crate::analysis::Distortion;
 use crate::analysis::Smoothing;
 use crate::analysis::compare::{Changes, Verdict};
 use crate::analysis::gate::GateInfo;
+use crate::analysis::impedance::Impedance;
 use crate::analysis::room::BandResult;
+use crate::analysis::thiele_small::ThieleSmall;
 use crate::model::{Fraction, Parameter, Warnings};
 use crate::signal::sweep::SweepDesign;
 
@@ -27,6 +29,10 @@ pub enum FolderKind {
     Average,
     /// A comparison of measurements (comparison.json).
     Comparison,
+    /// A loudspeaker driver's impedance through a sense resistor, with
+    /// its small-signal parameters (results.json's `impedance` and
+    /// `thiele_small`).
+    Impedance,
 }
 
 impl FolderKind {
@@ -36,6 +42,7 @@ impl FolderKind {
             FolderKind::Measurement => "a measurement",
             FolderKind::Average => "an average",
             FolderKind::Comparison => "a comparison",
+            FolderKind::Impedance => "an impedance measurement",
         }
     }
 }
@@ -80,6 +87,29 @@ pub struct Results {
     /// With --target: the response's deviation from the target curve.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub target: Option<TargetRecord>,
+    /// An impedance measurement: Z on the log grid (the full resolution
+    /// is in `impedance_file`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub impedance: Option<ImpedanceRecord>,
+    /// An impedance measurement: the small-signal parameters; `null` with
+    /// the reason in `warnings` when the resonance cannot be read.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub thiele_small: Option<ThieleSmall>,
+}
+
+/// results.json's `impedance`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ImpedanceRecord {
+    /// The recording's channel at the amplifier side of the sense
+    /// resistor, 1-based (`null`: constant current, one channel).
+    pub reference_channel: Option<usize>,
+    /// The channel across the driver, 1-based.
+    pub driver_channel: usize,
+    /// The CSV with Z at every FFT bin of the band.
+    pub impedance_file: String,
+    /// Z on the log grid.
+    #[serde(flatten)]
+    pub curve: Impedance,
 }
 
 /// What an average over positions was made of.

@@ -42,6 +42,8 @@ pub enum PlotKind {
     CompareDifference,
     /// A comparison's reverberation times per octave band.
     CompareReverberation,
+    /// An impedance measurement's |Z| and phase with the fitted model.
+    Impedance,
 }
 
 /// What a caption says about the folder it describes. Fill what the
@@ -66,11 +68,11 @@ pub struct CaptionFacts<'a> {
 }
 
 /// The rank after every known plot: where unknown files go in the report.
-pub const UNKNOWN_RANK: usize = 12;
+pub const UNKNOWN_RANK: usize = 13;
 
 impl PlotKind {
     /// Every plot, in the order of the variants.
-    pub const ALL: [PlotKind; 14] = [
+    pub const ALL: [PlotKind; 15] = [
         PlotKind::Response,
         PlotKind::Impulse,
         PlotKind::Phase,
@@ -85,11 +87,13 @@ impl PlotKind {
         PlotKind::CompareResponse,
         PlotKind::CompareDifference,
         PlotKind::CompareReverberation,
+        PlotKind::Impedance,
     ];
 
     /// The plots of one measurement, in the order they are drawn (and
     /// listed in its manifest).
-    pub const MEASUREMENT: [PlotKind; 9] = [
+    pub const MEASUREMENT: [PlotKind; 10] = [
+        PlotKind::Impedance,
         PlotKind::Response,
         PlotKind::Impulse,
         PlotKind::Phase,
@@ -127,6 +131,7 @@ impl PlotKind {
             PlotKind::CompareResponse => "plots/compare-response.png",
             PlotKind::CompareDifference => "plots/compare-difference.png",
             PlotKind::CompareReverberation => "plots/compare-reverberation.png",
+            PlotKind::Impedance => "plots/impedance.png",
         }
     }
 
@@ -139,15 +144,17 @@ impl PlotKind {
             PlotKind::CompareResponse => 0,
             PlotKind::CompareDifference => 1,
             PlotKind::CompareReverberation => 2,
-            PlotKind::Response | PlotKind::AverageResponse => 3,
-            PlotKind::Phase => 4,
-            PlotKind::GroupDelay => 5,
-            PlotKind::Distortion => 6,
-            PlotKind::Decay => 7,
-            PlotKind::Reverberation | PlotKind::AverageReverberation => 8,
-            PlotKind::DecaySpectrum => 9,
-            PlotKind::Spectrogram => 10,
-            PlotKind::Impulse => 11,
+            // an impedance measurement's own plot leads its evidence
+            PlotKind::Impedance => 3,
+            PlotKind::Response | PlotKind::AverageResponse => 4,
+            PlotKind::Phase => 5,
+            PlotKind::GroupDelay => 6,
+            PlotKind::Distortion => 7,
+            PlotKind::Decay => 8,
+            PlotKind::Reverberation | PlotKind::AverageReverberation => 9,
+            PlotKind::DecaySpectrum => 10,
+            PlotKind::Spectrogram => 11,
+            PlotKind::Impulse => 12,
         }
     }
 
@@ -216,6 +223,7 @@ impl PlotKind {
             PlotKind::CompareReverberation => {
                 format!("Reverberation time per band of {}.", f.inputs)
             }
+            PlotKind::Impedance => "Electrical impedance of the driver: magnitude in ohms above, phase below, on a log frequency axis; the fitted lumped model dashed over the measurement, the resonance fs marked.".to_string(),
         }
     }
 }
@@ -267,6 +275,7 @@ mod tests {
             "plots/compare-response.png",
             "plots/compare-difference.png",
             "plots/compare-reverberation.png",
+            "plots/impedance.png",
         ] {
             assert!(names.contains(&n), "{n}");
         }
@@ -304,6 +313,7 @@ mod tests {
             "compare-response",
             "compare-difference",
             "compare-reverberation",
+            "impedance",
             "response",
             "phase",
             "group-delay",

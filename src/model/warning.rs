@@ -159,6 +159,15 @@ codes! {
     /// A file of a folder cannot be read as what it should be (a plot
     /// that is no PNG).
     FileUnreadable = "file-unreadable", Caution, Files;
+    /// The sense resistor is far from the driver's impedance: the noise
+    /// reaches the impedance amplified.
+    SenseResistorMismatch = "sense-resistor-mismatch", Caution, RecordingLevel;
+    /// The lumped model fits the measured impedance poorly: the
+    /// small-signal parameters describe it only roughly.
+    ImpedanceFitPoor = "impedance-fit-poor", Caution, Other;
+    /// The resonance lies too near the sweep's band edge for the
+    /// small-signal parameters: they are withheld.
+    ResonanceOutsideBand = "resonance-outside-band", Problem, Other;
     /// A warning read from a file written before codes existed.
     Unclassified = "unclassified", Note, Other;
 }

@@ -33,6 +33,7 @@ mod decay;
 mod decay_spectrum;
 mod distortion;
 mod group_delay;
+mod impedance;
 mod impulse;
 mod phase;
 mod response;
@@ -49,6 +50,7 @@ pub use decay::decay_png;
 pub use decay_spectrum::decay_spectrum_png;
 pub use distortion::distortion_png;
 pub use group_delay::group_delay_png;
+pub use impedance::impedance_png;
 pub use impulse::impulse_png;
 pub use phase::{PhaseView, phase_png};
 pub use response::response_png;
@@ -70,6 +72,12 @@ pub struct MeasurementPlotInput<'a> {
     pub target: Option<&'a TargetOverlay>,
     /// How the phase plot shows the phase (wrapped unless asked).
     pub phase_view: PhaseView,
+    /// An impedance measurement's impedance and, if read, its
+    /// small-signal parameters.
+    pub impedance: Option<(
+        &'a crate::analysis::impedance::Impedance,
+        Option<&'a crate::analysis::thiele_small::ThieleSmall>,
+    )>,
 }
 
 impl MeasurementPlotInput<'_> {
@@ -89,6 +97,7 @@ impl MeasurementPlotInput<'_> {
                 PlotKind::DecaySpectrum => a.decay_spectrum.is_some() && a.gate.is_some(),
                 PlotKind::Spectrogram => a.spectrogram.is_some(),
                 PlotKind::Decay | PlotKind::Reverberation => a.room.is_some(),
+                PlotKind::Impedance => self.impedance.is_some(),
                 _ => false,
             })
             .collect()
@@ -144,6 +153,10 @@ pub fn draw_measurement(
             (Some(r), PlotKind::Decay) => decay_png(path, title, r),
             (Some(r), _) => reverberation_png(path, title, r),
             (None, _) => Err(not_drawn(kind, "the analysis has no room parameters")),
+        },
+        PlotKind::Impedance => match input.impedance {
+            Some((z, ts)) => impedance_png(path, title, z, ts),
+            None => Err(not_drawn(kind, "the analysis has no impedance")),
         },
         _ => Err(not_drawn(kind, "it is not a plot of a measurement")),
     }

@@ -9,6 +9,7 @@ pub mod advice;
 pub mod answer;
 pub mod comparison;
 pub mod html;
+mod impedance;
 
 use std::fmt::Write;
 
@@ -168,6 +169,7 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 if let Some(t) = &options.target_rt {
                     out.push_str(&measurement_target(t, results));
                 }
+                impedance::parameters(&mut out, results, &mut counters);
                 for p in lead_plots(lead, results) {
                     figure(&mut out, p, &caption(p, manifest, results), &mut counters);
                 }
@@ -183,7 +185,9 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
         }
         let (kind, what, nwarn) = match &f.content {
             Content::Measurement { manifest, results } => (
-                if results.average.is_some() {
+                if results.impedance.is_some() {
+                    "impedance"
+                } else if results.average.is_some() {
                     "average"
                 } else {
                     "measurement"
@@ -307,14 +311,21 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
 }
 
 /// The plots of a measurement's first page: its response and its decay
-/// (an average has no decay: its reverberation time per band instead).
+/// (an average has no decay: its reverberation time per band instead; an
+/// impedance folder shows its impedance, then the driver channel's
+/// response).
 fn lead_plots<'a>(f: &'a Folder, r: &Results) -> Vec<&'a Plot> {
-    let second = if r.average.is_some() {
-        PlotKind::AverageReverberation.file()
+    let (first, second) = if r.impedance.is_some() {
+        (PlotKind::Impedance.file(), PlotKind::Response.file())
+    } else if r.average.is_some() {
+        (
+            PlotKind::Response.file(),
+            PlotKind::AverageReverberation.file(),
+        )
     } else {
-        PlotKind::Decay.file()
+        (PlotKind::Response.file(), PlotKind::Decay.file())
     };
-    [PlotKind::Response.file(), second]
+    [first, second]
         .iter()
         .filter_map(|file| f.plots.iter().find(|p| p.file == *file))
         .collect()
@@ -658,6 +669,8 @@ fn key_numbers(out: &mut String, f: &Folder, m: &Manifest, r: &Results) {
                 hz(g.resolved_to_hz)
             ),
         ),
+        // an impedance is taken from the whole response, with no room in it
+        None if r.impedance.is_some() => {}
         None if r.average.is_none() => key(
             out,
             "Gate",
@@ -712,8 +725,12 @@ fn measurement(
         }
     }
 
-    // bands
-    if r.bands.is_empty() {
+    // an impedance's parameters (page 1 shows the lead's)
+    if r.impedance.is_some() {
+        if !lead {
+            impedance::parameters(out, r, n);
+        }
+    } else if r.bands.is_empty() {
         out.push_str("<h3>Bands</h3><p class=\"muted\">No band parameters: this measurement was analysed without bands (the speaker profile's default, or --no-bands).</p>");
     } else {
         out.push_str("<h3>Reverberation and energy parameters per octave band</h3><p class=\"muted\">ISO 3382-1 parameters from the impulse response. EDT, T20 and T30 are decay times extrapolated to 60 dB; C50 and C80 the early-to-late energy ratios; D50 the share of energy in the first 50 ms; Ts the centre time; INR the decay's start above the noise. — marks a value that could not be measured; the note says why. One-third-octave bands are in the appendix.</p>");

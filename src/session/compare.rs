@@ -415,6 +415,8 @@ pub fn average_results(inputs: &[Input], sources: usize) -> Result<Results> {
         broadband,
         warnings,
         target: None,
+        impedance: None,
+        thiele_small: None,
         average: Some(AverageRecord {
             positions: n,
             sources,

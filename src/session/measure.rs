@@ -164,6 +164,10 @@ pub struct MeasureJob {
     pub source_kind: String,
     /// A target curve to compare the response with.
     pub target: Option<super::TargetJob>,
+    /// An impedance measurement through a sense resistor: `reference` is
+    /// then the input at the amplifier side of the resistor (not a
+    /// loopback) and `channel` the input across the driver.
+    pub impedance: Option<super::impedance::ImpedanceJob>,
 }
 
 /// The signal played: `repeat` sweeps (each with its tail) with `gap`
@@ -783,12 +787,15 @@ fn analysis_job(
         command_line: m.command_line.clone(),
         mic_correction: m.mic_correction.clone(),
         calibration: m.calibration.clone(),
-        reference: m.reference,
+        // an impedance's reference is the amplifier side of the sense
+        // resistor, not a loopback to divide the response by
+        reference: m.reference.filter(|_| m.impedance.is_none()),
         measurement: Some(record),
         drive: m.drive,
         target: m.target.clone(),
         impulse: false,
         recovered_sweep: None,
+        impedance: m.impedance.clone(),
     })
 }
 
@@ -878,6 +885,7 @@ mod tests {
             drive: None,
             source_kind: "virtual".into(),
             target: None,
+            impedance: None,
         }
     }
 

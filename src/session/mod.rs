@@ -3,6 +3,7 @@
 
 pub mod compare;
 pub mod export;
+pub mod impedance;
 pub mod measure;
 pub mod reanalyze;
 pub mod sweep_file;
@@ -78,6 +79,9 @@ pub struct Job {
     /// The sweep file had no description and its design was recovered
     /// from its samples: what was found, said as a note.
     pub recovered_sweep: Option<String>,
+    /// A loudspeaker driver's impedance through a sense resistor: the
+    /// folder is an impedance measurement ([`impedance`]).
+    pub impedance: Option<impedance::ImpedanceJob>,
 }
 
 /// The name an impulse response given to `analyze --impulse` is kept
@@ -163,6 +167,8 @@ pub struct Outcome {
     pub files: Vec<String>,
     /// The deviation from the target curve, with --target.
     pub target: Option<TargetRecord>,
+    /// An impedance job's impedance and small-signal parameters.
+    pub impedance: Option<impedance::ImpedanceOutcome>,
 }
 
 /// Checks the inputs of a job before any file is written: sample rates,
@@ -398,6 +404,15 @@ pub fn analyse_into(job: &Job, folder: &MeasurementFolder) -> Result<Outcome> {
 
 /// [`analyse_into`] once [`check_inputs`] has passed and said `extra`.
 fn analyse_checked(job: &Job, folder: &MeasurementFolder, mut extra: Warnings) -> Result<Outcome> {
+    // an impedance is refused (swapped channels, clipping, an open
+    // circuit) before anything is written
+    let imp = match &job.impedance {
+        Some(i) => Some(impedance::analyse(job, i)?),
+        None => None,
+    };
+    if let Some(o) = &imp {
+        extra.extend(o.warnings.iter().cloned());
+    }
     let divisor = match job.reference.filter(|_| !job.impulse) {
         Some(r) => {
             let reference = &job.recording.channels[r];
@@ -449,11 +464,12 @@ fn analyse_checked(job: &Job, folder: &MeasurementFolder, mut extra: Warnings) -
     extra.append(&mut analysis.warnings);
     analysis.warnings = extra;
     let target = compare_target(job, &analysis)?;
-    let files = write_folder(job, folder, &analysis, target.as_ref())?;
+    let files = write_folder(job, folder, &analysis, target.as_ref(), imp.as_ref())?;
     Ok(Outcome {
         analysis,
         files,
         target: target.map(|t| t.0),
+        impedance: imp,
     })
 }
 
@@ -517,6 +533,7 @@ fn write_folder(
     folder: &MeasurementFolder,
     a: &Analysis,
     target: Option<&(TargetRecord, f64)>,
+    imp: Option<&impedance::ImpedanceOutcome>,
 ) -> Result<Vec<String>> {
     folder.create()?;
     let mut files = write_raw_files(job, folder)?;
@@ -528,13 +545,23 @@ fn write_folder(
             SampleEncoding::Float,
         ),
     )?);
-    let results = job_results(job, a, target.map(|t| &t.0));
+    let mut results = job_results(job, a, target.map(|t| &t.0));
+    if let (Some(o), Some(i)) = (imp, &job.impedance) {
+        results.impedance = Some(o.record(job, i));
+        results.thiele_small = o.thiele_small.clone();
+    }
     files.extend(write_tables(folder, a, &results)?);
+    if let Some(o) = imp {
+        files.push(folder.derived_entry(
+            impedance::IMPEDANCE_CSV,
+            &impedance::impedance_csv(&o.impedance)?,
+        )?);
+    }
     // without the plots feature, no PNGs: the manifest says so
     let plots = job.plots && PLOTS_BUILT;
     #[cfg(feature = "plots")]
     if plots {
-        files.extend(draw_plots(job, folder, a, target)?);
+        files.extend(draw_plots(job, folder, a, target, imp)?);
     }
     let manifest = job_manifest(job, a, plots, files);
     folder.write_derived("manifest.json", &to_json(&manifest)?)?;
@@ -642,7 +669,10 @@ fn job_manifest(job: &Job, a: &Analysis, plots: bool, files: Vec<FileEntry>) -> 
         files,
         measurement: job.measurement.clone(),
         problems: Vec::new(),
-        kind: None,
+        kind: job
+            .impedance
+            .as_ref()
+            .map(|_| crate::folder::schema::FolderKind::Impedance),
         inputs: Vec::new(),
     }
 }
@@ -655,6 +685,7 @@ fn draw_plots(
     folder: &MeasurementFolder,
     a: &Analysis,
     target: Option<&(TargetRecord, f64)>,
+    imp: Option<&impedance::ImpedanceOutcome>,
 ) -> Result<Vec<FileEntry>> {
     let overlay = job.target.as_ref().zip(target).map(|(t, (r, shift))| {
         let range = (r.report.range_hz[0], r.report.range_hz[1]);
@@ -668,6 +699,7 @@ fn draw_plots(
         analysis: a,
         target: overlay.as_ref(),
         phase_view: job.phase_view,
+        impedance: imp.map(|o| (&o.impedance, o.thiele_small.as_ref())),
     };
     // the plots are independent: drawn and encoded in parallel, their
     // entries kept in the kinds' order
@@ -874,6 +906,8 @@ pub fn results_record(a: &Analysis) -> Results {
         warnings: a.warnings.clone(),
         average: None,
         target: None,
+        impedance: None,
+        thiele_small: None,
     }
 }
 

@@ -60,6 +60,12 @@ pub fn job(dir: &Path, s: &Settings) -> Result<Job> {
             )));
         }
     };
+    if manifest.kind == Some(FolderKind::Impedance) {
+        return Err(Error::input(format!(
+            "{} is an impedance measurement; run gliss impedance again on its recording.wav and stimulus.wav to analyse it with new settings",
+            dir.display()
+        )));
+    }
     if manifest.kind == Some(FolderKind::Average) {
         return Err(Error::input(format!(
             "{} is an average, which has no recording of its own; reanalyze its positions, then run gliss average again",
@@ -150,6 +156,7 @@ pub fn job(dir: &Path, s: &Settings) -> Result<Job> {
         target: s.target.clone(),
         impulse,
         recovered_sweep: None,
+        impedance: None,
     })
 }
 

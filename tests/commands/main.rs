@@ -14,6 +14,7 @@ mod export;
 mod features;
 mod folder_safety;
 mod full_disk;
+mod impedance;
 mod impulse;
 mod measure;
 mod mistakes;

@@ -265,6 +265,7 @@ fn job(out: &Path) -> MeasureJob {
         drive: None,
         source_kind: "virtual".into(),
         target: None,
+        impedance: None,
     }
 }
 
