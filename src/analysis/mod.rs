@@ -19,12 +19,14 @@ pub mod distortion;
 pub mod etc;
 pub mod gate;
 pub mod impulse;
+pub mod noise;
 pub mod phase;
 pub mod presence;
 pub mod response;
 pub mod room;
 pub mod smoothing;
 pub mod spectrogram;
+pub mod speech;
 pub mod sweep_track;
 pub mod target;
 

@@ -159,6 +159,14 @@ codes! {
     /// A file of a folder cannot be read as what it should be (a plot
     /// that is no PNG).
     FileUnreadable = "file-unreadable", Caution, Files;
+    /// The speech transmission index is withheld: an octave 125 Hz–8 kHz
+    /// is missing or has no decay above the noise.
+    SpeechWithheld = "speech-withheld", Caution, NoiseFloor;
+    /// The speech transmission index is for the impulse response alone:
+    /// no background noise, speech level, masking or threshold.
+    SpeechImpulseOnly = "speech-impulse-only", Note, Other;
+    /// The noise rating is withheld: an octave it needs is missing.
+    NoiseRatingWithheld = "noise-rating-withheld", Caution, Other;
     /// A warning read from a file written before codes existed.
     Unclassified = "unclassified", Note, Other;
 }
