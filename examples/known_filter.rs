@@ -27,6 +27,7 @@ pub fn main() -> gliss::Result<()> {
         bands: false, // and no room to decay
         gate: None,
         mic_correction: None,
+        speech: None,
     };
     let a = analyze(&recording, &stimulus, &design, &config)?;
     println!("delay {:.4} samples", a.delay_s * design.fs());

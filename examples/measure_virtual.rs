@@ -41,6 +41,7 @@ pub fn main() -> gliss::Result<()> {
             bands: true,
             gate: None,
             mic_correction: None,
+            speech: None,
         },
         title: "virtual system (example)".into(),
         command_line: std::env::args().collect(),

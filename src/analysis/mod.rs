@@ -63,6 +63,9 @@ pub struct AnalysisConfig {
     pub gate: Option<gate::Gate>,
     /// A microphone correction to remove from the response and phase.
     pub mic_correction: Option<correction::Correction>,
+    /// The speech level and background noise for the STI (`None`: the
+    /// STI of the impulse response alone).
+    pub speech: Option<speech::Conditions>,
 }
 
 impl Default for AnalysisConfig {
@@ -73,6 +76,7 @@ impl Default for AnalysisConfig {
             bands: true,
             gate: None,
             mic_correction: None,
+            speech: None,
         }
     }
 }
@@ -113,6 +117,8 @@ pub struct Analysis {
     pub distortion: Option<Distortion>,
     /// Reverberation and energy parameters per band (`None` without bands).
     pub room: Option<room::Room>,
+    /// The speech transmission index (`None` without bands).
+    pub speech: Option<speech::Speech>,
     /// Peak level of the recording in dBFS.
     pub peak_dbfs: f64,
     /// Peak of the impulse response over its noise, in dB.
@@ -365,6 +371,9 @@ pub fn analyze(
         band_warnings(&r, &mut warnings);
         r
     });
+    let speech = room
+        .as_ref()
+        .map(|r| speech::speech(&r.mtf, config.speech.as_ref()));
 
     Ok(Analysis {
         sample_rate_hz: design.params.sample_rate_hz,
@@ -381,6 +390,7 @@ pub fn analyze(
         spectrogram,
         distortion,
         room,
+        speech,
         peak_dbfs,
         peak_to_noise_db,
         warnings,

@@ -355,6 +355,7 @@ pub fn withhold_all(room: &mut Room, code: Code, why: &str) {
         b.warnings.add(code, format!("{label}: {why}"));
     }
     room.curves.clear();
+    room.mtf.clear();
 }
 
 /// Withholds the values that count from the start of the response (EDT,

@@ -200,6 +200,7 @@ impl OutputArgs {
             gate,
             // read by `mic_correction`, once, by the command
             mic_correction: None,
+            speech: None,
         })
     }
 

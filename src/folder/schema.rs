@@ -80,6 +80,11 @@ pub struct Results {
     /// With --target: the response's deviation from the target curve.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub target: Option<TargetRecord>,
+    /// The speech transmission index (IEC 60268-16) with its MTF per
+    /// octave and the corrections it includes (absent without bands and
+    /// in an average).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub speech: Option<crate::analysis::speech::Speech>,
 }
 
 /// What an average over positions was made of.
@@ -355,6 +360,13 @@ pub struct Settings {
     /// --target-absolute: the levels were compared without aligning.
     #[serde(default, skip_serializing_if = "std::ops::Not::not")]
     pub target_absolute: bool,
+    /// --speech-level: the speech level at 1 m, dB(A), for the STI.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub speech_level_dba: Option<f64>,
+    /// --noise: the noise folder the STI took the background noise from
+    /// (its path and the SHA-256 of its manifest).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub noise_folder: Option<String>,
 }
 
 /// What a file of a folder is.

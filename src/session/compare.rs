@@ -415,6 +415,7 @@ pub fn average_results(inputs: &[Input], sources: usize) -> Result<Results> {
         broadband,
         warnings,
         target: None,
+        speech: None,
         average: Some(AverageRecord {
             positions: n,
             sources,
@@ -487,6 +488,8 @@ fn write_average(
             target: None,
             target_range_hz: None,
             target_absolute: false,
+            speech_level_dba: None,
+            noise_folder: None,
         },
         files,
         measurement: None,

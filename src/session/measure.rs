@@ -865,6 +865,7 @@ mod tests {
                 bands: true,
                 gate: None,
                 mic_correction: None,
+                speech: None,
             },
             title: "step test".into(),
             command_line: vec!["gliss".into(), "measure".into()],

@@ -866,6 +866,7 @@ pub fn results_record(a: &Analysis) -> Results {
         warnings: a.warnings.clone(),
         average: None,
         target: None,
+        speech: a.speech.clone(),
     }
 }
 
@@ -893,6 +894,12 @@ pub fn settings_record(
         target: target.map(|t| t.file.clone()),
         target_range_hz: target.and_then(|t| t.range.map(|r| [r.0, r.1])),
         target_absolute: target.is_some_and(|t| t.absolute),
+        speech_level_dba: config
+            .speech
+            .as_ref()
+            .filter(|c| c.speech_level_given)
+            .map(|c| c.speech_level_dba),
+        noise_folder: config.speech.as_ref().and_then(|c| c.noise_source.clone()),
     }
 }
 

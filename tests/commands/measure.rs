@@ -255,6 +255,7 @@ fn job(out: &Path) -> MeasureJob {
             bands: false,
             gate: None,
             mic_correction: None,
+            speech: None,
         },
         title: "fault test".into(),
         command_line: vec!["test".into()],
