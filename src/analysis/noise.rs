@@ -245,7 +245,11 @@ mod tests {
         let table = [-39.4, -26.2, -16.1, -8.6, -3.2, 0.0, 1.2, 1.0, -1.1];
         for (x, want) in (-5..=3).zip(table) {
             let f = Band::new(1, x).exact_hz;
-            assert!((a_weighting_db(f) - want).abs() < 0.06, "{f}: {}", a_weighting_db(f));
+            assert!(
+                (a_weighting_db(f) - want).abs() < 0.06,
+                "{f}: {}",
+                a_weighting_db(f)
+            );
         }
     }
 

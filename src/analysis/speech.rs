@@ -220,6 +220,8 @@ pub struct Conditions {
     pub noise_db: Option<[f64; 7]>,
     /// Where the noise came from (a noise folder), in words.
     pub noise_source: Option<String>,
+    /// The noise folder's levels, as they were read (for results.json).
+    pub noise: Option<crate::analysis::noise::NoiseLevels>,
 }
 
 /// One octave of the STI.
@@ -596,6 +598,7 @@ mod tests {
             speech_level_given: true,
             noise_db: Some(noise),
             noise_source: Some("a test noise".into()),
+            noise: None,
         };
         let s = speech(&OCTAVES_HZ.map(|f| (f, m)), Some(&c));
         let mut hand = [[0.0; 14]; 7];

@@ -27,6 +27,8 @@ pub enum FolderKind {
     Average,
     /// A comparison of measurements (comparison.json).
     Comparison,
+    /// The background noise of a room (noise.json, `gliss noise`).
+    Noise,
 }
 
 impl FolderKind {
@@ -36,6 +38,7 @@ impl FolderKind {
             FolderKind::Measurement => "a measurement",
             FolderKind::Average => "an average",
             FolderKind::Comparison => "a comparison",
+            FolderKind::Noise => "a noise measurement",
         }
     }
 }
@@ -85,6 +88,10 @@ pub struct Results {
     /// in an average).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub speech: Option<crate::analysis::speech::Speech>,
+    /// The background noise the STI included (--noise): the noise
+    /// folder's levels as they were read.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub noise: Option<crate::analysis::noise::NoiseLevels>,
 }
 
 /// What an average over positions was made of.
@@ -583,6 +590,37 @@ pub struct ComparisonManifest {
     /// The folders compared, with their hashes.
     #[serde(default)]
     pub inputs: Vec<InputRecord>,
+    /// Every file of the folder with its SHA-256.
+    pub files: Vec<FileEntry>,
+}
+
+/// The manifest of a noise folder (`gliss noise`, `gliss measure --noise`):
+/// the recording of the room with the sweep silent, and its levels in
+/// noise.json ([`crate::analysis::noise::NoiseLevels`]).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct NoiseManifest {
+    /// Layout version.
+    pub schema_version: u32,
+    /// "gliss".
+    pub tool: String,
+    /// Version of gliss that wrote the folder.
+    pub tool_version: String,
+    /// When (UTC, RFC 3339).
+    pub created_utc: String,
+    /// Always true once written.
+    pub complete: bool,
+    /// Always `noise`.
+    pub kind: FolderKind,
+    /// The command line that made it.
+    pub command_line: Vec<String>,
+    /// Where the recording came from.
+    pub source: Source,
+    /// Sample rate in Hz.
+    pub sample_rate_hz: u32,
+    /// The analysed channel of recording.wav, 1-based.
+    pub channel: usize,
+    /// The calibration file the levels rest on, with its hash.
+    pub calibration: FileEntry,
     /// Every file of the folder with its SHA-256.
     pub files: Vec<FileEntry>,
 }

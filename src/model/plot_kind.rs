@@ -42,6 +42,10 @@ pub enum PlotKind {
     CompareDifference,
     /// A comparison's reverberation times per octave band.
     CompareReverberation,
+    /// A measurement's modulation transfer function per octave (STI).
+    Mtf,
+    /// A noise folder's background noise per band with its rating.
+    Noise,
 }
 
 /// What a caption says about the folder it describes. Fill what the
@@ -66,11 +70,11 @@ pub struct CaptionFacts<'a> {
 }
 
 /// The rank after every known plot: where unknown files go in the report.
-pub const UNKNOWN_RANK: usize = 12;
+pub const UNKNOWN_RANK: usize = 14;
 
 impl PlotKind {
     /// Every plot, in the order of the variants.
-    pub const ALL: [PlotKind; 14] = [
+    pub const ALL: [PlotKind; 16] = [
         PlotKind::Response,
         PlotKind::Impulse,
         PlotKind::Phase,
@@ -85,11 +89,13 @@ impl PlotKind {
         PlotKind::CompareResponse,
         PlotKind::CompareDifference,
         PlotKind::CompareReverberation,
+        PlotKind::Mtf,
+        PlotKind::Noise,
     ];
 
     /// The plots of one measurement, in the order they are drawn (and
     /// listed in its manifest).
-    pub const MEASUREMENT: [PlotKind; 9] = [
+    pub const MEASUREMENT: [PlotKind; 10] = [
         PlotKind::Response,
         PlotKind::Impulse,
         PlotKind::Phase,
@@ -99,7 +105,11 @@ impl PlotKind {
         PlotKind::Spectrogram,
         PlotKind::Decay,
         PlotKind::Reverberation,
+        PlotKind::Mtf,
     ];
+
+    /// The plots of a noise folder.
+    pub const NOISE: [PlotKind; 1] = [PlotKind::Noise];
 
     /// The plots of an average, in the order they are drawn.
     pub const AVERAGE: [PlotKind; 2] = [PlotKind::AverageResponse, PlotKind::AverageReverberation];
@@ -127,12 +137,14 @@ impl PlotKind {
             PlotKind::CompareResponse => "plots/compare-response.png",
             PlotKind::CompareDifference => "plots/compare-difference.png",
             PlotKind::CompareReverberation => "plots/compare-reverberation.png",
+            PlotKind::Mtf => "plots/mtf.png",
+            PlotKind::Noise => "plots/noise.png",
         }
     }
 
     /// Its place in the report: comparison plots, response, phase, group
-    /// delay, distortion, decay, reverberation, decay spectrum,
-    /// spectrogram, impulse (an average's plots rank as their
+    /// delay, distortion, decay, reverberation, modulation transfer,
+    /// decay spectrum, spectrogram, impulse, background noise (an average's plots rank as their
     /// measurement namesakes); below [`UNKNOWN_RANK`].
     pub fn rank(self) -> usize {
         match self {
@@ -145,9 +157,11 @@ impl PlotKind {
             PlotKind::Distortion => 6,
             PlotKind::Decay => 7,
             PlotKind::Reverberation | PlotKind::AverageReverberation => 8,
-            PlotKind::DecaySpectrum => 9,
-            PlotKind::Spectrogram => 10,
-            PlotKind::Impulse => 11,
+            PlotKind::Mtf => 9,
+            PlotKind::DecaySpectrum => 10,
+            PlotKind::Spectrogram => 11,
+            PlotKind::Impulse => 12,
+            PlotKind::Noise => 13,
         }
     }
 
@@ -216,6 +230,8 @@ impl PlotKind {
             PlotKind::CompareReverberation => {
                 format!("Reverberation time per band of {}.", f.inputs)
             }
+            PlotKind::Mtf => "Modulation transfer function per octave 125 Hz–8 kHz: the modulation depth m that reaches the listener against the modulation frequency (IEC 60268-16), as the STI used it, with each octave's modulation transfer index.".to_string(),
+            PlotKind::Noise => "Background noise: the equivalent continuous level per octave and one-third octave, dB SPL, with the noise rating curve it touches.".to_string(),
         }
     }
 }
@@ -255,6 +271,8 @@ mod tests {
             "plots/compare-response.png",
             "plots/compare-difference.png",
             "plots/compare-reverberation.png",
+            "plots/mtf.png",
+            "plots/noise.png",
         ] {
             assert!(names.contains(&n), "{n}");
         }
@@ -280,6 +298,7 @@ mod tests {
             .iter()
             .chain(&PlotKind::AVERAGE)
             .chain(&PlotKind::COMPARISON)
+            .chain(&PlotKind::NOISE)
             .copied()
             .collect();
         listed.sort_by_key(|k| PlotKind::ALL.iter().position(|a| a == k));
@@ -298,9 +317,11 @@ mod tests {
             "distortion",
             "decay",
             "reverberation",
+            "mtf",
             "decay-spectrum",
             "spectrogram",
             "impulse",
+            "noise",
         ];
         for (i, stem) in order.iter().enumerate() {
             assert_eq!(plot_rank(&format!("plots/{stem}.png")), i, "{stem}");

@@ -34,6 +34,8 @@ mod decay_spectrum;
 mod distortion;
 mod group_delay;
 mod impulse;
+mod mtf;
+pub mod noise;
 mod phase;
 mod response;
 mod reverberation;
@@ -89,6 +91,7 @@ impl MeasurementPlotInput<'_> {
                 PlotKind::DecaySpectrum => a.decay_spectrum.is_some() && a.gate.is_some(),
                 PlotKind::Spectrogram => a.spectrogram.is_some(),
                 PlotKind::Decay | PlotKind::Reverberation => a.room.is_some(),
+                PlotKind::Mtf => a.speech.as_ref().is_some_and(|s| !s.bands.is_empty()),
                 _ => false,
             })
             .collect()
@@ -144,6 +147,13 @@ pub fn draw_measurement(
             (Some(r), PlotKind::Decay) => decay_png(path, title, r),
             (Some(r), _) => reverberation_png(path, title, r),
             (None, _) => Err(not_drawn(kind, "the analysis has no room parameters")),
+        },
+        PlotKind::Mtf => match &a.speech {
+            Some(s) => mtf::mtf_png(path, title, s),
+            None => Err(not_drawn(
+                kind,
+                "the analysis has no speech transmission index",
+            )),
         },
         _ => Err(not_drawn(kind, "it is not a plot of a measurement")),
     }

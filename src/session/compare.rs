@@ -416,6 +416,7 @@ pub fn average_results(inputs: &[Input], sources: usize) -> Result<Results> {
         warnings,
         target: None,
         speech: None,
+        noise: None,
         average: Some(AverageRecord {
             positions: n,
             sources,

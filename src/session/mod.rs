@@ -4,6 +4,7 @@
 pub mod compare;
 pub mod export;
 pub mod measure;
+pub mod noise;
 pub mod sweep_file;
 
 use std::path::{Path, PathBuf};
@@ -583,6 +584,7 @@ pub fn job_results(job: &Job, a: &Analysis, target: Option<&TargetRecord>) -> Re
         }
     }
     results.target = target.cloned();
+    results.noise = job.config.speech.as_ref().and_then(|c| c.noise.clone());
     results
 }
 
@@ -867,6 +869,7 @@ pub fn results_record(a: &Analysis) -> Results {
         average: None,
         target: None,
         speech: a.speech.clone(),
+        noise: None,
     }
 }
 
