@@ -405,7 +405,7 @@ pub fn speech(impulse: &[(f64, [f64; 14])], conditions: Option<&Conditions>) -> 
         }
         Some(c) => {
             let source = if c.speech_level_given {
-                "given (--speech-level)"
+                "given with --speech-level"
             } else {
                 "the standard's normal vocal effort (default)"
             };

@@ -79,6 +79,15 @@ pub fn print_summary(out: &str, o: &Outcome) {
     if let Some(t) = &o.target {
         println!("{}", session::target_summary(t));
     }
+    if let Some(s) = &a.speech {
+        match (s.sti, &s.qualification) {
+            (Some(v), Some(q)) => println!(
+                "STI {v:.2} (qualification band {q}, IEC 60268-16); {}",
+                s.corrections.statement
+            ),
+            _ => println!("STI not given (see results.json speech.warnings)"),
+        }
+    }
     // the bands' warnings once per code (analysis::room::group_band_warnings,
     // as the report shows them), in place of the whole result's summaries
     // of them; results.json keeps every one in its band
