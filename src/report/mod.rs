@@ -9,6 +9,7 @@ pub mod advice;
 pub mod answer;
 pub mod comparison;
 pub mod html;
+pub mod speech;
 
 use std::fmt::Write;
 
@@ -618,6 +619,7 @@ fn measurement(
             band_table(out, &rows, Fraction::Octave, n);
         }
     }
+    speech::section(out, r, &mut n.table);
 }
 
 /// Warnings in plain words, grouped, with what to do.
