@@ -48,6 +48,8 @@ pub struct Args {
     pub sweep: SweepArgs,
     #[command(flatten)]
     pub output: OutputArgs,
+    #[command(flatten)]
+    pub speech: common::SpeechArgs,
     /// Seed of the simulated background noise.
     #[arg(long, default_value_t = 2026)]
     pub seed: u64,
@@ -125,6 +127,7 @@ fn measure_one(
     plots: bool,
 ) -> Result<Outcome> {
     let mut config = a.output.config()?;
+    config.speech = a.speech.conditions()?;
     let drive = a.output.drive()?;
     let mic = a.output.mic_correction()?;
     config.mic_correction = mic.as_ref().map(|m| m.0.clone());

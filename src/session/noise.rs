@@ -132,3 +132,114 @@ pub fn run(job: &NoiseJob) -> Result<NoiseOutcome> {
             .collect(),
     })
 }
+
+/// How `gliss measure --noise S` records the room's noise through a
+/// device.
+#[derive(Debug, Clone)]
+pub struct NoiseRecording {
+    /// The noise folder to write.
+    pub out: PathBuf,
+    /// Draw the plot.
+    pub plots: bool,
+    /// Seconds to record.
+    pub seconds: f64,
+    /// The microphone input, counted from 0.
+    pub channel: usize,
+    /// The calibration of that input, with its file entry.
+    pub calibration: (Calibration, FileEntry),
+    /// Sample rate, Hz.
+    pub sample_rate_hz: u32,
+    /// "virtual" or "soundcard".
+    pub source_kind: String,
+    /// The command line that made it.
+    pub command_line: Vec<String>,
+}
+
+/// Records `r.seconds` of the room through `device` with every output
+/// silent, then writes the noise folder of [`run`] from every input
+/// channel as captured (32-bit float). A capture that lost samples, was
+/// stopped or failed is refused (nothing written): a noise level over a
+/// broken recording would be a guess.
+pub fn record(
+    device: &mut dyn crate::audio::PlayRecord,
+    r: &NoiseRecording,
+    stop: &std::sync::atomic::AtomicBool,
+    progress: &mut dyn FnMut(crate::audio::Progress),
+) -> Result<NoiseOutcome> {
+    if !(noise::MIN_DURATION_S..=3600.0).contains(&r.seconds) {
+        return Err(Error::parameter(format!(
+            "--noise {} s is out of range; record {} s to an hour of the room (30 s or more for a steady noise)",
+            r.seconds,
+            noise::MIN_DURATION_S
+        )));
+    }
+    if r.channel >= device.input_channels() {
+        return Err(Error::parameter(format!(
+            "--channel {} does not exist: the device records {} input(s)",
+            r.channel + 1,
+            device.input_channels()
+        )));
+    }
+    device.check_rate(r.sample_rate_hz)?;
+    let silence = vec![0.0; (r.seconds * f64::from(r.sample_rate_hz)).round() as usize];
+    let playback = crate::audio::Playback {
+        signal: &silence,
+        sample_rate_hz: r.sample_rate_hz,
+        output_channels: &[],
+        stop,
+    };
+    let capture = device.play_record(&playback, &mut crate::audio::NoSink, progress)?;
+    if capture.lost_frames > 0
+        || capture.interruptions > 0
+        || capture.stopped
+        || capture.fault.is_some()
+    {
+        let why = if capture.problems.is_empty() {
+            "the recording was interrupted".to_string()
+        } else {
+            capture.problems.join("; ")
+        };
+        return Err(Error::new(
+            crate::error::ErrorKind::Device,
+            format!(
+                "the noise recording is not whole ({why}); nothing was written: record it again"
+            ),
+        ));
+    }
+    let channels: Vec<&[f64]> = capture.channels.iter().map(Vec::as_slice).collect();
+    let bytes = crate::signal::wav::encode_wav(
+        &channels,
+        capture.sample_rate_hz,
+        crate::signal::wav::SampleEncoding::Float,
+    );
+    let job = NoiseJob {
+        out: r.out.clone(),
+        overwrite: false,
+        plots: r.plots,
+        recording_bytes: bytes,
+        recording: WavData {
+            sample_rate_hz: capture.sample_rate_hz,
+            encoding: crate::signal::wav::SampleEncoding::Float,
+            // as the WAV holds them (32-bit float)
+            channels: capture
+                .channels
+                .iter()
+                .map(|c| c.iter().map(|&v| f64::from(v as f32)).collect())
+                .collect(),
+        },
+        channel: r.channel,
+        calibration: r.calibration.clone(),
+        source: Source {
+            kind: r.source_kind.clone(),
+            description: format!(
+                "{} s of the room's noise through {}, outputs silent",
+                r.seconds,
+                device.describe()
+            ),
+            recording_path: None,
+            sweep_path: None,
+        },
+        command_line: r.command_line.clone(),
+    };
+    run(&job)
+}

@@ -255,3 +255,61 @@ fn noise_mistakes_are_refused_in_one_line() {
     );
     assert!(e.contains("--speech-level"), "{e}");
 }
+
+#[test]
+fn measure_records_the_room_noise_and_demo_takes_it() {
+    let tmp = tempfile::tempdir().unwrap();
+    let d = tmp.path();
+    calibration(d, 10.0);
+    let out = ok(
+        d,
+        &[
+            "measure",
+            "--device",
+            "virtual",
+            "--noise",
+            "2",
+            "--calibration",
+            "mic.json",
+            "--out",
+            "room-noise",
+        ],
+    );
+    assert!(
+        out.contains("outputs silent") || out.contains("every output silent"),
+        "{out}"
+    );
+    let m = json(&d.join("room-noise/manifest.json"));
+    assert_eq!(m["kind"], "noise");
+    assert_eq!(m["source"]["kind"], "virtual");
+    let n = json(&d.join("room-noise/noise.json"));
+    assert!(n["rating"]["value"].as_i64().is_some());
+    // the raw recording is what was captured: 2 s at 48 kHz
+    let (rate, ch) = crate::util::read_wav(&d.join("room-noise/recording.wav"));
+    assert_eq!(rate, 48_000);
+    assert_eq!(ch[0].len(), 96_000);
+    ok(
+        d,
+        &["demo", "--single", "--out", "talk", "--noise", "room-noise"],
+    );
+    let r = json(&d.join("talk/results.json"));
+    let c = &r["speech"]["corrections"];
+    assert_eq!(c["impulse_response_only"], false);
+    assert_eq!(c["speech_level_dba"], 60.0);
+    assert!(
+        c["speech_level_source"]
+            .as_str()
+            .unwrap()
+            .contains("normal vocal effort")
+    );
+    assert!(r["speech"]["sti"].as_f64().is_some());
+    // without a calibration the noise cannot be stated in dB SPL
+    let e = refused(
+        d,
+        &[
+            "measure", "--device", "virtual", "--noise", "2", "--out", "x",
+        ],
+    );
+    assert!(e.contains("--calibration"), "{e}");
+    assert!(!d.join("x").exists());
+}
