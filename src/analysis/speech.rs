@@ -116,7 +116,7 @@ pub fn mtf(e: &[f64], fs: f64, tail: Option<Tail>) -> Option<[f64; 14]> {
         .collect();
     let tail_total = tail.map_or(0.0, |t| t.level * t.tau_s * fs);
     let total = sums.iter().map(|s| s.1).sum::<f64>() + tail_total;
-    if !(total > 0.0) || !total.is_finite() {
+    if total.is_nan() || total <= 0.0 || !total.is_finite() {
         return None;
     }
     let mut out = [0.0; 14];

@@ -34,29 +34,6 @@ pub fn sti_words(s: &Speech) -> String {
     }
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn the_band_is_named_with_its_range() {
-        let m = [1.0; 14];
-        let mut s = crate::analysis::speech::speech(
-            &crate::analysis::speech::OCTAVES_HZ.map(|c| (c, m)),
-            None,
-        );
-        assert_eq!(sti_words(&s), "1.00 (qualification band A+, above 0.76)");
-        s.sti = Some(0.66);
-        s.qualification = Some("C".into());
-        assert_eq!(sti_words(&s), "0.66 (qualification band C, 0.64–0.68)");
-        s.sti = Some(0.2);
-        s.qualification = Some("U".into());
-        assert_eq!(sti_words(&s), "0.20 (qualification band U, below 0.36)");
-        s.sti = None;
-        assert_eq!(sti_words(&s), "not given");
-    }
-}
-
 /// One line for a page that answers the question of a speech room: the
 /// STI, its band, and the noise (for the report's first page).
 pub fn answer_line(r: &Results) -> Option<String> {
@@ -168,4 +145,27 @@ pub fn section(out: &mut String, r: &Results, table: &mut usize) {
         let _ = write!(out, "<td class=\"num\">{:.1}</td>", b.leq_db);
     }
     out.push_str("</tr></tbody></table>");
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_band_is_named_with_its_range() {
+        let m = [1.0; 14];
+        let mut s = crate::analysis::speech::speech(
+            &crate::analysis::speech::OCTAVES_HZ.map(|c| (c, m)),
+            None,
+        );
+        assert_eq!(sti_words(&s), "1.00 (qualification band A+, above 0.76)");
+        s.sti = Some(0.66);
+        s.qualification = Some("C".into());
+        assert_eq!(sti_words(&s), "0.66 (qualification band C, 0.64–0.68)");
+        s.sti = Some(0.2);
+        s.qualification = Some("U".into());
+        assert_eq!(sti_words(&s), "0.20 (qualification band U, below 0.36)");
+        s.sti = None;
+        assert_eq!(sti_words(&s), "not given");
+    }
 }
