@@ -20,7 +20,7 @@ more for a steady noise. The noise folder gets manifest.json, recording.wav (raw
 copied unchanged), noise.json (Leq per octave 31.5 Hz-16 kHz and one-third octave \
 20 Hz-20 kHz, dB SPL; the A-weighted and unweighted totals; the noise rating NR of \
 ISO/R 1996), noise.csv and plots/noise.png.\n\n\
-Give the folder to `gliss analyze --noise DIR` (or measure, demo) of the same room: \
+Give the folder to `gliss analyze --noise DIR` or `gliss demo --noise DIR` (`gliss measure --noise-folder DIR`) of the same room: \
 the speech transmission index then includes the background noise."
 )]
 pub struct Args {
