@@ -554,6 +554,25 @@ mod tests {
     }
 
     #[test]
+    fn the_standards_weighting_factor_test() {
+        // IEC 60268-16:2020 A.2.2 (edition 5), as quoted by a secondary
+        // source: two adjacent octaves fully transmitted (TI = 1, m = 1),
+        // the others not at all (m = 0), give STI 0.127, 0.279, 0.398,
+        // 0.531, 0.486, 0.302 for the pairs 125/250 Hz … 4k/8k Hz, within
+        // the test's 0.001
+        let want = [0.127, 0.279, 0.398, 0.531, 0.486, 0.302];
+        for (k, w) in want.iter().enumerate() {
+            let bands: Vec<(f64, [f64; 14])> = OCTAVES_HZ
+                .iter()
+                .enumerate()
+                .map(|(i, &c)| (c, [if i == k || i == k + 1 { 1.0 } else { 0.0 }; 14]))
+                .collect();
+            let got = speech(&bands, None).sti.unwrap();
+            assert!((got - w).abs() < 0.001, "pair {k}: {got} vs {w}");
+        }
+    }
+
+    #[test]
     fn a_missing_octave_withholds_the_sti() {
         let m = MODULATION_HZ.map(|f| mtf_exponential(1.0, f));
         let s = speech(&[(250.0, m), (500.0, m)], None);
