@@ -553,6 +553,70 @@ mod tests {
         assert!(s.warnings.iter().any(|w| w.code == Code::SpeechImpulseOnly));
     }
 
+    /// IEC 60268-16:2011 annex M, table M.1 (the standard's worked example,
+    /// transcribed from a secondary source): the MTF matrix of the
+    /// transmission channel alone (step 2; rows the 14 modulation
+    /// frequencies, columns the octaves 125 Hz … 8 kHz).
+    const ANNEX_M_MTF: [[f64; 7]; 14] = [
+        [0.983, 0.960, 0.978, 0.990, 0.990, 0.986, 0.997],
+        [0.968, 0.936, 0.959, 0.974, 0.980, 0.979, 0.995],
+        [0.947, 0.904, 0.931, 0.953, 0.966, 0.968, 0.992],
+        [0.920, 0.869, 0.898, 0.927, 0.949, 0.955, 0.987],
+        [0.886, 0.826, 0.852, 0.892, 0.925, 0.935, 0.981],
+        [0.851, 0.791, 0.808, 0.856, 0.900, 0.914, 0.974],
+        [0.816, 0.756, 0.764, 0.816, 0.871, 0.891, 0.964],
+        [0.773, 0.721, 0.730, 0.776, 0.841, 0.866, 0.953],
+        [0.741, 0.684, 0.705, 0.745, 0.809, 0.838, 0.941],
+        [0.726, 0.628, 0.678, 0.736, 0.780, 0.812, 0.929],
+        [0.714, 0.557, 0.656, 0.723, 0.753, 0.786, 0.916],
+        [0.670, 0.520, 0.623, 0.678, 0.728, 0.765, 0.904],
+        [0.591, 0.483, 0.556, 0.615, 0.701, 0.749, 0.893],
+        [0.554, 0.446, 0.523, 0.614, 0.685, 0.737, 0.884],
+    ];
+
+    #[test]
+    fn the_standards_worked_example_of_annex_m() {
+        // step 3: operational speech 82.9, 82.9, 79.2, 73.2, 67.2, 61.2,
+        // 55.2 dB (the male spectrum at 80 dB(A)) and occupancy noise
+        // 55.5 … 30.5 dB; printed: the combined adjustment per octave, the
+        // MTI row (two decimals) and STI 0.76 (two decimals)
+        let c = Conditions {
+            speech_level_dba: 80.0,
+            speech_level_given: true,
+            noise_db: Some([55.5, 47.5, 41.5, 37.5, 34.5, 32.5, 30.5]),
+            noise_source: None,
+            noise: None,
+        };
+        let bands: Vec<(f64, [f64; 14])> = (0..7)
+            .map(|k| (OCTAVES_HZ[k], std::array::from_fn(|i| ANNEX_M_MTF[i][k])))
+            .collect();
+        let s = speech(&bands, Some(&c));
+        let printed_speech = [82.9, 82.9, 79.2, 73.2, 67.2, 61.2, 55.2];
+        let adjustment = [0.998, 0.985, 0.967, 0.963, 0.981, 0.989, 0.995];
+        let mti = [0.73, 0.66, 0.67, 0.71, 0.77, 0.80, 0.92];
+        for (k, b) in s.bands.iter().enumerate() {
+            assert!((b.speech_db.unwrap() - printed_speech[k]).abs() < 0.05);
+            // printed to three decimals
+            assert!(
+                (b.factor.unwrap() - adjustment[k]).abs() < 0.0015,
+                "{} Hz factor {:?} vs {}",
+                b.center_hz,
+                b.factor,
+                adjustment[k]
+            );
+            // printed to two decimals
+            assert!(
+                (b.mti - mti[k]).abs() < 0.006,
+                "{} Hz MTI {} vs {}",
+                b.center_hz,
+                b.mti,
+                mti[k]
+            );
+        }
+        let sti = s.sti.unwrap();
+        assert!((sti - 0.76).abs() < 0.006, "STI {sti} vs 0.76");
+    }
+
     #[test]
     fn the_standards_weighting_factor_test() {
         // IEC 60268-16:2020 A.2.2 (edition 5), as quoted by a secondary
