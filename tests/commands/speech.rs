@@ -176,6 +176,17 @@ fn noise_levels_and_the_sti_with_the_room_noise() {
             .unwrap()
             .starts_with("quiet")
     );
+    // the report shows the STI with its band, the MTI table and the noise
+    ok(d, &["report", "noisy", "--out", "noisy.html"]);
+    let html = std::fs::read_to_string(d.join("noisy.html")).unwrap();
+    let q = s["qualification"].as_str().unwrap();
+    assert!(
+        html.contains(&format!("STI {noisy:.2} (qualification band {q}")),
+        "the report names the STI and its band"
+    );
+    assert!(html.contains("data-table=\"speech\""));
+    assert!(html.contains("data-table=\"noise\""));
+    assert!(html.contains("dB(A)"));
 }
 
 #[test]
