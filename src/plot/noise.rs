@@ -6,7 +6,7 @@ use std::path::Path;
 use plotters::prelude::*;
 
 use super::annotate::Marks;
-use super::axes::{Drawn, band_axis, band_chart, place_legend};
+use super::axes::{Drawn, band_axis, band_chart_y, place_legend};
 use super::theme::{BLUE, ORANGE, canvas, plot_error};
 use crate::analysis::noise::{NR_COEFFICIENTS, NoiseLevels};
 use crate::error::Result;
@@ -43,11 +43,12 @@ pub fn noise_png(path: &Path, title: &str, n: &NoiseLevels) -> Result<()> {
     let ticks: Vec<f64> = oct.iter().map(|p| p.0).collect();
     let mut marks = Marks::new();
     let mut draw = || -> std::result::Result<(), Box<dyn std::error::Error>> {
-        let mut chart = band_chart(
+        let mut chart = band_chart_y(
             &body,
             (f_lo, f_hi),
             &ticks,
             y_max,
+            0,
             ("Band centre frequency (Hz)", "Leq (dB SPL)"),
             &mut marks,
         )?;
