@@ -96,7 +96,7 @@ pub struct Args {
     /// Record the room's background noise for S seconds with every output
     /// silent, into --out as a noise folder (as `gliss noise` writes),
     /// instead of measuring with the sweep; needs --calibration. 30 s or
-    /// more for a steady noise.
+    /// more for a steady noise, at most 600 s.
     #[arg(long, value_name = "S", allow_hyphen_values = true)]
     pub noise: Option<f64>,
     /// The A-weighted speech level at 1 m of the talker, dB(A), for the

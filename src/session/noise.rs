@@ -133,6 +133,9 @@ pub fn run(job: &NoiseJob) -> Result<NoiseOutcome> {
     })
 }
 
+/// The longest noise `gliss measure --noise` records, s.
+pub const MAX_RECORD_S: f64 = 600.0;
+
 /// How `gliss measure --noise S` records the room's noise through a
 /// device.
 #[derive(Debug, Clone)]
@@ -166,9 +169,11 @@ pub fn record(
     stop: &std::sync::atomic::AtomicBool,
     progress: &mut dyn FnMut(crate::audio::Progress),
 ) -> Result<NoiseOutcome> {
-    if !(noise::MIN_DURATION_S..=3600.0).contains(&r.seconds) {
+    // the capture is held in memory until it is written: ten minutes of
+    // every input at 48 kHz is a few hundred megabytes at most
+    if !(noise::MIN_DURATION_S..=MAX_RECORD_S).contains(&r.seconds) {
         return Err(Error::parameter(format!(
-            "--noise {} s is out of range; record {} s to an hour of the room (30 s or more for a steady noise)",
+            "--noise {} s is out of range; record {} s to {MAX_RECORD_S} s of the room (30 s or more for a steady noise; for longer, record with any recorder and use gliss noise)",
             r.seconds,
             noise::MIN_DURATION_S
         )));
