@@ -75,7 +75,7 @@ pub fn section(out: &mut String, r: &Results, table: &mut usize) {
         let levels = s.bands.iter().any(|b| b.speech_db.is_some());
         let _ = write!(
             out,
-            "<table class=\"bands\" data-table=\"speech\"><caption>Table {}. Modulation transfer index per octave band</caption><thead><tr><th scope=\"col\">Band</th><th scope=\"col\" class=\"num\">MTI</th><th scope=\"col\" class=\"num\">m at 0.63 Hz</th><th scope=\"col\" class=\"num\">m at 12.5 Hz</th>",
+            "<table class=\"bands speech\" data-table=\"speech\"><caption>Table {}. Modulation transfer index per octave band</caption><thead><tr><th scope=\"col\">Band</th><th scope=\"col\" class=\"num\">MTI</th><th scope=\"col\" class=\"num\">m at 0.63 Hz</th><th scope=\"col\" class=\"num\">m at 12.5 Hz</th>",
             *table
         );
         if levels {
@@ -130,7 +130,7 @@ pub fn section(out: &mut String, r: &Results, table: &mut usize) {
     *table += 1;
     let _ = write!(
         out,
-        "<table class=\"bands\" data-table=\"noise\"><caption>Table {}. Background noise per octave band, Leq (dB SPL)</caption><thead><tr>",
+        "<table class=\"bands noise\" data-table=\"noise\"><caption>Table {}. Background noise per octave band, Leq (dB SPL)</caption><thead><tr>",
         *table
     );
     for b in &n.octaves {
