@@ -28,6 +28,7 @@ pub fn main() -> gliss::Result<()> {
         gate: None,
         mic_correction: None,
         profile: Default::default(),
+        speech: None,
     };
     let a = analyze(&recording, &stimulus, &design, &config)?;
     println!("delay {:.4} samples", a.delay_s * design.fs());

@@ -43,6 +43,7 @@ pub fn main() -> gliss::Result<()> {
             gate: None,
             mic_correction: None,
             profile: Default::default(),
+            speech: None,
         },
         title: "virtual system (example)".into(),
         command_line: std::env::args().collect(),

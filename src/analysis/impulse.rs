@@ -115,6 +115,9 @@ pub fn analyze(ir: &[f64], fs_hz: u32, config: &AnalysisConfig) -> Result<Analys
         band_warnings(&r, &mut warnings);
         r
     });
+    let speech = room
+        .as_ref()
+        .map(|r| crate::analysis::speech::speech(&r.mtf, config.speech.as_ref()));
     Ok(Analysis {
         sample_rate_hz: fs_hz,
         delay_s: (delay_samples - pad as f64) / fs,
@@ -130,6 +133,7 @@ pub fn analyze(ir: &[f64], fs_hz: u32, config: &AnalysisConfig) -> Result<Analys
         spectrogram,
         distortion: None,
         room,
+        speech,
         peak_dbfs: db20(peak),
         peak_to_noise_db,
         warnings,

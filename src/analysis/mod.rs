@@ -20,6 +20,7 @@ pub mod etc;
 pub mod gate;
 pub mod impedance;
 pub mod impulse;
+pub mod noise;
 pub mod phase;
 pub mod presence;
 pub mod response;
@@ -27,6 +28,7 @@ pub mod room;
 pub mod rt_target;
 pub mod smoothing;
 pub mod spectrogram;
+pub mod speech;
 pub mod sweep_track;
 pub mod target;
 pub mod thiele_small;
@@ -67,6 +69,9 @@ pub struct AnalysisConfig {
     /// What is measured (recorded in the manifest; the report leads with
     /// the numbers this use asks for).
     pub profile: crate::model::Profile,
+    /// The speech level and background noise for the STI (`None`: the
+    /// STI of the impulse response alone).
+    pub speech: Option<speech::Conditions>,
 }
 
 impl Default for AnalysisConfig {
@@ -78,6 +83,7 @@ impl Default for AnalysisConfig {
             gate: None,
             mic_correction: None,
             profile: crate::model::Profile::Room,
+            speech: None,
         }
     }
 }
@@ -118,6 +124,8 @@ pub struct Analysis {
     pub distortion: Option<Distortion>,
     /// Reverberation and energy parameters per band (`None` without bands).
     pub room: Option<room::Room>,
+    /// The speech transmission index (`None` without bands).
+    pub speech: Option<speech::Speech>,
     /// Peak level of the recording in dBFS.
     pub peak_dbfs: f64,
     /// Peak of the impulse response over its noise, in dB.
@@ -370,6 +378,9 @@ pub fn analyze(
         band_warnings(&r, &mut warnings);
         r
     });
+    let speech = room
+        .as_ref()
+        .map(|r| speech::speech(&r.mtf, config.speech.as_ref()));
 
     Ok(Analysis {
         sample_rate_hz: design.params.sample_rate_hz,
@@ -386,6 +397,7 @@ pub fn analyze(
         spectrogram,
         distortion,
         room,
+        speech,
         peak_dbfs,
         peak_to_noise_db,
         warnings,

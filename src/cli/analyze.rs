@@ -53,6 +53,8 @@ pub struct Args {
     pub reference: Option<usize>,
     #[command(flatten)]
     pub output: OutputArgs,
+    #[command(flatten)]
+    pub speech: common::SpeechArgs,
 }
 
 fn read(path: &PathBuf, what: &str) -> Result<(Vec<u8>, wav::WavData)> {
@@ -65,6 +67,7 @@ fn read(path: &PathBuf, what: &str) -> Result<(Vec<u8>, wav::WavData)> {
 /// Runs `gliss analyze`.
 pub fn run(a: Args) -> Result<()> {
     let mut config = a.output.config()?;
+    config.speech = a.speech.conditions()?;
     let drive = a.output.drive()?;
     let mic = a.output.mic_correction()?;
     config.mic_correction = mic.as_ref().map(|m| m.0.clone());

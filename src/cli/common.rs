@@ -93,6 +93,31 @@ impl SweepArgs {
 pub use gliss::model::Profile;
 use gliss::model::plot_kind::PhaseView;
 
+/// The STI's listening conditions of `analyze` and `demo` (`measure` has
+/// its own, as its `--noise` records the noise).
+#[derive(Debug, Clone, ClapArgs)]
+pub struct SpeechArgs {
+    /// The A-weighted speech level at 1 m in front of the talker, dB(A),
+    /// for the speech transmission index (IEC 60268-16 male speech
+    /// spectrum; applied at the listening position as it is) [default:
+    /// 60, normal vocal effort, when --noise is given]. With it (or
+    /// --noise) the STI includes the auditory masking and the hearing
+    /// threshold; without either, it is for the impulse response alone.
+    #[arg(long, value_name = "DB", allow_hyphen_values = true)]
+    pub speech_level: Option<f64>,
+    /// A noise folder of the same room (gliss noise, or measure --noise):
+    /// the STI then includes its background noise per octave.
+    #[arg(long, value_name = "DIR")]
+    pub noise: Option<std::path::PathBuf>,
+}
+
+impl SpeechArgs {
+    /// The STI's conditions ([`speech_conditions`]).
+    pub fn conditions(&self) -> Result<Option<gliss::analysis::speech::Conditions>> {
+        speech_conditions(self.speech_level, self.noise.as_deref())
+    }
+}
+
 /// Analysis and output options of `analyze` and `demo`.
 #[derive(Debug, Clone, ClapArgs)]
 pub struct OutputArgs {
@@ -209,6 +234,7 @@ impl OutputArgs {
             // read by `mic_correction`, once, by the command
             mic_correction: None,
             profile,
+            speech: None,
         })
     }
 
@@ -261,20 +287,10 @@ impl OutputArgs {
 
     /// The calibration, parsed, with its path and SHA-256 for the manifest.
     pub fn calibration(&self) -> Result<Option<(Calibration, FileEntry)>> {
-        let Some(path) = &self.calibration else {
-            return Ok(None);
-        };
-        let (bytes, entry) = read_input(path)?;
-        let c: Calibration = serde_json::from_slice(&bytes)
-            .ok()
-            .filter(|c: &Calibration| c.format == "gliss calibration" && c.pa_per_fs > 0.0)
-            .ok_or_else(|| {
-                Error::input(format!(
-                    "{} is not a calibration file from gliss calibrate",
-                    path.display()
-                ))
-            })?;
-        Ok(Some((c, entry)))
+        self.calibration
+            .as_deref()
+            .map(read_calibration)
+            .transpose()
     }
 
     /// The microphone correction, parsed, with its path and SHA-256 for the
@@ -377,6 +393,71 @@ impl TargetArgs {
 /// The folder name for messages.
 pub fn show(p: &Path) -> String {
     p.display().to_string()
+}
+
+/// The conditions of the STI: `--speech-level` (default the standard's
+/// normal vocal effort when only `--noise` is given) and the noise
+/// folder of `--noise`, read through `folder::open_noise`. `None`
+/// without either: the STI of the impulse response alone.
+pub fn speech_conditions(
+    speech_level: Option<f64>,
+    noise_dir: Option<&Path>,
+) -> Result<Option<gliss::analysis::speech::Conditions>> {
+    use gliss::analysis::speech::{Conditions, NORMAL_EFFORT_DBA};
+    if speech_level.is_none() && noise_dir.is_none() {
+        return Ok(None);
+    }
+    if let Some(l) = speech_level {
+        if !(30.0..=100.0).contains(&l) {
+            return Err(Error::parameter(format!(
+                "--speech-level {l} dB(A) is no speech level at 1 m; talkers give 45 (relaxed) to 90 (shouting), {NORMAL_EFFORT_DBA} for normal vocal effort"
+            )));
+        }
+    }
+    let noise = match noise_dir {
+        None => None,
+        Some(dir) => {
+            let f = gliss::folder::open_noise(dir)?;
+            let Some(octaves) = f.noise.speech_octaves() else {
+                return Err(Error::input(format!(
+                    "the noise folder {} does not hold every octave 125 Hz-8 kHz (recorded at {} Hz); record the noise at 44.1 kHz or more",
+                    dir.display(),
+                    f.noise.sample_rate_hz
+                )));
+            };
+            Some((
+                octaves,
+                format!(
+                    "{} (noise folder, manifest SHA-256 {})",
+                    dir.display(),
+                    f.manifest_sha256
+                ),
+                f.noise,
+            ))
+        }
+    };
+    Ok(Some(Conditions {
+        speech_level_dba: speech_level.unwrap_or(NORMAL_EFFORT_DBA),
+        speech_level_given: speech_level.is_some(),
+        noise_db: noise.as_ref().map(|n| n.0),
+        noise_source: noise.as_ref().map(|n| n.1.clone()),
+        noise: noise.map(|n| n.2),
+    }))
+}
+
+/// Reads a calibration file from `gliss calibrate`, with its manifest entry.
+pub fn read_calibration(path: &Path) -> Result<(Calibration, FileEntry)> {
+    let (bytes, entry) = read_input(path)?;
+    let c: Calibration = serde_json::from_slice(&bytes)
+        .ok()
+        .filter(|c: &Calibration| c.format == "gliss calibration" && c.pa_per_fs > 0.0)
+        .ok_or_else(|| {
+            Error::input(format!(
+                "{} is not a calibration file from gliss calibrate",
+                path.display()
+            ))
+        })?;
+    Ok((c, entry))
 }
 
 /// Reads an input file named on the command line; returns its bytes and

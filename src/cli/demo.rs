@@ -49,6 +49,8 @@ pub struct Args {
     pub sweep: SweepArgs,
     #[command(flatten)]
     pub output: OutputArgs,
+    #[command(flatten)]
+    pub speech: common::SpeechArgs,
     /// Seed of the simulated background noise.
     #[arg(long, default_value_t = 2026)]
     pub seed: u64,
@@ -84,6 +86,15 @@ pub fn print_summary(out: &str, o: &Outcome) {
     );
     if let Some(t) = &o.target {
         println!("{}", session::target_summary(t));
+    }
+    if let Some(s) = &a.speech {
+        match (s.sti, &s.qualification) {
+            (Some(v), Some(q)) => println!(
+                "STI {v:.2} (qualification band {q}, IEC 60268-16); {}",
+                s.corrections.statement
+            ),
+            _ => println!("STI not given (see results.json speech.warnings)"),
+        }
     }
     // the bands' warnings once per code (analysis::room::group_band_warnings,
     // as the report shows them), in place of the whole result's summaries
@@ -126,6 +137,7 @@ fn measure_one(
         // the story's room is a rehearsal room: a room for music
         config.profile = gliss::model::Profile::Music;
     }
+    config.speech = a.speech.conditions()?;
     let drive = a.output.drive()?;
     let mic = a.output.mic_correction()?;
     config.mic_correction = mic.as_ref().map(|m| m.0.clone());

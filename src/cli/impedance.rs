@@ -182,6 +182,7 @@ pub fn config() -> Result<AnalysisConfig> {
         gate: None,
         mic_correction: None,
         profile: gliss::model::Profile::Speaker,
+        speech: None,
     })
 }
 

@@ -127,6 +127,26 @@ pub struct Args {
     pub sweep: SweepArgs,
     #[command(flatten)]
     pub output: OutputArgs,
+    /// Record the room's background noise for S seconds with every output
+    /// silent, into --out as a noise folder (as `gliss noise` writes),
+    /// instead of measuring with the sweep; needs --calibration. 30 s or
+    /// more for a steady noise, at most 600 s.
+    #[arg(long, value_name = "S", allow_hyphen_values = true)]
+    pub noise: Option<f64>,
+    /// The A-weighted speech level at 1 m of the talker, dB(A), for the
+    /// STI [default: 60, normal vocal effort, with --noise-folder]; as
+    /// `analyze --speech-level`.
+    #[arg(
+        long,
+        value_name = "DB",
+        allow_hyphen_values = true,
+        conflicts_with = "noise"
+    )]
+    pub speech_level: Option<f64>,
+    /// A noise folder of the same room: the STI includes its noise (as
+    /// `analyze --noise DIR`).
+    #[arg(long, value_name = "DIR", conflicts_with = "noise")]
+    pub noise_folder: Option<PathBuf>,
 }
 
 /// Set by Ctrl-C: the measurement stops, the output ramps down.
@@ -290,6 +310,7 @@ pub fn run(a: Args) -> Result<()> {
         ));
     }
     let mut config = a.output.config()?;
+    config.speech = common::speech_conditions(a.speech_level, a.noise_folder.as_deref())?;
     let mic = a.output.mic_correction()?;
     config.mic_correction = mic.as_ref().map(|m| m.0.clone());
     let calibration = a.output.calibration()?;
@@ -350,6 +371,9 @@ pub fn run(a: Args) -> Result<()> {
         let highest_out = outputs.iter().copied().max().unwrap_or(0) + 1;
         sound_card(&a, &design, highest_in, highest_out)?
     };
+    if let Some(seconds) = a.noise {
+        return record_noise(&a, device.as_mut(), seconds, channel, calibration, &design);
+    }
     let job = MeasureJob {
         out: a.out.clone(),
         plots: !a.output.no_plots,
@@ -425,6 +449,48 @@ pub fn run(a: Args) -> Result<()> {
             "note: no --reference, so the delay includes the interface's latency (known to about one buffer)"
         );
     }
+    Ok(())
+}
+
+/// `gliss measure --noise S`: the room's noise through the device, outputs
+/// silent, into a noise folder.
+fn record_noise(
+    a: &Args,
+    device: &mut dyn PlayRecord,
+    seconds: f64,
+    channel: usize,
+    calibration: Option<(
+        gliss::analysis::calibration::Calibration,
+        gliss::folder::schema::FileEntry,
+    )>,
+    design: &SweepDesign,
+) -> Result<()> {
+    let Some(calibration) = calibration else {
+        return Err(Error::parameter(
+            "--noise needs --calibration: the noise is stated in dB SPL; run gliss calibrate on a calibrator's tone and pass --calibration FILE.json",
+        ));
+    };
+    let is_virtual = device.describe().to_lowercase().contains("virtual");
+    let job = gliss::session::noise::NoiseRecording {
+        out: a.out.clone(),
+        plots: !a.output.no_plots,
+        seconds,
+        channel,
+        calibration,
+        sample_rate_hz: design.params.sample_rate_hz,
+        source_kind: if is_virtual { "virtual" } else { "soundcard" }.into(),
+        command_line: std::env::args().collect(),
+    };
+    let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
+    println!("{}", device.describe());
+    println!(
+        "recording {seconds} s of the room's noise on input {} with every output silent",
+        channel + 1
+    );
+    let mut meter = Meter::new(1, f64::from(design.params.sample_rate_hz));
+    let outcome = gliss::session::noise::record(device, &job, &STOP, &mut |p| meter.update(p));
+    meter.bar.finish_and_clear();
+    super::noise::print_levels(&common::show(&a.out), &outcome?.levels);
     Ok(())
 }
 

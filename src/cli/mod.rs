@@ -11,6 +11,7 @@ mod devices;
 mod export;
 mod impedance;
 mod measure;
+mod noise;
 mod reanalyze;
 mod report;
 mod sweep;
@@ -62,6 +63,8 @@ enum Command {
     Calibrate(calibrate::Args),
     /// Write one self-contained HTML report (plots embedded, prints on A4) of measurement folders.
     Report(report::Args),
+    /// Background noise from a calibrated recording: Leq per band, dB(A), noise rating (NR).
+    Noise(noise::Args),
     /// Write one curve of a measurement folder (response, distortion, bands, impulse) as CSV or JSON.
     Export(export::Args),
 }
@@ -76,6 +79,7 @@ fn wants_plots(command: &Command) -> bool {
         Command::Demo(a) => !a.output.no_plots,
         Command::Average(a) => !a.no_plots,
         Command::Compare(a) => !a.no_plots,
+        Command::Noise(a) => !a.no_plots,
         _ => false,
     }
 }
@@ -146,6 +150,7 @@ pub fn main() -> ExitCode {
         Command::Compare(a) => compare::run(a),
         Command::Report(a) => report::run(a),
         Command::Export(a) => export::run(a),
+        Command::Noise(a) => noise::run(a),
     };
     match result {
         Ok(()) => {

@@ -19,7 +19,10 @@ use std::fs;
 use std::path::{Component, Path, PathBuf};
 
 use crate::error::{Error, Result};
-use schema::{Comparison, ComparisonManifest, FileEntry, FileRole, FolderKind, Manifest, Results};
+use schema::{
+    Comparison, ComparisonManifest, FileEntry, FileRole, FolderKind, Manifest, NoiseManifest,
+    Results,
+};
 pub use write::{MeasurementFolder, sha256_hex};
 
 /// How a file of a folder compares with the SHA-256 its manifest recorded.
@@ -159,6 +162,11 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
             .unwrap_or_else(|| "it was interrupted".into());
         return Err(Error::input(format!(
             "{name} is an incomplete measurement ({why}); it has no results: measure again, or analyse its recording.wav with gliss analyze into a new folder"
+        )));
+    }
+    if value.get("kind").and_then(serde_json::Value::as_str) == Some("noise") {
+        return Err(Error::input(format!(
+            "{name} is a noise folder (gliss noise): it holds the room's background noise, not a measurement; give it to gliss analyze, measure or demo as --noise {name}, and report the room measurement"
         )));
     }
     let not_ours = |e: serde_json::Error| {
@@ -389,4 +397,74 @@ mod tests {
         let e = open(&t.path().join("nowhere")).unwrap_err();
         assert!(e.message().contains("is not a folder"), "{e}");
     }
+}
+
+/// A noise folder, opened and checked.
+#[derive(Debug, Clone)]
+pub struct NoiseFolder {
+    /// The folder as given.
+    pub dir: PathBuf,
+    /// SHA-256 of its manifest.json.
+    pub manifest_sha256: String,
+    /// The manifest.
+    pub manifest: NoiseManifest,
+    /// The levels (noise.json).
+    pub noise: crate::analysis::noise::NoiseLevels,
+}
+
+/// Opens a noise folder (`gliss noise`, `gliss measure --noise`): the one
+/// reader of that kind, with the checks of [`open`] — complete, every
+/// listed file matching its SHA-256, noise.json the one listed.
+pub fn open_noise(dir: &Path) -> Result<NoiseFolder> {
+    let name = dir.display();
+    let mpath = dir.join("manifest.json");
+    if !dir.is_dir() || !mpath.is_file() {
+        return Err(Error::input(format!(
+            "{name} is not a noise folder (no manifest.json); give a folder written by gliss noise or gliss measure --noise"
+        )));
+    }
+    let mbytes = fs::read(&mpath).map_err(|e| Error::io("read", &mpath, &e))?;
+    let value: serde_json::Value = serde_json::from_slice(&mbytes).map_err(|e| {
+        Error::input(format!(
+            "{name}/manifest.json is not valid JSON ({e}); record the noise again into a new folder"
+        ))
+    })?;
+    if value.get("kind").and_then(serde_json::Value::as_str) != Some("noise") {
+        return Err(Error::input(format!(
+            "{name} is not a noise folder (its manifest says it is {}); give a folder written by gliss noise or gliss measure --noise",
+            value
+                .get("kind")
+                .and_then(serde_json::Value::as_str)
+                .unwrap_or("a measurement")
+        )));
+    }
+    if value.get("complete").and_then(serde_json::Value::as_bool) != Some(true) {
+        return Err(Error::input(format!(
+            "{name} is an incomplete noise folder; record the noise again into a new folder"
+        )));
+    }
+    let manifest: NoiseManifest = serde_json::from_value(value).map_err(|e| {
+        Error::input(format!(
+            "{name}/manifest.json is not a gliss noise manifest ({e}); record the noise again into a new folder"
+        ))
+    })?;
+    let files = check_files(dir, &manifest.files, OpenOptions::default())?;
+    let again = "gliss noise ... --overwrite";
+    let (bytes, sha) = read_content(
+        dir,
+        "noise.json",
+        "analyse its recording again (gliss noise ... --overwrite)",
+    )?;
+    content_matches(dir, "noise.json", &sha, &files, again)?;
+    let noise = serde_json::from_slice(&bytes).map_err(|e| {
+        Error::input(format!(
+            "{name}/noise.json is not a gliss noise file ({e}); analyse its recording again (gliss noise ... --overwrite)"
+        ))
+    })?;
+    Ok(NoiseFolder {
+        dir: dir.to_path_buf(),
+        manifest_sha256: sha256_hex(&mbytes),
+        manifest,
+        noise,
+    })
 }

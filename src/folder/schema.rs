@@ -33,6 +33,8 @@ pub enum FolderKind {
     /// its small-signal parameters (results.json's `impedance` and
     /// `thiele_small`).
     Impedance,
+    /// The background noise of a room (noise.json, `gliss noise`).
+    Noise,
 }
 
 impl FolderKind {
@@ -43,6 +45,7 @@ impl FolderKind {
             FolderKind::Average => "an average",
             FolderKind::Comparison => "a comparison",
             FolderKind::Impedance => "an impedance measurement",
+            FolderKind::Noise => "a noise measurement",
         }
     }
 }
@@ -95,6 +98,15 @@ pub struct Results {
     /// the reason in `warnings` when the resonance cannot be read.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub thiele_small: Option<ThieleSmall>,
+    /// The speech transmission index (IEC 60268-16) with its MTF per
+    /// octave and the corrections it includes (absent without bands and
+    /// in an average).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub speech: Option<crate::analysis::speech::Speech>,
+    /// The background noise the STI included (--noise): the noise
+    /// folder's levels as they were read.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub noise: Option<crate::analysis::noise::NoiseLevels>,
 }
 
 /// results.json's `impedance`.
@@ -394,6 +406,13 @@ pub struct Settings {
     /// before it was recorded).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub reference_channel: Option<usize>,
+    /// --speech-level: the speech level at 1 m, dB(A), for the STI.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub speech_level_dba: Option<f64>,
+    /// --noise: the noise folder the STI took the background noise from
+    /// (its path and the SHA-256 of its manifest).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub noise_folder: Option<String>,
 }
 
 /// What a file of a folder is.
@@ -613,6 +632,37 @@ pub struct ComparisonManifest {
     /// The folders compared, with their hashes.
     #[serde(default)]
     pub inputs: Vec<InputRecord>,
+    /// Every file of the folder with its SHA-256.
+    pub files: Vec<FileEntry>,
+}
+
+/// The manifest of a noise folder (`gliss noise`, `gliss measure --noise`):
+/// the recording of the room with the sweep silent, and its levels in
+/// noise.json ([`crate::analysis::noise::NoiseLevels`]).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct NoiseManifest {
+    /// Layout version.
+    pub schema_version: u32,
+    /// "gliss".
+    pub tool: String,
+    /// Version of gliss that wrote the folder.
+    pub tool_version: String,
+    /// When (UTC, RFC 3339).
+    pub created_utc: String,
+    /// Always true once written.
+    pub complete: bool,
+    /// Always `noise`.
+    pub kind: FolderKind,
+    /// The command line that made it.
+    pub command_line: Vec<String>,
+    /// Where the recording came from.
+    pub source: Source,
+    /// Sample rate in Hz.
+    pub sample_rate_hz: u32,
+    /// The analysed channel of recording.wav, 1-based.
+    pub channel: usize,
+    /// The calibration file the levels rest on, with its hash.
+    pub calibration: FileEntry,
     /// Every file of the folder with its SHA-256.
     pub files: Vec<FileEntry>,
 }

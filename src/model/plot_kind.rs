@@ -44,6 +44,10 @@ pub enum PlotKind {
     CompareReverberation,
     /// An impedance measurement's |Z| and phase with the fitted model.
     Impedance,
+    /// A measurement's modulation transfer function per octave (STI).
+    Mtf,
+    /// A noise folder's background noise per band with its rating.
+    Noise,
 }
 
 /// What a caption says about the folder it describes. Fill what the
@@ -68,11 +72,11 @@ pub struct CaptionFacts<'a> {
 }
 
 /// The rank after every known plot: where unknown files go in the report.
-pub const UNKNOWN_RANK: usize = 13;
+pub const UNKNOWN_RANK: usize = 15;
 
 impl PlotKind {
     /// Every plot, in the order of the variants.
-    pub const ALL: [PlotKind; 15] = [
+    pub const ALL: [PlotKind; 17] = [
         PlotKind::Response,
         PlotKind::Impulse,
         PlotKind::Phase,
@@ -88,11 +92,13 @@ impl PlotKind {
         PlotKind::CompareDifference,
         PlotKind::CompareReverberation,
         PlotKind::Impedance,
+        PlotKind::Mtf,
+        PlotKind::Noise,
     ];
 
     /// The plots of one measurement, in the order they are drawn (and
     /// listed in its manifest).
-    pub const MEASUREMENT: [PlotKind; 10] = [
+    pub const MEASUREMENT: [PlotKind; 11] = [
         PlotKind::Impedance,
         PlotKind::Response,
         PlotKind::Impulse,
@@ -103,7 +109,11 @@ impl PlotKind {
         PlotKind::Spectrogram,
         PlotKind::Decay,
         PlotKind::Reverberation,
+        PlotKind::Mtf,
     ];
+
+    /// The plots of a noise folder.
+    pub const NOISE: [PlotKind; 1] = [PlotKind::Noise];
 
     /// The plots of an average, in the order they are drawn.
     pub const AVERAGE: [PlotKind; 2] = [PlotKind::AverageResponse, PlotKind::AverageReverberation];
@@ -132,12 +142,14 @@ impl PlotKind {
             PlotKind::CompareDifference => "plots/compare-difference.png",
             PlotKind::CompareReverberation => "plots/compare-reverberation.png",
             PlotKind::Impedance => "plots/impedance.png",
+            PlotKind::Mtf => "plots/mtf.png",
+            PlotKind::Noise => "plots/noise.png",
         }
     }
 
     /// Its place in the report: comparison plots, response, phase, group
-    /// delay, distortion, decay, reverberation, decay spectrum,
-    /// spectrogram, impulse (an average's plots rank as their
+    /// delay, distortion, decay, reverberation, modulation transfer,
+    /// decay spectrum, spectrogram, impulse, background noise (an average's plots rank as their
     /// measurement namesakes); below [`UNKNOWN_RANK`].
     pub fn rank(self) -> usize {
         match self {
@@ -152,9 +164,11 @@ impl PlotKind {
             PlotKind::Distortion => 7,
             PlotKind::Decay => 8,
             PlotKind::Reverberation | PlotKind::AverageReverberation => 9,
-            PlotKind::DecaySpectrum => 10,
-            PlotKind::Spectrogram => 11,
-            PlotKind::Impulse => 12,
+            PlotKind::Mtf => 10,
+            PlotKind::DecaySpectrum => 11,
+            PlotKind::Spectrogram => 12,
+            PlotKind::Impulse => 13,
+            PlotKind::Noise => 14,
         }
     }
 
@@ -224,6 +238,8 @@ impl PlotKind {
                 format!("Reverberation time per band of {}.", f.inputs)
             }
             PlotKind::Impedance => "Electrical impedance of the driver: magnitude in ohms above, phase below, on a log frequency axis; the fitted lumped model dashed over the measurement, the resonance fs marked.".to_string(),
+            PlotKind::Mtf => "Modulation transfer function per octave 125 Hz–8 kHz: the modulation depth m that reaches the listener against the modulation frequency (IEC 60268-16), as the STI used it, with each octave's modulation transfer index.".to_string(),
+            PlotKind::Noise => "Background noise: the equivalent continuous level per octave and one-third octave, dB SPL, with the noise rating curve it touches.".to_string(),
         }
     }
 }
@@ -276,6 +292,8 @@ mod tests {
             "plots/compare-difference.png",
             "plots/compare-reverberation.png",
             "plots/impedance.png",
+            "plots/mtf.png",
+            "plots/noise.png",
         ] {
             assert!(names.contains(&n), "{n}");
         }
@@ -301,6 +319,7 @@ mod tests {
             .iter()
             .chain(&PlotKind::AVERAGE)
             .chain(&PlotKind::COMPARISON)
+            .chain(&PlotKind::NOISE)
             .copied()
             .collect();
         listed.sort_by_key(|k| PlotKind::ALL.iter().position(|a| a == k));
@@ -320,9 +339,11 @@ mod tests {
             "distortion",
             "decay",
             "reverberation",
+            "mtf",
             "decay-spectrum",
             "spectrogram",
             "impulse",
+            "noise",
         ];
         for (i, stem) in order.iter().enumerate() {
             assert_eq!(plot_rank(&format!("plots/{stem}.png")), i, "{stem}");

@@ -168,6 +168,14 @@ codes! {
     /// The resonance lies too near the sweep's band edge for the
     /// small-signal parameters: they are withheld.
     ResonanceOutsideBand = "resonance-outside-band", Problem, Other;
+    /// The speech transmission index is withheld: an octave 125 Hz–8 kHz
+    /// is missing or has no decay above the noise.
+    SpeechWithheld = "speech-withheld", Caution, NoiseFloor;
+    /// The speech transmission index is for the impulse response alone:
+    /// no background noise, speech level, masking or threshold.
+    SpeechImpulseOnly = "speech-impulse-only", Note, Other;
+    /// The noise rating is withheld: an octave it needs is missing.
+    NoiseRatingWithheld = "noise-rating-withheld", Caution, Other;
     /// A warning read from a file written before codes existed.
     Unclassified = "unclassified", Note, Other;
 }

@@ -435,6 +435,20 @@ pub(super) fn band_chart<'a, 'b>(
     (f_lo, f_hi): (f64, f64),
     ticks: &[f64],
     y_max: f64,
+    descs: (&str, &str),
+    marks: &mut Marks,
+) -> std::result::Result<BandChart<'a, 'b>, Box<dyn std::error::Error>> {
+    band_chart_y(area, (f_lo, f_hi), ticks, y_max, 1, descs, marks)
+}
+
+/// [`band_chart`] with its y labels to `y_decimals` decimals (0 for a
+/// level in dB).
+pub(super) fn band_chart_y<'a, 'b>(
+    area: &'a Area<'b>,
+    (f_lo, f_hi): (f64, f64),
+    ticks: &[f64],
+    y_max: f64,
+    y_decimals: usize,
     (x_desc, y_desc): (&str, &str),
     marks: &mut Marks,
 ) -> std::result::Result<BandChart<'a, 'b>, Box<dyn std::error::Error>> {
@@ -467,7 +481,7 @@ pub(super) fn band_chart<'a, 'b>(
     styled_mesh(&mut chart)
         .x_labels(40)
         .x_label_formatter(&label)
-        .y_label_formatter(&|v: &f64| format!("{v:.1}"))
+        .y_label_formatter(&|v: &f64| format!("{v:.y_decimals$}"))
         .x_desc(x_desc)
         .y_desc(y_desc)
         .draw()?;

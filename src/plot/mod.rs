@@ -35,6 +35,8 @@ mod distortion;
 mod group_delay;
 mod impedance;
 mod impulse;
+mod mtf;
+pub mod noise;
 mod phase;
 mod response;
 mod reverberation;
@@ -98,6 +100,7 @@ impl MeasurementPlotInput<'_> {
                 PlotKind::Spectrogram => a.spectrogram.is_some(),
                 PlotKind::Decay | PlotKind::Reverberation => a.room.is_some(),
                 PlotKind::Impedance => self.impedance.is_some(),
+                PlotKind::Mtf => a.speech.as_ref().is_some_and(|s| !s.bands.is_empty()),
                 _ => false,
             })
             .collect()
@@ -157,6 +160,13 @@ pub fn draw_measurement(
         PlotKind::Impedance => match input.impedance {
             Some((z, ts)) => impedance_png(path, title, z, ts),
             None => Err(not_drawn(kind, "the analysis has no impedance")),
+        },
+        PlotKind::Mtf => match &a.speech {
+            Some(s) => mtf::mtf_png(path, title, s),
+            None => Err(not_drawn(
+                kind,
+                "the analysis has no speech transmission index",
+            )),
         },
         _ => Err(not_drawn(kind, "it is not a plot of a measurement")),
     }

@@ -10,6 +10,7 @@ pub mod answer;
 pub mod comparison;
 pub mod html;
 mod impedance;
+pub mod speech;
 
 use std::fmt::Write;
 
@@ -743,6 +744,7 @@ fn measurement(
             band_table(out, &rows, Fraction::Octave, n);
         }
     }
+    speech::section(out, r, &mut n.table);
 }
 
 /// Warnings in plain words, grouped, with what to do.

@@ -417,6 +417,8 @@ pub fn average_results(inputs: &[Input], sources: usize) -> Result<Results> {
         target: None,
         impedance: None,
         thiele_small: None,
+        speech: None,
+        noise: None,
         average: Some(AverageRecord {
             positions: n,
             sources,
@@ -491,6 +493,8 @@ fn write_average(
             target_absolute: false,
             profile: Profile::common(inputs.iter().map(|i| i.manifest.settings.profile)),
             reference_channel: None,
+            speech_level_dba: None,
+            noise_folder: None,
         },
         files,
         measurement: None,

@@ -877,6 +877,7 @@ mod tests {
                 gate: None,
                 mic_correction: None,
                 profile: Default::default(),
+                speech: None,
             },
             title: "step test".into(),
             command_line: vec!["gliss".into(), "measure".into()],

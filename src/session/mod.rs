@@ -5,6 +5,7 @@ pub mod compare;
 pub mod export;
 pub mod impedance;
 pub mod measure;
+pub mod noise;
 pub mod reanalyze;
 pub mod sweep_file;
 
@@ -613,6 +614,7 @@ pub fn job_results(job: &Job, a: &Analysis, target: Option<&TargetRecord>) -> Re
         }
     }
     results.target = target.cloned();
+    results.noise = job.config.speech.as_ref().and_then(|c| c.noise.clone());
     results
 }
 
@@ -908,6 +910,8 @@ pub fn results_record(a: &Analysis) -> Results {
         target: None,
         impedance: None,
         thiele_small: None,
+        speech: a.speech.clone(),
+        noise: None,
     }
 }
 
@@ -937,6 +941,12 @@ pub fn settings_record(
         target_absolute: target.is_some_and(|t| t.absolute),
         profile: Some(config.profile),
         reference_channel: None,
+        speech_level_dba: config
+            .speech
+            .as_ref()
+            .filter(|c| c.speech_level_given)
+            .map(|c| c.speech_level_dba),
+        noise_folder: config.speech.as_ref().and_then(|c| c.noise_source.clone()),
     }
 }
 

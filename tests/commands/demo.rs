@@ -35,6 +35,7 @@ fn the_demo_writes_a_complete_measurement_folder() {
         "plots/decay.png",
         "plots/reverberation.png",
         "plots/spectrogram.png",
+        "plots/mtf.png",
     ] {
         assert!(dir.join(f).is_file(), "{f} missing");
     }
@@ -48,6 +49,7 @@ fn the_demo_writes_a_complete_measurement_folder() {
         "plots/decay.png",
         "plots/reverberation.png",
         "plots/spectrogram.png",
+        "plots/mtf.png",
     ] {
         let b = std::fs::read(dir.join(p)).unwrap();
         assert_eq!(&b[..8], b"\x89PNG\r\n\x1a\n");
@@ -58,7 +60,7 @@ fn the_demo_writes_a_complete_measurement_folder() {
     assert_eq!(m["source"]["kind"], "virtual");
     let files = m["files"].as_array().unwrap();
     // every file but the manifest itself
-    assert_eq!(files.len(), 15);
+    assert_eq!(files.len(), 16);
     for f in files {
         let bytes = std::fs::read(dir.join(f["name"].as_str().unwrap())).unwrap();
         let hex: String = Sha256::digest(&bytes)

@@ -24,6 +24,7 @@ mod sensitivity;
 #[cfg(feature = "soundcard")]
 mod sound_server;
 #[cfg(feature = "plots")]
+mod speech;
 mod spine;
 mod sweep;
 mod target;

@@ -257,6 +257,7 @@ fn job(out: &Path) -> MeasureJob {
             gate: None,
             mic_correction: None,
             profile: Default::default(),
+            speech: None,
         },
         title: "fault test".into(),
         command_line: vec!["test".into()],

@@ -468,7 +468,8 @@ fn report_of_a_comparison_gives_a_verdict_per_band_and_parameter() {
     assert!(html.contains("before and after, two demo rooms"));
     assert!(html.contains("after &lt;quiet&gt;"), "labels are escaped");
     assert!(html.contains("different sweep levels"));
-    assert_eq!(decoded_images(&html).len(), 3 + 8);
+    // the room's 9 plots: the 8 of a room measurement and its MTF (plots/mtf.png)
+    assert_eq!(decoded_images(&html).len(), 3 + 9);
     for f in [
         "compare-response",
         "compare-difference",
