@@ -167,6 +167,16 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                     esc(&manifest.source.description)
                 );
                 key_numbers(&mut out, lead, manifest, results);
+                // a room for speech: its intelligibility is the answer
+                if manifest.settings.profile == Some(crate::model::Profile::Speech) {
+                    if let Some(line) = speech::answer_line(results) {
+                        let _ = write!(
+                            out,
+                            "<p class=\"verdict\"><strong>Speech intelligibility:</strong> {}</p>",
+                            esc(&line)
+                        );
+                    }
+                }
                 if let Some(t) = &options.target_rt {
                     out.push_str(&measurement_target(t, results));
                 }

@@ -965,6 +965,15 @@ fn report_judges_t30_against_a_target_range_and_leads_with_the_profiles_clarity(
         page1.contains("<dt>D50</dt>") && !page1.contains("<dt>C80</dt>"),
         "{page1}"
     );
+    // and its speech transmission index on page 1, as results.json has it
+    let sti = r["speech"]["sti"]
+        .as_f64()
+        .expect("an STI for the demo room");
+    assert!(
+        page1.contains("<strong>Speech intelligibility:</strong> STI")
+            && page1.contains(&format!("{sti:.2}")),
+        "{page1}"
+    );
 
     // a flat range far above the room: below it in every octave band
     ok(
