@@ -256,6 +256,19 @@ pub fn analyze(x: &[f64], fs: f64, cal: &Calibration) -> Result<NoiseLevels> {
 mod tests {
     use super::*;
 
+    /// A calibration of 10 Pa per full scale (a 94 dB SPL tone at 0.1 FS).
+    fn ten_pa_per_fs() -> Calibration {
+        Calibration {
+            format: "gliss calibration".into(),
+            schema_version: 1,
+            level_db_spl: 94.0,
+            tone_hz: 1000.0,
+            tone_rms_fs: 0.1,
+            pa_per_fs: 10.0,
+            full_scale_db_spl: 0.0,
+        }
+    }
+
     #[test]
     fn a_weighting_matches_the_tabulated_values() {
         // IEC 61672-1:2013 table 3 (from memory): the values at the exact
@@ -355,15 +368,7 @@ mod tests {
         let (lo, hi) = Band::new(1, 0).edges();
         let k = (1e-4 / ms(&x, lo, hi)).sqrt();
         x.iter_mut().for_each(|v| *v *= k);
-        let cal = Calibration {
-            format: "gliss calibration".into(),
-            schema_version: 1,
-            level_db_spl: 94.0,
-            tone_hz: 1000.0,
-            tone_rms_fs: 0.1,
-            pa_per_fs: 10.0,
-            full_scale_db_spl: 0.0,
-        };
+        let cal = ten_pa_per_fs();
         let r = analyze(&x, fs, &cal).unwrap();
         // pink noise of mean square 1e-4 FS² per octave, 10 Pa per FS:
         // 1e-2 Pa² per octave → 10·lg(1e-2/4e-10) = 73.98 dB SPL in every
@@ -426,15 +431,7 @@ mod tests {
         let x: Vec<f64> = (0..(40.0 * fs) as usize)
             .map(|_| a * (2.0 * rng.random::<f64>() - 1.0))
             .collect();
-        let cal = Calibration {
-            format: "gliss calibration".into(),
-            schema_version: 1,
-            level_db_spl: 94.0,
-            tone_hz: 1000.0,
-            tone_rms_fs: 0.1,
-            pa_per_fs: 10.0,
-            full_scale_db_spl: 0.0,
-        };
+        let cal = ten_pa_per_fs();
         let r = analyze(&x, fs, &cal).unwrap();
         assert!((r.lzeq_db - 74.0).abs() < 0.05, "{}", r.lzeq_db);
         for b in r.octaves.iter().filter(|b| b.center_hz >= 125.0) {
@@ -451,15 +448,7 @@ mod tests {
 
     #[test]
     fn a_short_recording_is_refused() {
-        let cal = Calibration {
-            format: "gliss calibration".into(),
-            schema_version: 1,
-            level_db_spl: 94.0,
-            tone_hz: 1000.0,
-            tone_rms_fs: 0.1,
-            pa_per_fs: 10.0,
-            full_scale_db_spl: 0.0,
-        };
+        let cal = ten_pa_per_fs();
         let x = vec![0.01; 100];
         assert!(analyze(&x, 48_000.0, &cal).is_err());
     }
