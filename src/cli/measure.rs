@@ -335,7 +335,21 @@ pub fn run(a: Args) -> Result<()> {
         _ => None,
     };
     if impedance.is_some() {
-        // the impedance's own settings: no gate, no bands
+        // the impedance's own settings: no gate, no bands; an analysis
+        // option given with it would be ignored, so it is refused
+        let o = &a.output;
+        let ignored = [
+            (o.smooth.is_some(), "--smooth"),
+            (o.gate.is_some(), "--gate"),
+            (o.profile.is_some(), "--profile"),
+            (o.bands, "--bands"),
+            (o.no_bands, "--no-bands"),
+        ];
+        if let Some((_, name)) = ignored.iter().find(|(given, _)| *given) {
+            return Err(Error::parameter(format!(
+                "{name} does not apply with --impedance: the driver channel is analysed with the impedance's own settings (1/12-octave smoothing, no gate, no bands); leave {name} out"
+            )));
+        }
         config = super::impedance::config()?;
     }
     let mut outputs = Vec::new();

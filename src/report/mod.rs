@@ -600,19 +600,23 @@ fn key_numbers(out: &mut String, f: &Folder, m: &Manifest, r: &Results) {
             ),
         ),
         None => {
-            key(
-                out,
-                "Delay",
-                &format!("{} ms", num(r.delay_s * 1e3, 3)),
-                &format!(
-                    "{} samples; from the {}",
-                    num(r.delay_s * fs, 2),
-                    r.delay_reference
-                        .split(';')
-                        .next()
-                        .unwrap_or(&r.delay_reference)
-                ),
-            );
+            // an impedance folder's driver channel has a delay of no use
+            // to anyone: its answer is the impedance
+            if m.kind != Some(crate::folder::schema::FolderKind::Impedance) {
+                key(
+                    out,
+                    "Delay",
+                    &format!("{} ms", num(r.delay_s * 1e3, 3)),
+                    &format!(
+                        "{} samples; from the {}",
+                        num(r.delay_s * fs, 2),
+                        r.delay_reference
+                            .split(';')
+                            .next()
+                            .unwrap_or(&r.delay_reference)
+                    ),
+                );
+            }
             key(
                 out,
                 "Recording peak",

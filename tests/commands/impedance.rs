@@ -316,3 +316,58 @@ fn the_added_mass_method_gives_the_model_s_vas_through_the_binary() {
     let e = refused(t.path(), &args);
     assert!(e.contains("not an impedance measurement"), "{e}");
 }
+
+/// An analysis option the impedance path would ignore is refused, naming
+/// it, and no folder is made.
+#[test]
+fn measure_impedance_refuses_analysis_options_it_would_ignore() {
+    let t = tempfile::tempdir().unwrap();
+    for (opt, val) in [
+        ("--smooth", Some("1/3")),
+        ("--gate", Some("auto")),
+        ("--bands", None),
+    ] {
+        let mut args = vec![
+            "measure",
+            "--device",
+            "virtual",
+            "--impedance",
+            "--sense-ohms",
+            "10",
+            "--out",
+            "w",
+            opt,
+        ];
+        args.extend(val);
+        let e = refused(t.path(), &args);
+        assert!(
+            e.contains(opt) && e.contains("does not apply with --impedance"),
+            "{e}"
+        );
+        assert!(!t.path().join("w").exists());
+    }
+}
+
+/// The report of an impedance folder leads with the impedance, not with
+/// the driver channel's delay.
+#[test]
+fn the_report_of_an_impedance_folder_shows_its_parameters_not_a_delay() {
+    let t = tempfile::tempdir().unwrap();
+    measure_woofer(t.path(), "w");
+    ok(t.path(), &["report", "w", "--out", "w.html"]);
+    let html = std::fs::read_to_string(t.path().join("w.html")).unwrap();
+    let r = json(&t.path().join("w/results.json"));
+    let fs = r["thiele_small"]["fs_hz"].as_f64().unwrap();
+    assert!(
+        html.contains("<dt>Recording peak</dt>"),
+        "the level check stays"
+    );
+    assert!(
+        !html.contains("<dt>Delay</dt>"),
+        "no delay for an impedance"
+    );
+    assert!(
+        html.contains(&format!("{fs:.1}")),
+        "fs {fs:.1} in the report"
+    );
+}
