@@ -520,3 +520,15 @@ pub fn parse_band(option: &str, r: &str, example: &str) -> Result<(f64, f64)> {
         ))),
     }
 }
+
+/// One measurement's outcome in a few words, for the lines of commands
+/// that make many: "impulse response 106 dB above its noise, 0 warnings"
+/// (the measurement's own warnings; the bands' are grouped elsewhere).
+pub fn outcome_in_brief(o: &gliss::session::Outcome) -> String {
+    let n = o.analysis.warnings.len();
+    format!(
+        "impulse response {:.0} dB above its noise, {n} warning{}",
+        o.analysis.peak_to_noise_db,
+        if n == 1 { "" } else { "s" }
+    )
+}

@@ -284,17 +284,7 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
             let o = outcomes
                 .next()
                 .expect("one outcome per position, in order")?;
-            println!(
-                "measured {}: impulse response {:.0} dB above its noise, {} warning{}",
-                p.name,
-                o.analysis.peak_to_noise_db,
-                o.analysis.warnings.len(),
-                if o.analysis.warnings.len() == 1 {
-                    ""
-                } else {
-                    "s"
-                }
-            );
+            println!("measured {}: {}", p.name, common::outcome_in_brief(&o));
             dirs.push(p.out.clone());
             written.push(p.name.clone());
         }

@@ -101,7 +101,11 @@ pub fn run(a: Args) -> Result<()> {
     let mut first_error = None;
     for (d, r) in a.dirs.iter().zip(results) {
         match r {
-            Ok(o) => print_done(d, &o),
+            Ok(o) => println!(
+                "analysed {} again: {}",
+                common::show(d),
+                common::outcome_in_brief(&o)
+            ),
             Err(e) => {
                 failed.push(d.display().to_string());
                 first_error.get_or_insert(e);
@@ -121,21 +125,6 @@ pub fn run(a: Args) -> Result<()> {
             ),
         )),
     }
-}
-
-/// The line for a folder analysed again.
-fn print_done(d: &Path, o: &gliss::session::Outcome) {
-    let warnings = o.analysis.warnings.len()
-        + o.analysis
-            .room
-            .as_ref()
-            .map_or(0, |r| r.bands.iter().map(|b| b.warnings.len()).sum());
-    println!(
-        "analysed {} again: impulse response {:.0} dB above its noise, {warnings} warning{}",
-        common::show(d),
-        o.analysis.peak_to_noise_db,
-        if warnings == 1 { "" } else { "s" }
-    );
 }
 
 /// Whether two paths name the same folder.
