@@ -301,6 +301,43 @@ pub struct Speech {
 /// The words of [`Speech::truncation`].
 pub const TRUNCATION: &str = "each octave's squared impulse response from the direct sound to where its decay meets its own measurement noise (Lundeby's crosspoint, as for the decay times), with the noise's mean power subtracted and the decay continued as an exponential beyond it; the measurement's noise is not in the MTF";
 
+/// The STI of several positions of one room: their arithmetic mean and
+/// sample standard deviation with the qualification band of the mean
+/// (common practice: the STI is given per position and as the spatial
+/// mean of those values).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SpatialSti {
+    /// The mean of the positions' STI.
+    pub mean: f64,
+    /// Their sample standard deviation (`null` with one position).
+    pub std: Option<f64>,
+    /// Each position's STI, in the average's order.
+    pub positions: Vec<f64>,
+    /// The qualification band of the mean.
+    pub qualification: String,
+}
+
+/// The spatial mean of the positions' STI, or `None` (with the reason)
+/// when a position has none: a mean of the others would describe only
+/// part of the room.
+pub fn spatial_mean(values: &[Option<f64>]) -> std::result::Result<SpatialSti, String> {
+    let missing = values.iter().filter(|v| v.is_none()).count();
+    if values.is_empty() || missing > 0 {
+        return Err(format!(
+            "no mean STI: {missing} of the {} positions have no STI of their own",
+            values.len()
+        ));
+    }
+    let (mean, std, _) = crate::analysis::compare::mean_std(values);
+    let mean = mean.expect("values are present");
+    Ok(SpatialSti {
+        mean,
+        std,
+        positions: values.iter().flatten().copied().collect(),
+        qualification: qualification(mean).to_string(),
+    })
+}
+
 /// The STI of an impulse response whose octave MTFs are `impulse`
 /// (centre in Hz and m per modulation frequency; an octave of
 /// [`OCTAVES_HZ`] that is missing withholds the STI), under `conditions`
@@ -722,5 +759,17 @@ mod tests {
         let alone = speech(&OCTAVES_HZ.map(|f| (f, m)), None).sti.unwrap();
         assert!(s.sti.unwrap() < alone - 0.1);
         assert!(!s.corrections.impulse_response_only);
+    }
+
+    #[test]
+    fn the_spatial_mean_is_the_mean_of_the_positions_and_needs_them_all() {
+        // hand computation: mean of 0.60, 0.64, 0.68 is 0.64; sample
+        // standard deviation sqrt((0.04² + 0 + 0.04²)/2) = 0.04
+        let m = spatial_mean(&[Some(0.60), Some(0.64), Some(0.68)]).unwrap();
+        assert!((m.mean - 0.64).abs() < 1e-12);
+        assert!((m.std.unwrap() - 0.04).abs() < 1e-12);
+        assert_eq!(m.qualification, qualification(0.64));
+        let e = spatial_mean(&[Some(0.6), None]).unwrap_err();
+        assert!(e.contains("1 of the 2 positions"), "{e}");
     }
 }

@@ -137,6 +137,10 @@ pub struct AverageRecord {
     pub response_method: String,
     /// The input folders in order, with their hashes.
     pub inputs: Vec<InputRecord>,
+    /// The spatial mean of the positions' speech transmission index
+    /// (absent when a position has none; `warnings` says why).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sti: Option<crate::analysis::speech::SpatialSti>,
 }
 
 /// An input folder of an average or a comparison.

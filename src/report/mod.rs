@@ -631,6 +631,14 @@ fn key_numbers(out: &mut String, f: &Folder, m: &Manifest, r: &Results) {
             );
         }
     }
+    if let Some(m) = r.average.as_ref().and_then(|a| a.sti.as_ref()) {
+        key(
+            out,
+            "STI",
+            &format!("{:.2}", m.mean),
+            &speech::spatial_words(m),
+        );
+    }
     if let Some(t) = tmid(r) {
         key(
             out,

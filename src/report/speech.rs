@@ -34,9 +34,39 @@ pub fn sti_words(s: &Speech) -> String {
     }
 }
 
+/// An average's STI in words: "STI 0.64 ± 0.04 (qualification band B),
+/// the mean of 3 positions from 0.60 to 0.68".
+pub fn spatial_words(m: &crate::analysis::speech::SpatialSti) -> String {
+    let lo = m.positions.iter().cloned().fold(f64::INFINITY, f64::min);
+    let hi = m
+        .positions
+        .iter()
+        .cloned()
+        .fold(f64::NEG_INFINITY, f64::max);
+    let mut s = format!("STI {:.2}", m.mean);
+    if let Some(sd) = m.std {
+        let _ = write!(s, " ± {sd:.2}");
+    }
+    let _ = write!(
+        s,
+        " (qualification band {}), the mean of {} position{}",
+        m.qualification,
+        m.positions.len(),
+        if m.positions.len() == 1 { "" } else { "s" }
+    );
+    if m.positions.len() > 1 {
+        let _ = write!(s, " from {lo:.2} to {hi:.2}");
+    }
+    s
+}
+
 /// One line for a page that answers the question of a speech room: the
 /// STI, its band, and the noise (for the report's first page).
 pub fn answer_line(r: &Results) -> Option<String> {
+    // an average: the spatial mean of its positions
+    if let Some(m) = r.average.as_ref().and_then(|a| a.sti.as_ref()) {
+        return Some(spatial_words(m));
+    }
     let s = r.speech.as_ref()?;
     let mut line = format!("STI {}", sti_words(s));
     if s.corrections.impulse_response_only {

@@ -376,6 +376,23 @@ pub fn average_results(inputs: &[Input], sources: usize) -> Result<Results> {
             if sources == 1 { "" } else { "s" }
         ),
     );
+    // the room's STI: the spatial mean of the positions' values, when
+    // every position has one (none at all: not a speech analysis)
+    let sti_values: Vec<Option<f64>> = inputs
+        .iter()
+        .map(|i| i.results.speech.as_ref().and_then(|s| s.sti))
+        .collect();
+    let sti = if inputs.iter().all(|i| i.results.speech.is_none()) {
+        None
+    } else {
+        match crate::analysis::speech::spatial_mean(&sti_values) {
+            Ok(m) => Some(m),
+            Err(why) => {
+                warnings.add(Code::SpeechWithheld, why);
+                None
+            }
+        }
+    };
     let delays: Vec<Option<f64>> = inputs.iter().map(|i| Some(i.results.delay_s)).collect();
     Ok(Results {
         schema_version: SCHEMA_VERSION,
@@ -427,6 +444,7 @@ pub fn average_results(inputs: &[Input], sources: usize) -> Result<Results> {
                 "power average of the smoothed magnitudes, 10·lg(mean of 10^(L/10)); phase is not averaged"
                     .into(),
             inputs: inputs.iter().map(|i| i.record.clone()).collect(),
+            sti,
         }),
     })
 }

@@ -430,6 +430,26 @@ fn the_demo_story_measures_averages_compares_and_finds_the_treatment() {
             assert!(a["delta_area_m2"][1].as_f64().unwrap() > 3.0, "{a}");
         }
     }
+    // each average's STI is the mean of its positions' (arithmetic mean,
+    // computed here by hand), and the treated room's is higher
+    let mut means = Vec::new();
+    for cond in ["before", "after"] {
+        let per: Vec<f64> = (1..=3)
+            .map(|k| {
+                json(&d.join(format!("{cond}-{k}")).join("results.json"))["speech"]["sti"]
+                    .as_f64()
+                    .expect("an STI per position")
+            })
+            .collect();
+        let avg = json(&d.join(cond).join("results.json"));
+        let m = avg["average"]["sti"]["mean"].as_f64().expect("a mean STI");
+        assert!(
+            (m - per.iter().sum::<f64>() / 3.0).abs() < 1e-12,
+            "{cond}: {m} vs {per:?}"
+        );
+        means.push(m);
+    }
+    assert!(means[1] > means[0], "treatment raises the STI: {means:?}");
 }
 
 /// The bands of `results` that warn of curvature, as "1/3 80 Hz".
