@@ -704,6 +704,21 @@ impl MeasurementFolder {
         self.commit_entry(&tmp, rel)
     }
 
+    /// Draws every plot of `kinds` with `draw` (as [`Self::draw`]), in
+    /// parallel: the plots of a folder are independent. Their entries
+    /// come back in the order of `kinds`; the first error is returned.
+    pub fn draw_all(
+        &self,
+        kinds: Vec<crate::model::PlotKind>,
+        draw: impl Fn(crate::model::PlotKind, &Path) -> Result<()> + Sync,
+    ) -> Result<Vec<FileEntry>> {
+        use rayon::prelude::*;
+        kinds
+            .into_par_iter()
+            .map(|kind| self.draw(kind.file(), |tmp| draw(kind, tmp)))
+            .collect()
+    }
+
     /// Moves a finished temporary derived file (a plot its writer drew to
     /// `temp`) into place as `rel` and returns its manifest entry.
     pub fn commit_entry(&self, temp: &Path, rel: &str) -> Result<FileEntry> {

@@ -555,14 +555,9 @@ fn draw_average_plots(
         smoothing: &smoothing,
         bands: &results.bands,
     };
-    // the plots are independent: drawn and encoded in parallel, their
-    // entries kept in the kinds' order
-    use rayon::prelude::*;
-    input
-        .kinds()
-        .into_par_iter()
-        .map(|kind| folder.draw(kind.file(), |tmp| plot::draw_average(kind, tmp, &input)))
-        .collect()
+    folder.draw_all(input.kinds(), |kind, tmp| {
+        plot::draw_average(kind, tmp, &input)
+    })
 }
 
 /// What `gliss compare` needs.
@@ -1002,14 +997,9 @@ fn draw_comparison_plots(
         bands: &bands,
         mark_label: "ring: audible (beyond the 5 % JND and the uncertainty)",
     };
-    // the plots are independent: drawn and encoded in parallel, their
-    // entries kept in the kinds' order
-    use rayon::prelude::*;
-    input
-        .kinds()
-        .into_par_iter()
-        .map(|kind| folder.draw(kind.file(), |tmp| plot::draw_comparison(kind, tmp, &input)))
-        .collect()
+    folder.draw_all(input.kinds(), |kind, tmp| {
+        plot::draw_comparison(kind, tmp, &input)
+    })
 }
 
 fn write_comparison(

@@ -703,14 +703,9 @@ fn draw_plots(
         phase_view: job.phase_view,
         impedance: imp.map(|o| (&o.impedance, o.thiele_small.as_ref())),
     };
-    // the plots are independent: drawn and encoded in parallel, their
-    // entries kept in the kinds' order
-    use rayon::prelude::*;
-    input
-        .kinds()
-        .into_par_iter()
-        .map(|kind| folder.draw(kind.file(), |tmp| plot::draw_measurement(kind, tmp, &input)))
-        .collect()
+    folder.draw_all(input.kinds(), |kind, tmp| {
+        plot::draw_measurement(kind, tmp, &input)
+    })
 }
 
 /// The legend entry of the target on the response plot.
