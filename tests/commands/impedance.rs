@@ -28,6 +28,39 @@ fn measure_woofer(dir: &Path, out: &str) -> String {
     )
 }
 
+/// `gliss impedance REC --sweep sweep.wav --reference R --channel C
+/// --sense-ohms OHMS --out OUT`.
+fn impedance_args<'a>(
+    rec: &'a str,
+    reference: &'a str,
+    channel: &'a str,
+    ohms: &'a str,
+    out: &'a str,
+) -> Vec<&'a str> {
+    vec![
+        "impedance",
+        rec,
+        "--sweep",
+        "sweep.wav",
+        "--reference",
+        reference,
+        "--channel",
+        channel,
+        "--sense-ohms",
+        ohms,
+        "--out",
+        out,
+    ]
+}
+
+/// Measures the virtual woofer into woofer/, copies its sweep to
+/// sweep.wav and returns its recording (rate, channels).
+fn woofer_recording(dir: &Path) -> (u32, Vec<Vec<f64>>) {
+    measure_woofer(dir, "woofer");
+    std::fs::copy(dir.join("woofer/stimulus.wav"), dir.join("sweep.wav")).unwrap();
+    read_wav(&dir.join("woofer/recording.wav"))
+}
+
 #[test]
 fn the_virtual_woofer_measures_as_its_model() {
     let t = tempfile::tempdir().unwrap();
@@ -73,30 +106,9 @@ fn the_virtual_woofer_measures_as_its_model() {
 #[test]
 fn the_impedance_command_reads_the_same_recording_and_refuses_swapped_channels() {
     let t = tempfile::tempdir().unwrap();
-    measure_woofer(t.path(), "woofer");
-    let (rate, channels) = read_wav(&t.path().join("woofer/recording.wav"));
+    let (rate, channels) = woofer_recording(t.path());
     write_wav_f32(&t.path().join("rec.wav"), rate, &channels);
-    std::fs::copy(
-        t.path().join("woofer/stimulus.wav"),
-        t.path().join("sweep.wav"),
-    )
-    .unwrap();
-    let args = |r: &'static str, c: &'static str, out: &'static str| {
-        vec![
-            "impedance",
-            "rec.wav",
-            "--sweep",
-            "sweep.wav",
-            "--reference",
-            r,
-            "--channel",
-            c,
-            "--sense-ohms",
-            "10",
-            "--out",
-            out,
-        ]
-    };
+    let args = |r, c, out| impedance_args("rec.wav", r, c, "10", out);
     ok(t.path(), &args("1", "2", "again"));
     let a = json(&t.path().join("woofer/results.json"));
     let b = json(&t.path().join("again/results.json"));
@@ -111,23 +123,7 @@ fn the_impedance_command_reads_the_same_recording_and_refuses_swapped_channels()
     let e = refused(t.path(), &args("2", "1", "swapped"));
     assert!(e.contains("swapped"), "{e}");
     assert_eq!(snapshot(t.path()), before, "a refused run writes nothing");
-    let e = refused(
-        t.path(),
-        &[
-            "impedance",
-            "rec.wav",
-            "--sweep",
-            "sweep.wav",
-            "--reference",
-            "1",
-            "--channel",
-            "2",
-            "--sense-ohms",
-            "0",
-            "--out",
-            "zero",
-        ],
-    );
+    let e = refused(t.path(), &impedance_args("rec.wav", "1", "2", "0", "zero"));
     assert!(e.contains("--sense-ohms"), "{e}");
 }
 
@@ -136,31 +132,12 @@ fn an_open_circuit_is_refused() {
     // no driver: the second input sees the first (a lead off the driver,
     // the input's own impedance in its place)
     let t = tempfile::tempdir().unwrap();
-    measure_woofer(t.path(), "woofer");
-    let (rate, channels) = read_wav(&t.path().join("woofer/recording.wav"));
+    let (rate, channels) = woofer_recording(t.path());
     let open = vec![channels[0].clone(), channels[0].clone()];
     write_wav_f32(&t.path().join("open.wav"), rate, &open);
-    std::fs::copy(
-        t.path().join("woofer/stimulus.wav"),
-        t.path().join("sweep.wav"),
-    )
-    .unwrap();
     let e = refused(
         t.path(),
-        &[
-            "impedance",
-            "open.wav",
-            "--sweep",
-            "sweep.wav",
-            "--reference",
-            "1",
-            "--channel",
-            "2",
-            "--sense-ohms",
-            "10",
-            "--out",
-            "open",
-        ],
+        &impedance_args("open.wav", "1", "2", "10", "open"),
     );
     assert!(e.contains("open circuit"), "{e}");
 }
@@ -168,36 +145,14 @@ fn an_open_circuit_is_refused() {
 #[test]
 fn a_clipping_reference_is_refused_and_a_small_sense_resistor_warned_of() {
     let t = tempfile::tempdir().unwrap();
-    measure_woofer(t.path(), "woofer");
-    let (rate, channels) = read_wav(&t.path().join("woofer/recording.wav"));
+    let (rate, channels) = woofer_recording(t.path());
     // the reference 26 dB hotter, clipped at full scale
     let hot: Vec<f64> = channels[0]
         .iter()
         .map(|v| (v * 20.0).clamp(-1.0, 1.0))
         .collect();
     write_wav_f32(&t.path().join("hot.wav"), rate, &[hot, channels[1].clone()]);
-    std::fs::copy(
-        t.path().join("woofer/stimulus.wav"),
-        t.path().join("sweep.wav"),
-    )
-    .unwrap();
-    let e = refused(
-        t.path(),
-        &[
-            "impedance",
-            "hot.wav",
-            "--sweep",
-            "sweep.wav",
-            "--reference",
-            "1",
-            "--channel",
-            "2",
-            "--sense-ohms",
-            "10",
-            "--out",
-            "hot",
-        ],
-    );
+    let e = refused(t.path(), &impedance_args("hot.wav", "1", "2", "10", "hot"));
     assert!(e.contains("reference channel clips"), "{e}");
     // 0.1 Ω against a woofer of 5.6 to 56 Ω: V1 − V2 is some 55 dB down
     // at resonance, the noise reaches Z 55 dB louder: warned
