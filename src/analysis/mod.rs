@@ -7,6 +7,7 @@
 //! - 0 dB means the recording equals the sweep as written (a wire);
 //! - phase is given with the delay `delay_s` removed.
 
+pub mod align;
 pub mod bands;
 pub mod calibration;
 pub mod compare;
