@@ -308,7 +308,11 @@ impl Setting {
 /// `band`, dB (log-frequency mean of each bin's level, floored as the
 /// module explains). `positions[p][s]` is loudspeaker s at position p;
 /// the mean is over positions too. None when no bin falls in the band.
-pub fn sum_level_db(positions: &[Vec<&Spectrum>], settings: &[Setting], band: (f64, f64)) -> Option<f64> {
+pub fn sum_level_db(
+    positions: &[Vec<&Spectrum>],
+    settings: &[Setting],
+    band: (f64, f64),
+) -> Option<f64> {
     let mut total = 0.0;
     for spectra in positions {
         let points = spectra.first()?.band_points(band);
@@ -335,7 +339,10 @@ pub fn sum_level_db(positions: &[Vec<&Spectrum>], settings: &[Setting], band: (f
 /// log10 of a bin's power, floored at [`NOTCH_FLOOR`] of the squared sum
 /// of the magnitudes there.
 fn level(power: f64, mags: f64) -> f64 {
-    power.max(NOTCH_FLOOR * mags * mags).max(f64::MIN_POSITIVE).log10()
+    power
+        .max(NOTCH_FLOOR * mags * mags)
+        .max(f64::MIN_POSITIVE)
+        .log10()
 }
 
 /// What [`best_sum`] found.
@@ -524,6 +531,447 @@ pub fn overlap_band(
     let (a, b) = best?;
     let band = (grid[a], grid[b]);
     ((band.1 / band.0).log2() >= 1.0 / 3.0 - 1e-9).then_some(band)
+}
+
+/// The version of align.json's layout (fields are added, never renamed).
+pub const ALIGN_SCHEMA_VERSION: u32 = 1;
+
+/// How far from the measured timing the crossover search looks by
+/// default, s (±).
+pub const DEFAULT_MAX_DELAY_S: f64 = 0.02;
+
+/// Where the band the arrivals, levels and polarities are read over came
+/// from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum BandChoice {
+    /// Given (`--band`).
+    Given,
+    /// The crossover band (`--crossover`, no `--band`).
+    Crossover,
+    /// Where every response is within [`OVERLAP_WITHIN_DB`] of its own
+    /// maximum.
+    Overlap,
+}
+
+/// The default band is where every response is within this of its own
+/// maximum (third-octave smoothed), dB: where they all radiate.
+pub const OVERLAP_WITHIN_DB: f64 = 12.0;
+
+/// One measurement handed to [`align`].
+#[derive(Debug, Clone, Copy)]
+pub struct Input<'a> {
+    /// Its impulse response on its time axis.
+    pub impulse: Impulse<'a>,
+    /// Whether its time axis rests on a loopback reference.
+    pub has_reference: bool,
+}
+
+/// What [`align`] is asked.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Options {
+    /// The loudspeakers' names, in order.
+    pub names: Vec<String>,
+    /// Listening positions: the inputs are position by position, each
+    /// position holding every loudspeaker in the order of `names`.
+    pub positions: usize,
+    /// The band for arrival, level and polarity (`--band`); None: the
+    /// crossover band, or else where all radiate.
+    pub band: Option<(f64, f64)>,
+    /// The crossover band to optimise the sum over (`--crossover`).
+    pub crossover: Option<(f64, f64)>,
+    /// The delay search's reach, ± s.
+    pub max_delay_s: f64,
+    /// The band every measurement's sweep covers, Hz.
+    pub limits: (f64, f64),
+}
+
+/// One loudspeaker, relative to the first.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Loudspeaker {
+    /// Its name (the first folder's label).
+    pub name: String,
+    /// Its arrival at each position in the band, s on the measurement's
+    /// time axis (null: silent in the band).
+    pub arrival_s: Vec<Option<f64>>,
+    /// Its arrival after the first loudspeaker's, mean over positions, s
+    /// (0 for the first; negative: it arrives earlier).
+    pub relative_arrival_s: Option<f64>,
+    /// The largest minus the smallest relative arrival over the
+    /// positions, s (null for one position).
+    pub relative_arrival_spread_s: Option<f64>,
+    /// Its level over the band minus the first's, mean over positions, dB.
+    pub relative_level_db: Option<f64>,
+    /// Its polarity against the first's, once its relative arrival is
+    /// taken out (null when it cannot be told: see `polarity_withheld`).
+    pub polarity: Option<Polarity>,
+    /// The phase agreement behind it, −1 … +1 (mean over positions).
+    pub polarity_agreement: Option<f64>,
+    /// Why the polarity is null.
+    pub polarity_withheld: Option<String>,
+}
+
+/// One loudspeaker's suggested setting for the crossover.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Suggestion {
+    /// The delay relative to the measured timing that the search found,
+    /// s (negative: the loudspeaker should sound earlier).
+    pub relative_delay_s: f64,
+    /// The delay to set in the processor, s: the relative delays made
+    /// non-negative (the earliest loudspeaker gets 0).
+    pub set_delay_s: f64,
+    /// Its polarity in the processor: `same` as measured or `inverted`.
+    pub polarity: Polarity,
+}
+
+/// The best sum through the crossover.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Crossover {
+    /// The band optimised, Hz.
+    pub band_hz: [f64; 2],
+    /// The search's reach, ± s.
+    pub max_delay_s: f64,
+    /// One per loudspeaker.
+    pub suggestions: Vec<Suggestion>,
+    /// The sum's mean level over the band as measured, dB (mean over
+    /// positions).
+    pub level_as_is_db: f64,
+    /// The same with the suggested settings, dB.
+    pub level_suggested_db: f64,
+    /// What the settings gain, dB.
+    pub gain_db: f64,
+}
+
+/// The curves behind the plots, on a 1/48-octave grid, magnitudes
+/// power-smoothed over 1/24 octave and power-averaged over the positions;
+/// phases at the first position with the first loudspeaker's arrival
+/// taken out.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Curves {
+    /// Grid frequencies, Hz.
+    pub frequency_hz: Vec<f64>,
+    /// Each loudspeaker's level, dB (the first's 0 dB = its level over
+    /// the band).
+    pub level_db: Vec<Vec<f64>>,
+    /// Each loudspeaker's phase, degrees in (−180, 180].
+    pub phase_deg: Vec<Vec<f64>>,
+    /// Each loudspeaker's phase with its suggested setting (empty
+    /// without `--crossover`).
+    pub phase_suggested_deg: Vec<Vec<f64>>,
+    /// The complex sum as measured, dB.
+    pub sum_as_is_db: Vec<f64>,
+    /// The complex sum with the suggested settings, dB (empty without
+    /// `--crossover`).
+    pub sum_suggested_db: Vec<f64>,
+}
+
+/// align.json: several loudspeakers relative to the first.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Alignment {
+    /// Layout version ([`ALIGN_SCHEMA_VERSION`]).
+    pub schema_version: u32,
+    /// Sample rate of every measurement, Hz.
+    pub sample_rate_hz: f64,
+    /// The band arrival, level and polarity are read over, Hz.
+    pub band_hz: [f64; 2],
+    /// Where that band came from.
+    pub band_from: BandChoice,
+    /// Listening positions.
+    pub positions: usize,
+    /// Whether every measurement's timing rests on a loopback reference.
+    pub loopback_reference: bool,
+    /// The loudspeakers, the first being the reference.
+    pub loudspeakers: Vec<Loudspeaker>,
+    /// The best sum through `--crossover` (null when not asked).
+    pub crossover: Option<Crossover>,
+    /// The curves behind the plots.
+    pub curves: Curves,
+    /// Warnings: `warnings` (the sentences) and `warning_codes` beside them.
+    #[serde(flatten)]
+    pub warnings: crate::model::Warnings,
+}
+
+/// Relates several loudspeakers measured at the same position(s): see the
+/// module. `inputs` are position by position (`o.positions` groups of
+/// `o.names.len()`), all at `fs`.
+pub fn align(inputs: &[Input<'_>], fs: f64, o: &Options) -> crate::Result<Alignment> {
+    use crate::error::Error;
+    use crate::model::warning::Code;
+    let speakers = o.names.len();
+    if speakers < 2 {
+        return Err(Error::parameter(
+            "alignment needs at least two loudspeakers: give a measurement folder of each",
+        ));
+    }
+    if o.positions == 0 || inputs.len() != speakers * o.positions {
+        return Err(Error::parameter(format!(
+            "{} folders do not make {} positions of {speakers} loudspeakers; give the folders position by position, each with every loudspeaker in the same order",
+            inputs.len(),
+            o.positions
+        )));
+    }
+    let check_band = |b: (f64, f64), what: &str| -> crate::Result<()> {
+        if !(b.0 > 0.0 && b.1 > b.0 && b.0.is_finite() && b.1.is_finite()) {
+            return Err(Error::parameter(format!(
+                "{what} {},{} is not a band: give LO,HI in Hz with LO below HI",
+                b.0, b.1
+            )));
+        }
+        if b.0 < o.limits.0 * (1.0 - 1e-9) || b.1 > o.limits.1 * (1.0 + 1e-9) {
+            return Err(Error::parameter(format!(
+                "{what} {},{} Hz reaches outside the band the sweeps cover ({:.0}–{:.0} Hz); give a band inside it",
+                b.0, b.1, o.limits.0, o.limits.1
+            )));
+        }
+        Ok(())
+    };
+    if let Some(b) = o.band {
+        check_band(b, "--band")?;
+    }
+    if let Some(b) = o.crossover {
+        check_band(b, "--crossover")?;
+    }
+    if !(o.max_delay_s > 0.0 && o.max_delay_s <= 1.0) {
+        return Err(Error::parameter(
+            "--max-delay must be above 0 and at most 1000 ms",
+        ));
+    }
+    let n = common_len(
+        &inputs
+            .iter()
+            .map(|i| i.impulse.samples.len())
+            .collect::<Vec<_>>(),
+    );
+    let spectra: Vec<Spectrum> = inputs.iter().map(|i| spectrum(i.impulse, fs, n)).collect();
+    let at = |p: usize, s: usize| &spectra[p * speakers + s];
+    let (band, band_from) = match (o.band, o.crossover) {
+        (Some(b), _) => (b, BandChoice::Given),
+        (None, Some(c)) => (c, BandChoice::Crossover),
+        (None, None) => {
+            let all: Vec<&Spectrum> = spectra.iter().collect();
+            let b = overlap_band(&all, o.limits, OVERLAP_WITHIN_DB).ok_or_else(|| {
+                Error::parameter(format!(
+                    "the loudspeakers share no band where all are within {OVERLAP_WITHIN_DB} dB of their own maximum; give the band they overlap in with --band LO,HI (and the crossover with --crossover LO,HI)"
+                ))
+            })?;
+            (b, BandChoice::Overlap)
+        }
+    };
+    let mut warnings = crate::model::Warnings::new();
+    let loopback_reference = inputs.iter().all(|i| i.has_reference);
+    if !loopback_reference {
+        warnings.add(
+            Code::AlignNoReference,
+            "not every measurement has a loopback reference: their arrival times include the interface's latency, which can change from one run to the next, so the relative delays are only as good as that latency is repeatable; measure with --reference (or --each-output) for exact relative timing",
+        );
+    }
+    // arrival, level and polarity per position
+    let arrivals: Vec<Vec<Option<f64>>> = (0..o.positions)
+        .map(|p| {
+            (0..speakers)
+                .map(|s| arrival_s(inputs[p * speakers + s].impulse, fs, band))
+                .collect()
+        })
+        .collect();
+    let mut loudspeakers = Vec::with_capacity(speakers);
+    for (s, name) in o.names.iter().enumerate() {
+        let rel: Vec<f64> = (0..o.positions)
+            .filter_map(|p| Some(arrivals[p][s]? - arrivals[p][0]?))
+            .collect();
+        let mean = |v: &[f64]| (!v.is_empty()).then(|| v.iter().sum::<f64>() / v.len() as f64);
+        let relative_arrival_s = mean(&rel);
+        let relative_arrival_spread_s = (o.positions > 1 && rel.len() == o.positions).then(|| {
+            rel.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+                - rel.iter().copied().fold(f64::INFINITY, f64::min)
+        });
+        let levels: Vec<f64> = (0..o.positions)
+            .filter_map(|p| Some(band_level_db(at(p, s), band)? - band_level_db(at(p, 0), band)?))
+            .collect();
+        let agreements: Vec<f64> = (0..o.positions)
+            .filter_map(|p| {
+                let shift = arrivals[p][s]? - arrivals[p][0]?;
+                phase_agreement(at(p, 0), at(p, s), band, shift)
+            })
+            .collect();
+        let agreement = mean(&agreements);
+        let polarity = agreement.and_then(polarity);
+        let polarity_withheld = match (s, agreement, polarity) {
+            (0, _, _) | (_, _, Some(_)) => None,
+            (_, None, _) => Some("it is silent in the band".to_string()),
+            (_, Some(a), None) => Some(format!(
+                "the two responses are near quadrature over {:.0}–{:.0} Hz (agreement {a:+.2}, below ±{POLARITY_MIN_AGREEMENT}): neither sign makes them add; read it over a band both reproduce fully (--band)",
+                band.0, band.1
+            )),
+        };
+        if let Some(why) = &polarity_withheld {
+            warnings.add(
+                Code::AlignPolarityUnclear,
+                format!("{name}: polarity not told: {why}"),
+            );
+        }
+        loudspeakers.push(Loudspeaker {
+            name: name.clone(),
+            arrival_s: (0..o.positions).map(|p| arrivals[p][s]).collect(),
+            relative_arrival_s,
+            relative_arrival_spread_s,
+            relative_level_db: mean(&levels),
+            polarity: if s == 0 {
+                Some(Polarity::Same)
+            } else {
+                polarity
+            },
+            polarity_agreement: if s == 0 { Some(1.0) } else { agreement },
+            polarity_withheld,
+        });
+    }
+    // the best sum through the crossover
+    let grouped: Vec<Vec<&Spectrum>> = (0..o.positions)
+        .map(|p| (0..speakers).map(|s| at(p, s)).collect())
+        .collect();
+    let best = o
+        .crossover
+        .and_then(|c| Some((c, best_sum(&grouped, c, o.max_delay_s, fs)?)));
+    let crossover = best.as_ref().map(|(c, b)| {
+        let earliest = b
+            .settings
+            .iter()
+            .map(|s| s.delay_s)
+            .fold(f64::INFINITY, f64::min)
+            .min(0.0);
+        for &i in &b.at_edge {
+            warnings.add(
+                Code::AlignSearchEdge,
+                format!(
+                    "{}: the best delay lies at the edge of the search (±{:.1} ms): the best may lie beyond it; measure with the loudspeakers nearer in time, or widen --max-delay",
+                    o.names[i],
+                    o.max_delay_s * 1e3
+                ),
+            );
+        }
+        Crossover {
+            band_hz: [c.0, c.1],
+            max_delay_s: o.max_delay_s,
+            suggestions: b
+                .settings
+                .iter()
+                .map(|s| Suggestion {
+                    relative_delay_s: s.delay_s,
+                    set_delay_s: s.delay_s - earliest,
+                    polarity: if s.inverted {
+                        Polarity::Inverted
+                    } else {
+                        Polarity::Same
+                    },
+                })
+                .collect(),
+            level_as_is_db: b.as_is_db,
+            level_suggested_db: b.level_db,
+            gain_db: b.level_db - b.as_is_db,
+        }
+    });
+    let settings = best.as_ref().map(|(_, b)| b.settings.clone());
+    let curves = curves(&grouped, settings.as_deref(), band, o, arrivals[0][0]);
+    Ok(Alignment {
+        schema_version: ALIGN_SCHEMA_VERSION,
+        sample_rate_hz: fs,
+        band_hz: [band.0, band.1],
+        band_from,
+        positions: o.positions,
+        loopback_reference,
+        loudspeakers,
+        crossover,
+        curves,
+        warnings,
+    })
+}
+
+/// The curves of [`Curves`], over the crossover band widened by an octave
+/// each side (or the whole sweep band without one).
+fn curves(
+    grouped: &[Vec<&Spectrum>],
+    settings: Option<&[Setting]>,
+    band: (f64, f64),
+    o: &Options,
+    t0: Option<f64>,
+) -> Curves {
+    use crate::analysis::smoothing::{Smoothing, log_grid, smooth_power};
+    let (lo, hi) = match o.crossover {
+        Some(c) => ((c.0 / 2.0).max(o.limits.0), (c.1 * 2.0).min(o.limits.1)),
+        None => o.limits,
+    };
+    let grid = log_grid(lo, hi);
+    let df = grouped[0][0].df;
+    let smooth = Smoothing::Fraction(24);
+    let speakers = grouped[0].len();
+    // power-average over positions of a power spectrum made per position
+    let averaged = |power_of: &dyn Fn(&[&Spectrum]) -> Vec<f64>| -> Vec<f64> {
+        let mut acc = vec![0.0; grid.len()];
+        for spectra in grouped {
+            let p = smooth_power(&power_of(spectra), df, &grid, smooth);
+            for (a, v) in acc.iter_mut().zip(p) {
+                *a += v / grouped.len() as f64;
+            }
+        }
+        acc
+    };
+    let db = |v: Vec<f64>, zero: f64| -> Vec<f64> {
+        v.into_iter()
+            .map(|p| 10.0 * p.max(1e-30).log10() - zero)
+            .collect()
+    };
+    let zero = band_level_db(grouped[0][0], band).unwrap_or(0.0);
+    let level_db = (0..speakers)
+        .map(|s| {
+            db(
+                averaged(&|sp| sp[s].bins.iter().map(|v| v.norm_sqr()).collect()),
+                zero,
+            )
+        })
+        .collect();
+    let sum_power = |sp: &[&Spectrum], set: &[Setting]| -> Vec<f64> {
+        (0..sp[0].bins.len())
+            .map(|k| {
+                let f = k as f64 * df;
+                sp.iter()
+                    .zip(set)
+                    .map(|(s, st)| s.bins[k] * st.factor(f))
+                    .sum::<Complex<f64>>()
+                    .norm_sqr()
+            })
+            .collect()
+    };
+    let as_is = vec![Setting::AS_IS; speakers];
+    let sum_as_is_db = db(averaged(&|sp| sum_power(sp, &as_is)), zero);
+    let sum_suggested_db = settings
+        .map(|set| db(averaged(&|sp| sum_power(sp, set)), zero))
+        .unwrap_or_default();
+    // phases at the first position, the first loudspeaker's arrival out
+    let t0 = t0.unwrap_or(0.0);
+    let phase = |s: usize, set: Setting| -> Vec<f64> {
+        let sp = grouped[0][s];
+        grid.iter()
+            .map(|&f| {
+                let k = ((f / df).round() as usize).clamp(1, sp.bins.len() - 1);
+                let fk = k as f64 * df;
+                let v = sp.bins[k]
+                    * set.factor(fk)
+                    * Complex::from_polar(1.0, 2.0 * std::f64::consts::PI * fk * t0);
+                crate::analysis::response::wrap_deg(v.arg().to_degrees())
+            })
+            .collect()
+    };
+    let phase_deg = (0..speakers).map(|s| phase(s, Setting::AS_IS)).collect();
+    let phase_suggested_deg = settings
+        .map(|set| (0..speakers).map(|s| phase(s, set[s])).collect())
+        .unwrap_or_default();
+    Curves {
+        frequency_hz: grid,
+        level_db,
+        phase_deg,
+        phase_suggested_deg,
+        sum_as_is_db,
+        sum_suggested_db,
+    }
 }
 
 #[cfg(test)]

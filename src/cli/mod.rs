@@ -1,6 +1,7 @@
 //! The command line: one file per command; argument structs become checked
 //! settings here, and the library does the work.
 
+mod align;
 mod analyze;
 mod average;
 mod calibrate;
@@ -59,6 +60,8 @@ enum Command {
     Average(average::Args),
     /// Compare measurements before and after: responses, band parameters, absorption.
     Compare(compare::Args),
+    /// Several loudspeakers at the listening position: relative delay, level, polarity and the best sum at a crossover.
+    Align(align::Args),
     /// Turn a sound calibrator's tone (a WAV, or recorded now) into a calibration file.
     Calibrate(calibrate::Args),
     /// Write one self-contained HTML report (plots embedded, prints on A4) of measurement folders.
@@ -80,6 +83,7 @@ fn wants_plots(command: &Command) -> bool {
         Command::Average(a) => !a.no_plots,
         Command::Compare(a) => !a.no_plots,
         Command::Noise(a) => !a.no_plots,
+        Command::Align(a) => !a.no_plots,
         _ => false,
     }
 }
@@ -151,6 +155,7 @@ pub fn main() -> ExitCode {
         Command::Report(a) => report::run(a),
         Command::Export(a) => export::run(a),
         Command::Noise(a) => noise::run(a),
+        Command::Align(a) => align::run(a),
     };
     match result {
         Ok(()) => {

@@ -20,8 +20,8 @@ use std::path::{Component, Path, PathBuf};
 
 use crate::error::{Error, Result};
 use schema::{
-    Comparison, ComparisonManifest, FileEntry, FileRole, FolderKind, Manifest, NoiseManifest,
-    Results,
+    AlignManifest, Comparison, ComparisonManifest, FileEntry, FileRole, FolderKind, Manifest,
+    NoiseManifest, Results,
 };
 pub use write::{MeasurementFolder, sha256_hex};
 
@@ -61,6 +61,13 @@ pub enum Content {
         manifest: Box<ComparisonManifest>,
         /// The comparison.
         comparison: Box<Comparison>,
+    },
+    /// An alignment of several loudspeakers: its manifest and align.json.
+    Align {
+        /// The manifest.
+        manifest: Box<AlignManifest>,
+        /// align.json.
+        alignment: Box<crate::analysis::align::Alignment>,
     },
 }
 
@@ -169,6 +176,9 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
             "{name} is a noise folder (gliss noise): it holds the room's background noise, not a measurement; give it to gliss analyze, measure or demo as --noise {name}, and report the room measurement"
         )));
     }
+    if value.get("kind").and_then(serde_json::Value::as_str) == Some("align") {
+        return open_align(dir, value, &mbytes, options);
+    }
     let not_ours = |e: serde_json::Error| {
         Error::input(format!(
             "{name}/manifest.json is not a gliss manifest ({e}); give folders written by gliss"
@@ -220,6 +230,43 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
         content: Content::Measurement {
             manifest: Box::new(manifest),
             results: Box::new(results),
+        },
+    })
+}
+
+/// The alignment branch of [`open_with`]: its manifest, every listed file
+/// checked, align.json the one listed.
+fn open_align(
+    dir: &Path,
+    value: serde_json::Value,
+    mbytes: &[u8],
+    options: OpenOptions,
+) -> Result<Folder> {
+    let name = dir.display();
+    let manifest: AlignManifest = serde_json::from_value(value).map_err(|e| {
+        Error::input(format!(
+            "{name}/manifest.json is not a gliss alignment manifest ({e}); run gliss align again into a new folder"
+        ))
+    })?;
+    let files = check_files(dir, &manifest.files, options)?;
+    let again = "gliss align ... --overwrite";
+    let (bytes, sha) = read_content(dir, "align.json", "run gliss align again")?;
+    content_matches(dir, "align.json", &sha, &files, again)?;
+    let alignment: crate::analysis::align::Alignment =
+        serde_json::from_slice(&bytes).map_err(|e| {
+            Error::input(format!(
+                "{name}/align.json does not parse ({e}); run gliss align again into a new folder"
+            ))
+        })?;
+    Ok(Folder {
+        dir: dir.to_path_buf(),
+        kind: FolderKind::Align,
+        manifest_sha256: sha256_hex(mbytes),
+        content_sha256: sha,
+        files,
+        content: Content::Align {
+            manifest: Box::new(manifest),
+            alignment: Box::new(alignment),
         },
     })
 }
@@ -363,7 +410,7 @@ impl Folder {
     pub fn measurement(&self, why: &str) -> Result<(&Manifest, &Results)> {
         match &self.content {
             Content::Measurement { manifest, results } => Ok((manifest, results)),
-            Content::Comparison { .. } => Err(self.not_a_measurement(why)),
+            _ => Err(self.not_a_measurement(why)),
         }
     }
 
@@ -372,14 +419,18 @@ impl Folder {
     pub fn into_measurement(self, why: &str) -> Result<(Manifest, Results)> {
         match self.content {
             Content::Measurement { manifest, results } => Ok((*manifest, *results)),
-            Content::Comparison { .. } => Err(self.not_a_measurement(why)),
+            _ => Err(self.not_a_measurement(why)),
         }
     }
 
     #[cold]
     fn not_a_measurement(&self, why: &str) -> Error {
+        let what = match self.content {
+            Content::Align { .. } => "an alignment (gliss align)",
+            _ => "a comparison",
+        };
         Error::input(format!(
-            "{} is a comparison, not a measurement; {why}",
+            "{} is {what}, not a measurement; {why}",
             self.dir.display()
         ))
     }

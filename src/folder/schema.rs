@@ -35,6 +35,10 @@ pub enum FolderKind {
     Impedance,
     /// The background noise of a room (noise.json, `gliss noise`).
     Noise,
+    /// Several loudspeakers related to the first: arrival, level,
+    /// polarity and the best sum through a crossover (align.json, `gliss
+    /// align`).
+    Align,
 }
 
 impl FolderKind {
@@ -46,6 +50,7 @@ impl FolderKind {
             FolderKind::Comparison => "a comparison",
             FolderKind::Impedance => "an impedance measurement",
             FolderKind::Noise => "a noise measurement",
+            FolderKind::Align => "an alignment",
         }
     }
 }
@@ -667,6 +672,33 @@ pub struct NoiseManifest {
     pub channel: usize,
     /// The calibration file the levels rest on, with its hash.
     pub calibration: FileEntry,
+    /// Every file of the folder with its SHA-256.
+    pub files: Vec<FileEntry>,
+}
+
+/// The manifest of an alignment folder (`gliss align`): the measurement
+/// folders it relates, with their hashes; align.json is
+/// [`crate::analysis::align::Alignment`].
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AlignManifest {
+    /// Layout version.
+    pub schema_version: u32,
+    /// "gliss".
+    pub tool: String,
+    /// Version of gliss that wrote the folder.
+    pub tool_version: String,
+    /// When (UTC, RFC 3339).
+    pub created_utc: String,
+    /// Always true once written.
+    pub complete: bool,
+    /// Always `align`.
+    pub kind: FolderKind,
+    /// The command line that made it.
+    pub command_line: Vec<String>,
+    /// kind "align" and a description.
+    pub source: Source,
+    /// The measurement folders, position by position, with their hashes.
+    pub inputs: Vec<InputRecord>,
     /// Every file of the folder with its SHA-256.
     pub files: Vec<FileEntry>,
 }

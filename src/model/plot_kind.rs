@@ -48,6 +48,11 @@ pub enum PlotKind {
     Mtf,
     /// A noise folder's background noise per band with its rating.
     Noise,
+    /// An alignment's responses and their complex sum, as measured and
+    /// with the suggested delays and polarities.
+    AlignSum,
+    /// An alignment's phases through the crossover band.
+    AlignPhase,
 }
 
 /// What a caption says about the folder it describes. Fill what the
@@ -72,11 +77,11 @@ pub struct CaptionFacts<'a> {
 }
 
 /// The rank after every known plot: where unknown files go in the report.
-pub const UNKNOWN_RANK: usize = 15;
+pub const UNKNOWN_RANK: usize = 17;
 
 impl PlotKind {
     /// Every plot, in the order of the variants.
-    pub const ALL: [PlotKind; 17] = [
+    pub const ALL: [PlotKind; 19] = [
         PlotKind::Response,
         PlotKind::Impulse,
         PlotKind::Phase,
@@ -94,6 +99,8 @@ impl PlotKind {
         PlotKind::Impedance,
         PlotKind::Mtf,
         PlotKind::Noise,
+        PlotKind::AlignSum,
+        PlotKind::AlignPhase,
     ];
 
     /// The plots of one measurement, in the order they are drawn (and
@@ -114,6 +121,9 @@ impl PlotKind {
 
     /// The plots of a noise folder.
     pub const NOISE: [PlotKind; 1] = [PlotKind::Noise];
+
+    /// The plots of an alignment folder.
+    pub const ALIGN: [PlotKind; 2] = [PlotKind::AlignSum, PlotKind::AlignPhase];
 
     /// The plots of an average, in the order they are drawn.
     pub const AVERAGE: [PlotKind; 2] = [PlotKind::AverageResponse, PlotKind::AverageReverberation];
@@ -144,6 +154,8 @@ impl PlotKind {
             PlotKind::Impedance => "plots/impedance.png",
             PlotKind::Mtf => "plots/mtf.png",
             PlotKind::Noise => "plots/noise.png",
+            PlotKind::AlignSum => "plots/align-sum.png",
+            PlotKind::AlignPhase => "plots/align-phase.png",
         }
     }
 
@@ -169,6 +181,8 @@ impl PlotKind {
             PlotKind::Spectrogram => 12,
             PlotKind::Impulse => 13,
             PlotKind::Noise => 14,
+            PlotKind::AlignSum => 15,
+            PlotKind::AlignPhase => 16,
         }
     }
 
@@ -240,6 +254,8 @@ impl PlotKind {
             PlotKind::Impedance => "Electrical impedance of the driver: magnitude in ohms above, phase below, on a log frequency axis; the fitted lumped model dashed over the measurement, the resonance fs marked.".to_string(),
             PlotKind::Mtf => "Modulation transfer function per octave 125 Hz–8 kHz: the modulation depth m that reaches the listener against the modulation frequency (IEC 60268-16), as the STI used it, with each octave's modulation transfer index.".to_string(),
             PlotKind::Noise => "Background noise: the equivalent continuous level per octave and one-third octave, dB SPL, with the noise rating curve it touches.".to_string(),
+            PlotKind::AlignSum => format!("Each loudspeaker's level and their complex sum at the listening position(s), as measured and with the suggested delays and polarities, 1/24-octave power smoothing; 0 dB is {}'s level over the band; the crossover band shaded.", f.reference),
+            PlotKind::AlignPhase => format!("Each loudspeaker's phase through the crossover band, {}'s arrival taken out of all, as measured (solid) and with the suggested settings (dashed): where the curves meet, the loudspeakers add.", f.reference),
         }
     }
 }
@@ -294,6 +310,8 @@ mod tests {
             "plots/impedance.png",
             "plots/mtf.png",
             "plots/noise.png",
+            "plots/align-sum.png",
+            "plots/align-phase.png",
         ] {
             assert!(names.contains(&n), "{n}");
         }
@@ -320,6 +338,7 @@ mod tests {
             .chain(&PlotKind::AVERAGE)
             .chain(&PlotKind::COMPARISON)
             .chain(&PlotKind::NOISE)
+            .chain(&PlotKind::ALIGN)
             .copied()
             .collect();
         listed.sort_by_key(|k| PlotKind::ALL.iter().position(|a| a == k));
@@ -344,6 +363,8 @@ mod tests {
             "spectrogram",
             "impulse",
             "noise",
+            "align-sum",
+            "align-phase",
         ];
         for (i, stem) in order.iter().enumerate() {
             assert_eq!(plot_rank(&format!("plots/{stem}.png")), i, "{stem}");

@@ -176,6 +176,13 @@ codes! {
     SpeechImpulseOnly = "speech-impulse-only", Note, Other;
     /// The noise rating is withheld: an octave it needs is missing.
     NoiseRatingWithheld = "noise-rating-withheld", Caution, Other;
+    /// An alignment: not every measurement rests on a loopback reference,
+    /// so the relative times include the interface's latency.
+    AlignNoReference = "align-no-reference", Caution, Combining;
+    /// An alignment: a loudspeaker's polarity cannot be told over the band.
+    AlignPolarityUnclear = "align-polarity-unclear", Note, Combining;
+    /// An alignment: the best delay lies at the edge of the search.
+    AlignSearchEdge = "align-search-edge", Caution, Combining;
     /// A warning read from a file written before codes existed.
     Unclassified = "unclassified", Note, Other;
 }

@@ -20,6 +20,7 @@ use crate::model::plot_kind::PlotKind;
 /// points wide, so that no printed plot text is smaller than 8 pt.
 pub const SMALLEST_TEXT_PX: u32 = 24;
 
+pub mod align;
 pub mod annotate;
 mod axes;
 mod theme;

@@ -6,6 +6,7 @@
 //! kind and needs no JavaScript. All text from the folders is escaped.
 
 pub mod advice;
+pub mod align;
 pub mod answer;
 pub mod comparison;
 pub mod html;
@@ -97,7 +98,7 @@ fn is_position(folders: &[Folder], k: usize) -> bool {
         Content::Measurement { manifest, results } => {
             results.average.is_some() && manifest.inputs.iter().any(|i| &i.folder == name)
         }
-        Content::Comparison { .. } => false,
+        Content::Comparison { .. } | Content::Align { .. } => false,
     })
 }
 
@@ -107,7 +108,7 @@ fn is_compared(folders: &[Folder], name: &str) -> bool {
         Content::Comparison { comparison, .. } => {
             comparison.inputs.iter().any(|i| i.folder == name)
         }
-        Content::Measurement { .. } => false,
+        Content::Measurement { .. } | Content::Align { .. } => false,
     })
 }
 
@@ -185,6 +186,10 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                     figure(&mut out, p, &caption(p, manifest, results), &mut counters);
                 }
             }
+            Content::Align {
+                manifest,
+                alignment,
+            } => align::answer(&mut out, lead, manifest, alignment, &mut counters),
         }
         out.push_str("</section>\n");
     }
@@ -218,6 +223,14 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 "comparison",
                 comparison_title(manifest, comparison),
                 comparison.warnings.len(),
+            ),
+            Content::Align {
+                manifest,
+                alignment,
+            } => (
+                "alignment",
+                manifest.source.description.clone(),
+                alignment.warnings.0.len(),
             ),
         };
         let _ = write!(
@@ -272,6 +285,10 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 manifest,
                 comparison,
             } => comparison_section(&mut out, f, manifest, comparison, &mut counters),
+            Content::Align {
+                manifest,
+                alignment,
+            } => align::section(&mut out, f, manifest, alignment, i == 0, &mut counters),
         }
         out.push_str("</section>\n");
     }
@@ -306,6 +323,10 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 manifest,
                 comparison,
             } => comparison_appendix(&mut out, f, manifest, comparison, &mut counters),
+            Content::Align {
+                manifest,
+                alignment,
+            } => align::appendix(&mut out, f, manifest, alignment),
         }
         out.push_str("</div>");
     }

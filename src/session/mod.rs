@@ -1,6 +1,7 @@
 //! The session layer: turns inputs into a measurement folder on disk.
 //! All file I/O of an analysis happens here; the stages it calls are pure.
 
+pub mod align;
 pub mod compare;
 pub mod export;
 pub mod impedance;

@@ -59,6 +59,12 @@ pub fn job(dir: &Path, s: &Settings) -> Result<Job> {
                 dir.display()
             )));
         }
+        Content::Align { .. } => {
+            return Err(Error::input(format!(
+                "{} is an alignment, not a measurement; run gliss align again to make it with new settings",
+                dir.display()
+            )));
+        }
     };
     if manifest.kind == Some(FolderKind::Impedance) {
         return Err(Error::input(format!(

@@ -4,6 +4,7 @@
 mod cookbook;
 mod util;
 
+mod align;
 mod bad_input;
 mod compare;
 mod demo;
