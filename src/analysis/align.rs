@@ -515,8 +515,7 @@ pub fn overlap_band(
     }
     let mut best: Option<(usize, usize)> = None;
     let mut start = None;
-    for i in 0..=grid.len() {
-        let inside = i < grid.len() && ok[i];
+    for (i, inside) in ok.iter().copied().chain(std::iter::once(false)).enumerate() {
         match (inside, start) {
             (true, None) => start = Some(i),
             (false, Some(s)) => {

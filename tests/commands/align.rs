@@ -241,7 +241,7 @@ fn a_subwoofer_and_a_main_loudspeaker_get_the_delay_and_polarity_of_the_best_sum
 fn mistakes_are_refused_with_one_line() {
     let t = tempfile::tempdir().unwrap();
     make_sweep(t.path(), "sweep.wav", &["--length", "1", "--tail", "0.3"]);
-    measure(t.path(), "a", |x| speaker(x));
+    measure(t.path(), "a", speaker);
     measure(t.path(), "b", |x| speaker(&delayed(x, 10.0)));
     for (args, says) in [
         (vec!["align", "a", "--out", "o"], "FOLDER"),
