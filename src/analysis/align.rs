@@ -649,8 +649,8 @@ pub struct Crossover {
 pub struct Curves {
     /// Grid frequencies, Hz.
     pub frequency_hz: Vec<f64>,
-    /// Each loudspeaker's level, dB (the first's 0 dB = its level over
-    /// the band).
+    /// Each loudspeaker's level, dB (0 dB: the first loudspeaker's
+    /// highest level on the grid).
     pub level_db: Vec<Vec<f64>>,
     /// Each loudspeaker's phase, degrees in (−180, 180].
     pub phase_deg: Vec<Vec<f64>>,
@@ -798,8 +798,14 @@ pub fn align(inputs: &[Input<'_>], fs: f64, o: &Options) -> crate::Result<Alignm
             (0, _, _) | (_, _, Some(_)) => None,
             (_, None, _) => Some("it is silent in the band".to_string()),
             (_, Some(a), None) => Some(format!(
-                "the two responses are near quadrature over {:.0}–{:.0} Hz (agreement {a:+.2}, below ±{POLARITY_MIN_AGREEMENT}): neither sign makes them add; read it over a band both reproduce fully (--band)",
-                band.0, band.1
+                "once their arrivals are aligned the two responses are near quadrature over {:.0}–{:.0} Hz (agreement {a:+.2}, within ±{POLARITY_MIN_AGREEMENT}), so neither sign makes them add; {}",
+                band.0,
+                band.1,
+                if o.crossover.is_some() {
+                    "the crossover's suggested setting gives the polarity for the sum"
+                } else {
+                    "read it over a band both reproduce fully (--band), or give the crossover (--crossover) for the polarity of the best sum"
+                }
             )),
         };
         if let Some(why) = &polarity_withheld {
@@ -869,7 +875,7 @@ pub fn align(inputs: &[Input<'_>], fs: f64, o: &Options) -> crate::Result<Alignm
         }
     });
     let settings = best.as_ref().map(|(_, b)| b.settings.clone());
-    let curves = curves(&grouped, settings.as_deref(), band, o, arrivals[0][0]);
+    let curves = curves(&grouped, settings.as_deref(), o, arrivals[0][0]);
     Ok(Alignment {
         schema_version: ALIGN_SCHEMA_VERSION,
         sample_rate_hz: fs,
@@ -889,7 +895,6 @@ pub fn align(inputs: &[Input<'_>], fs: f64, o: &Options) -> crate::Result<Alignm
 fn curves(
     grouped: &[Vec<&Spectrum>],
     settings: Option<&[Setting]>,
-    band: (f64, f64),
     o: &Options,
     t0: Option<f64>,
 ) -> Curves {
@@ -918,7 +923,8 @@ fn curves(
             .map(|p| 10.0 * p.max(1e-30).log10() - zero)
             .collect()
     };
-    let zero = band_level_db(grouped[0][0], band).unwrap_or(0.0);
+    let first_power = averaged(&|sp| sp[0].bins.iter().map(|v| v.norm_sqr()).collect());
+    let zero = 10.0 * first_power.iter().copied().fold(1e-30, f64::max).log10();
     let level_db = (0..speakers)
         .map(|s| {
             db(
@@ -944,17 +950,24 @@ fn curves(
     let sum_suggested_db = settings
         .map(|set| db(averaged(&|sp| sum_power(sp, set)), zero))
         .unwrap_or_default();
-    // phases at the first position, the first loudspeaker's arrival out
+    // phases at the first position, the first loudspeaker's arrival out,
+    // interpolated between bins (with the arrival out the phase turns
+    // slowly from bin to bin)
     let t0 = t0.unwrap_or(0.0);
     let phase = |s: usize, set: Setting| -> Vec<f64> {
         let sp = grouped[0][s];
+        let at = |k: usize| {
+            let fk = k as f64 * df;
+            sp.bins[k]
+                * set.factor(fk)
+                * Complex::from_polar(1.0, 2.0 * std::f64::consts::PI * fk * t0)
+        };
         grid.iter()
             .map(|&f| {
-                let k = ((f / df).round() as usize).clamp(1, sp.bins.len() - 1);
-                let fk = k as f64 * df;
-                let v = sp.bins[k]
-                    * set.factor(fk)
-                    * Complex::from_polar(1.0, 2.0 * std::f64::consts::PI * fk * t0);
+                let x = (f / df).clamp(1.0, (sp.bins.len() - 2) as f64);
+                let k = x.floor() as usize;
+                let u = x - k as f64;
+                let v = at(k) * (1.0 - u) + at(k + 1) * u;
                 crate::analysis::response::wrap_deg(v.arg().to_degrees())
             })
             .collect()

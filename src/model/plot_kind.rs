@@ -254,8 +254,8 @@ impl PlotKind {
             PlotKind::Impedance => "Electrical impedance of the driver: magnitude in ohms above, phase below, on a log frequency axis; the fitted lumped model dashed over the measurement, the resonance fs marked.".to_string(),
             PlotKind::Mtf => "Modulation transfer function per octave 125 Hz–8 kHz: the modulation depth m that reaches the listener against the modulation frequency (IEC 60268-16), as the STI used it, with each octave's modulation transfer index.".to_string(),
             PlotKind::Noise => "Background noise: the equivalent continuous level per octave and one-third octave, dB SPL, with the noise rating curve it touches.".to_string(),
-            PlotKind::AlignSum => format!("Each loudspeaker's level and their complex sum at the listening position(s), as measured and with the suggested delays and polarities, 1/24-octave power smoothing; 0 dB is {}'s level over the band; the crossover band shaded.", f.reference),
-            PlotKind::AlignPhase => format!("Each loudspeaker's phase through the crossover band, {}'s arrival taken out of all, as measured (solid) and with the suggested settings (dashed): where the curves meet, the loudspeakers add.", f.reference),
+            PlotKind::AlignSum => format!("Each loudspeaker's level and their complex sum at the listening position(s), as measured and with the suggested delays and polarities, 1/24-octave power smoothing; 0 dB is {}'s highest level in the plot; the crossover band between the grey lines.", f.reference),
+            PlotKind::AlignPhase => format!("Each loudspeaker's phase through the crossover band, {}'s arrival taken out of all, as measured (solid), and each of the others with its suggested delay and polarity relative to it (dashed, lighter): where the curves meet, the loudspeakers add.", f.reference),
         }
     }
 }

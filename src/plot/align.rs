@@ -29,6 +29,12 @@ fn dashed(values: &[f64]) -> Vec<f64> {
         .collect()
 }
 
+/// A colour halfway to white: the suggested curves over the measured.
+fn faint(c: RGBColor) -> RGBColor {
+    let m = |v: u8| ((u16::from(v) + 255) / 2) as u8;
+    RGBColor(m(c.0), m(c.1), m(c.2))
+}
+
 /// The crossover band's edges as two vertical lines from `lo` to `hi`.
 fn edges(a: &Alignment) -> Vec<([f64; 2], [f64; 2])> {
     a.crossover
@@ -123,17 +129,29 @@ pub fn align_phase_png(path: &Path, title: &str, a: &Alignment) -> Result<()> {
     )?;
     let f1 = f.first().copied().unwrap_or(20.0);
     let f2 = f.last().copied().unwrap_or(20_000.0);
-    let suggested: Vec<Vec<f64>> = c.phase_suggested_deg.iter().map(|p| dashed(p)).collect();
+    // the first loudspeaker is the reference: its curve with its setting
+    // is the curve as measured, so only the others get a dashed one
+    let suggested: Vec<Vec<f64>> = c
+        .phase_suggested_deg
+        .iter()
+        .skip(1)
+        .map(|p| dashed(p))
+        .collect();
     let mut series: Vec<Series<'_>> = Vec::new();
     for (k, (p, s)) in c.phase_deg.iter().zip(&a.loudspeakers).enumerate() {
-        series.push((f, p, input_colour(k), format!("{} as measured", s.name)));
+        let label = if k == 0 {
+            format!("{} (reference)", s.name)
+        } else {
+            format!("{} as measured", s.name)
+        };
+        series.push((f, p, input_colour(k), label));
     }
-    for (k, (p, s)) in suggested.iter().zip(&a.loudspeakers).enumerate() {
+    for (k, (p, s)) in suggested.iter().zip(&a.loudspeakers[1..]).enumerate() {
         series.push((
             f,
             p,
-            input_colour(k),
-            format!("{}, suggested (dashed)", s.name),
+            faint(input_colour(k + 1)),
+            format!("{} with its suggested setting (dashed)", s.name),
         ));
     }
     let mut edge = edges(a);
