@@ -66,14 +66,17 @@ pub struct Args {
     /// --device for the output).
     #[arg(long, value_name = "N|NAME")]
     pub output_device: Option<String>,
-    /// Output channels that play the sweep, counted from 1, e.g. 1 or 1,2.
-    #[arg(
-        long,
-        value_name = "N[,N...]",
-        value_delimiter = ',',
-        default_value = "1"
-    )]
+    /// Output channels that play the sweep, counted from 1, e.g. 1 or 1,2
+    /// [default: 1; with --each-output, none but those listed there].
+    #[arg(long, value_name = "N[,N...]", value_delimiter = ',')]
     pub output_channel: Vec<usize>,
+    /// Measure several loudspeakers in one run: play the sweep on each of
+    /// these outputs in turn (with --output-channel's, e.g. the loopback's,
+    /// every time), one measurement folder per output in --out
+    /// (output-1, output-2, …), for gliss align. With --reference the
+    /// relative timing between them is exact to the sample.
+    #[arg(long, value_name = "N,N[,N...]", value_delimiter = ',')]
+    pub each_output: Vec<usize>,
     /// The microphone input, counted from 1 [default: 1; with
     /// --impedance 2, the input across the driver].
     #[arg(long, value_name = "N")]
@@ -352,8 +355,14 @@ pub fn run(a: Args) -> Result<()> {
         }
         config = super::impedance::config()?;
     }
+    let given_outputs: Vec<usize> = if a.output_channel.is_empty() && a.each_output.is_empty() {
+        vec![1]
+    } else {
+        a.output_channel.clone()
+    };
+    let each = each_output(&a, &given_outputs)?;
     let mut outputs = Vec::new();
-    for &o in &a.output_channel {
+    for &o in &given_outputs {
         let o = one_based(o, "--output-channel")?;
         if !outputs.contains(&o) {
             outputs.push(o);
@@ -382,7 +391,7 @@ pub fn run(a: Args) -> Result<()> {
         })
     } else {
         let highest_in = channel.max(reference.unwrap_or(0)) + 1;
-        let highest_out = outputs.iter().copied().max().unwrap_or(0) + 1;
+        let highest_out = outputs.iter().chain(&each).copied().max().unwrap_or(0) + 1;
         sound_card(&a, &design, highest_in, highest_out)?
     };
     if let Some(seconds) = a.noise {
@@ -411,6 +420,9 @@ pub fn run(a: Args) -> Result<()> {
         target,
         impedance,
     };
+    if !each.is_empty() {
+        return measure_each(&a, device.as_mut(), &job, &each, reference_given);
+    }
     measure::check(&job, device.as_ref())?;
     // Ctrl-C, SIGTERM and a hangup (ctrlc's "termination" feature) stop
     // the measurement instead of killing the process, so that the output
@@ -423,7 +435,7 @@ pub fn run(a: Args) -> Result<()> {
         if a.repeat == 1 { "" } else { "s" },
         design.length_s,
         design.params.level_dbfs,
-        a.output_channel
+        given_outputs
             .iter()
             .map(|c| c.to_string())
             .collect::<Vec<_>>()
@@ -463,6 +475,113 @@ pub fn run(a: Args) -> Result<()> {
             "note: no --reference, so the delay includes the interface's latency (known to about one buffer)"
         );
     }
+    Ok(())
+}
+
+/// `--each-output`: the outputs (0-based) to measure in turn, checked
+/// against the options it cannot go with; empty without it.
+fn each_output(a: &Args, always: &[usize]) -> Result<Vec<usize>> {
+    if a.each_output.is_empty() {
+        return Ok(Vec::new());
+    }
+    if a.impedance || a.noise.is_some() {
+        return Err(Error::parameter(
+            "--each-output measures several loudspeakers' responses; it does not go with --impedance or --noise",
+        ));
+    }
+    let mut each = Vec::new();
+    for &o in &a.each_output {
+        let o0 = one_based(o, "--each-output")?;
+        if each.contains(&o0) {
+            return Err(Error::parameter(format!(
+                "--each-output lists output {o} twice; list each loudspeaker's output once"
+            )));
+        }
+        if always.contains(&o) {
+            return Err(Error::parameter(format!(
+                "output {o} is in --each-output and in --output-channel; --output-channel names the outputs that play every time (the loopback's), so leave it out of one"
+            )));
+        }
+        each.push(o0);
+    }
+    if each.len() < 2 {
+        return Err(Error::parameter(
+            "--each-output needs two or more outputs, e.g. --each-output 1,2; for one loudspeaker use --output-channel",
+        ));
+    }
+    Ok(each)
+}
+
+/// `gliss measure --each-output`: the sweep on each output in turn, one
+/// measurement folder per output in `--out`, with the same sweep, inputs
+/// and reference.
+fn measure_each(
+    a: &Args,
+    device: &mut dyn PlayRecord,
+    base: &MeasureJob,
+    each: &[usize],
+    reference_given: Option<usize>,
+) -> Result<()> {
+    if a.out.exists()
+        && std::fs::read_dir(&a.out)
+            .map(|mut d| d.next().is_some())
+            .unwrap_or(true)
+    {
+        return Err(Error::new(
+            gliss::ErrorKind::AlreadyExists,
+            format!(
+                "{} already exists and is not empty; --each-output writes a folder per output into a new folder: choose another --out",
+                a.out.display()
+            ),
+        ));
+    }
+    let jobs = measure::each_output_jobs(base, each);
+    for j in &jobs {
+        measure::check(j, device)?;
+    }
+    std::fs::create_dir_all(&a.out).map_err(|e| Error::io("create", &a.out, &e))?;
+    let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
+    println!("{}", device.describe());
+    if reference_given.is_none() {
+        println!(
+            "note: no --reference: each measurement's timing includes the interface's latency, which can change from run to run, so the relative delays between the outputs are only as good as it is repeatable"
+        );
+    }
+    let mut folders = Vec::new();
+    for (j, &o) in jobs.iter().zip(each) {
+        println!(
+            "output {}: playing {} sweep{} of {:.1} s at {} dBFS{}; recording input {}",
+            o + 1,
+            a.repeat,
+            if a.repeat == 1 { "" } else { "s" },
+            j.design.length_s,
+            j.design.params.level_dbfs,
+            if j.output_channels.len() > 1 {
+                format!(
+                    " (with output {} every time)",
+                    j.output_channels[1..]
+                        .iter()
+                        .map(|c| (c + 1).to_string())
+                        .collect::<Vec<_>>()
+                        .join(",")
+                )
+            } else {
+                String::new()
+            },
+            j.channel + 1
+        );
+        let mut meter = Meter::new(1, f64::from(j.design.params.sample_rate_hz));
+        let outcome = measure::measure(device, j, &STOP, &mut |p| meter.update(p));
+        meter.bar.finish_and_clear();
+        let outcome = outcome?;
+        super::demo::print_summary(&common::show(&j.out), &outcome);
+        folders.push(common::show(&j.out));
+    }
+    println!(
+        "relate them: gliss align {} --out {}",
+        folders.join(" "),
+        common::show(&a.out.join("align"))
+    );
     Ok(())
 }
 

@@ -170,6 +170,24 @@ pub struct MeasureJob {
     pub impedance: Option<super::impedance::ImpedanceJob>,
 }
 
+/// The jobs of `gliss measure --each-output`: `base` once per output of
+/// `each` (0-based), into `base.out/output-N`, the sweep on that output
+/// and on `base.output_channels` (the loopback's) every time; the title
+/// names the output.
+pub fn each_output_jobs(base: &MeasureJob, each: &[usize]) -> Vec<MeasureJob> {
+    each.iter()
+        .map(|&o| {
+            let mut j = base.clone();
+            j.out = base.out.join(format!("output-{}", o + 1));
+            j.output_channels = std::iter::once(o)
+                .chain(base.output_channels.iter().copied().filter(|&c| c != o))
+                .collect();
+            j.title = format!("{}, output {}", base.title, o + 1);
+            j
+        })
+        .collect()
+}
+
 /// The signal played: `repeat` sweeps (each with its tail) with `gap`
 /// frames of silence between them. Returns it and the period in frames.
 pub fn program(stimulus: &[f64], repeat: usize, gap: usize) -> (Vec<f64>, usize) {

@@ -289,3 +289,46 @@ fn mistakes_are_refused_with_one_line() {
     let e = refused(t.path(), &["align", "a", "b", "--out", "o"]);
     assert!(e.contains("--overwrite") || e.contains("exists"), "{e}");
 }
+
+#[test]
+fn each_output_refuses_what_it_cannot_do_before_playing() {
+    let t = tempfile::tempdir().unwrap();
+    for (extra, says) in [
+        (vec!["--each-output", "1"], "two or more"),
+        (vec!["--each-output", "1,1"], "twice"),
+        (
+            vec!["--each-output", "1,2", "--output-channel", "2"],
+            "--output-channel",
+        ),
+        (vec!["--each-output", "0,2"], "counts from 1"),
+        (
+            vec!["--each-output", "1,2", "--impedance", "--sense-ohms", "10"],
+            "--impedance",
+        ),
+        (vec!["--each-output", "1,5"], "output"),
+    ] {
+        let mut args = vec!["measure", "--device", "virtual", "--out", "m"];
+        args.extend_from_slice(&extra);
+        let e = refused(t.path(), &args);
+        assert!(e.contains(says), "{extra:?}: {e}");
+        assert!(
+            !t.path().join("m").exists(),
+            "{extra:?}: nothing is written"
+        );
+    }
+    std::fs::create_dir(t.path().join("full")).unwrap();
+    std::fs::write(t.path().join("full/x"), b"x").unwrap();
+    let e = refused(
+        t.path(),
+        &[
+            "measure",
+            "--device",
+            "virtual",
+            "--out",
+            "full",
+            "--each-output",
+            "1,2",
+        ],
+    );
+    assert!(e.contains("not empty"), "{e}");
+}
