@@ -227,10 +227,60 @@ fn png(c: &mut Criterion) {
 #[cfg(not(feature = "plots"))]
 fn png(_: &mut Criterion) {}
 
+/// `gliss align`'s work on two 5 s measurements (the virtual room's
+/// impulse response from a 5 s sweep with a 3 s tail, and the same 2.3 ms
+/// later): the spectra, the arrivals, and the crossover search over
+/// ±20 ms at 1/16 sample for a subwoofer crossover (50–150 Hz) and a
+/// tweeter's (1–4 kHz, the search's finest coarse pass).
+fn align(c: &mut Criterion) {
+    use gliss::analysis::align::{self, Impulse};
+    let design = SweepParams {
+        requested_length_s: 5.0,
+        tail_s: 3.0,
+        ..SweepParams::default()
+    }
+    .design()
+    .expect("a valid sweep");
+    let stimulus = design.generate();
+    let recording = VirtualSystem::default().render(&stimulus, design.fs());
+    let a = analyze(&recording, &stimulus, &design, &AnalysisConfig::default()).unwrap();
+    let h = a.impulse.samples.clone();
+    let fs = design.fs();
+    let first = Impulse {
+        samples: &h,
+        start_s: a.impulse.start_s,
+    };
+    let second = Impulse {
+        samples: &h,
+        start_s: a.impulse.start_s + 0.0023,
+    };
+    let mut g = c.benchmark_group("align_two_5s_measurements");
+    g.sample_size(20);
+    let n = align::common_len(&[h.len()]);
+    g.bench_function("spectra and arrivals", |b| {
+        b.iter(|| {
+            let s1 = align::spectrum(first, fs, n);
+            let s2 = align::spectrum(second, fs, n);
+            let t1 = align::arrival_s(first, fs, (200.0, 2000.0));
+            let t2 = align::arrival_s(second, fs, (200.0, 2000.0));
+            black_box((s1, s2, t1, t2))
+        })
+    });
+    let s1 = align::spectrum(first, fs, n);
+    let s2 = align::spectrum(second, fs, n);
+    for (name, band) in [("50-150 Hz", (50.0, 150.0)), ("1-4 kHz", (1000.0, 4000.0))] {
+        g.bench_function(
+            format!("delay search ±20 ms at 1/16 sample, {name}"),
+            |b| b.iter(|| black_box(align::best_sum(&[vec![&s1, &s2]], band, 0.02, fs).unwrap())),
+        );
+    }
+    g.finish();
+}
+
 criterion_group! {
     name = benches;
     // Criterion's own charts would need a system font; the numbers suffice.
     config = Criterion::default().without_plots();
-    targets = bench, png
+    targets = bench, png, align
 }
 criterion_main!(benches);

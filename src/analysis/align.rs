@@ -1246,6 +1246,65 @@ mod tests {
     }
 
     #[test]
+    fn with_two_positions_the_search_maximises_their_mean() {
+        // the main loudspeaker 1.2 ms later at the second seat than at the first
+        let len = 32_768;
+        let sub = lr4(&delayed_impulse(len, 500.0), 80.0, false);
+        let n = common_len(&[len]);
+        let a = spectrum(
+            Impulse {
+                samples: &sub,
+                start_s: 0.0,
+            },
+            FS,
+            n,
+        );
+        let m1 = lr4(&delayed_impulse(len, 560.0), 80.0, true);
+        let m2 = lr4(&delayed_impulse(len, 560.0 + 57.6), 80.0, true);
+        let b1 = spectrum(
+            Impulse {
+                samples: &m1,
+                start_s: 0.0,
+            },
+            FS,
+            n,
+        );
+        let b2 = spectrum(
+            Impulse {
+                samples: &m2,
+                start_s: 0.0,
+            },
+            FS,
+            n,
+        );
+        let band = (50.0, 150.0);
+        let positions = [vec![&a, &b1], vec![&a, &b2]];
+        let found = best_sum(&positions, band, 0.02, FS).unwrap();
+        // an exhaustive search of the mean over both seats
+        let mut best = f64::NEG_INFINITY;
+        for k in (-(0.02 * FS * 16.0) as i64..=(0.02 * FS * 16.0) as i64).step_by(8) {
+            for inverted in [false, true] {
+                let s = [
+                    Setting::AS_IS,
+                    Setting {
+                        delay_s: k as f64 / (16.0 * FS),
+                        inverted,
+                    },
+                ];
+                best = best.max(sum_level_db(&positions, &s, band).unwrap());
+            }
+        }
+        assert!(
+            found.level_db >= best - 0.05,
+            "{} vs {best}",
+            found.level_db
+        );
+        // the delay lies between the two seats' own best delays
+        let d = found.settings[1].delay_s * FS;
+        assert!(d < -55.0 && d > -122.0, "{d} samples");
+    }
+
+    #[test]
     fn the_predicted_sum_is_the_sum_of_the_responses() {
         let len = 8192;
         let h1 = speaker(&delayed_impulse(len, 300.0));
