@@ -114,6 +114,12 @@ pub fn run(a: Args) -> Result<()> {
     Ok(())
 }
 
+/// `v` rounded to a tenth, a rounded −0.0 written as 0.0.
+fn tenth(v: f64) -> f64 {
+    let r = (v * 10.0).round() / 10.0;
+    if r == 0.0 { 0.0 } else { r }
+}
+
 /// The terminal's summary.
 fn print(out: &str, a: &Alignment, files: &[String]) {
     println!("wrote {out}: {}", files.join(", "));
@@ -161,7 +167,9 @@ fn print(out: &str, a: &Alignment, files: &[String]) {
         }
         println!(
             "  the sum's mean level over the band: {:.1} dB as measured, {:.1} dB with the settings ({:+.1} dB)",
-            x.level_as_is_db, x.level_suggested_db, x.gain_db
+            tenth(x.level_as_is_db),
+            tenth(x.level_suggested_db),
+            x.gain_db
         );
     }
     if a.warnings.0.is_empty() {

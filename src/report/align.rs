@@ -15,6 +15,12 @@ fn ms(v: Option<f64>) -> String {
     v.map_or_else(|| "—".to_string(), |s| format!("{:+.2}", s * 1e3))
 }
 
+/// `v` rounded to a tenth with a rounded −0.0 written as 0.0.
+fn no_minus_zero(v: f64) -> f64 {
+    let r = (v * 10.0).round() / 10.0;
+    if r == 0.0 { 0.0 } else { r }
+}
+
 /// The alignment in one sentence: what to set, and what it gains.
 pub fn answer_line(a: &Alignment) -> String {
     let Some(x) = &a.crossover else {
@@ -51,8 +57,8 @@ pub fn answer_line(a: &Alignment) -> String {
         num(x.band_hz[0], 0),
         num(x.band_hz[1], 0),
         x.gain_db,
-        x.level_as_is_db,
-        x.level_suggested_db,
+        no_minus_zero(x.level_as_is_db),
+        no_minus_zero(x.level_suggested_db),
         if a.positions > 1 {
             format!(", mean over {} positions", a.positions)
         } else {
@@ -126,7 +132,7 @@ fn table(out: &mut String, a: &Alignment, n: &mut Counters) {
     for (i, l) in a.loudspeakers.iter().enumerate() {
         let polarity = match (l.polarity, &l.polarity_withheld) {
             (Some(p), _) => p.words().to_string(),
-            (None, Some(why)) => format!("— ({why})"),
+            (None, Some(_)) => "— (not told: see the warnings)".to_string(),
             (None, None) => "—".to_string(),
         };
         let spread = l.relative_arrival_spread_s.map_or(String::new(), |s| {
