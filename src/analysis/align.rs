@@ -154,24 +154,85 @@ pub fn analytic_in_band(h: &[f64], fs: f64, band: (f64, f64)) -> Vec<Complex<f64
     c
 }
 
-/// The arrival time of `imp` in `band`: the peak of its band-passed
-/// envelope, refined between samples; s after the recording's start. None
-/// for a silent response.
+/// The arrival is the first hump of the band-passed envelope that comes
+/// within this ratio of its highest value (−6 dB, common practice for
+/// telling an arrival from a later build-up).
+pub const ARRIVAL_WITHIN: f64 = 0.5;
+
+/// The arrival time of `imp` in `band`: the first peak of its band-passed
+/// envelope within 6 dB of the highest ([`ARRIVAL_WITHIN`]), refined
+/// between samples; s after the recording's start. None for a silent
+/// response.
 pub fn arrival_s(imp: Impulse<'_>, fs: f64, band: (f64, f64)) -> Option<f64> {
+    arrival(imp, fs, band).map(|a| a.time_s)
+}
+
+/// An arrival read from a band.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Arrival {
+    /// The arrival ([`arrival_s`]), s after the recording's start.
+    pub time_s: f64,
+    /// An earlier hump of the envelope, within 20 dB of the highest but
+    /// more than 6 dB under it, and its level relative to the highest,
+    /// dB: the sound's own arrival, likely, with the arrival read being a
+    /// room's build-up (None when the envelope rises straight to the
+    /// arrival).
+    pub earlier_hump: Option<(f64, f64)>,
+}
+
+/// [`arrival_s`] with the time the envelope first rose.
+pub fn arrival(imp: Impulse<'_>, fs: f64, band: (f64, f64)) -> Option<Arrival> {
     let a = analytic_in_band(imp.samples, fs, band);
     let env: Vec<f64> = a.iter().map(|v| v.norm()).collect();
-    let i = delay::peak_index(&env, 0..env.len())?;
-    if env[i] <= 0.0 || !env[i].is_finite() {
+    let top = delay::peak_index(&env, 0..env.len())?;
+    if env[top] <= 0.0 || !env[top].is_finite() {
         return None;
+    }
+    // the first hump of the envelope that comes within 6 dB of its
+    // highest: in a room a band's envelope can peak later, on the
+    // build-up of a mode, than on the sound's own arrival. The circular
+    // axis starts half-way round, before the response's pre-roll, so
+    // that a band-pass's ringing ahead of the start is passed over too.
+    let n = env.len();
+    let half = env[top] * ARRIVAL_WITHIN;
+    let mut order = (0..n).map(|k| (k + n / 2) % n);
+    let rise = order
+        .clone()
+        .find(|&k| env[k] >= env[top] * 0.1)
+        .unwrap_or(top);
+    let first = order.find(|&k| env[k] >= half).unwrap_or(top);
+    // between the rise and the arrival: a hump the envelope falls from by
+    // more than 2 dB before it rises again
+    let mut earlier = None;
+    let (mut k, mut hump) = (rise, rise);
+    while k != first {
+        if env[k] > env[hump] {
+            hump = k;
+        } else if env[k] < env[hump] * 0.8 && earlier.is_none() {
+            earlier = Some(hump);
+        }
+        k = (k + 1) % n;
+    }
+    let mut i = first;
+    while env[(i + 1) % n] > env[i] {
+        i = (i + 1) % n;
     }
     let re: Vec<f64> = a.iter().map(|v| v.re).collect();
     let im: Vec<f64> = a.iter().map(|v| v.im).collect();
     let mag = |t: f64| delay::interpolate(&re, t).hypot(delay::interpolate(&im, t));
     let t = golden_max(mag, i as f64 - 1.0, i as f64 + 1.0, 60);
-    // a peak in the second half of the circular axis lies before the start
+    // a time in the second half of the circular axis lies before the start
     let n = a.len() as f64;
-    let t = if t > n / 2.0 { t - n } else { t };
-    Some(imp.start_s + t / fs)
+    let unwrap = |t: f64| if t > n / 2.0 { t - n } else { t };
+    Some(Arrival {
+        time_s: imp.start_s + unwrap(t) / fs,
+        earlier_hump: earlier.map(|h| {
+            (
+                imp.start_s + unwrap(h as f64) / fs,
+                20.0 * (env[h] / env[top]).log10(),
+            )
+        }),
+    })
 }
 
 /// The maximum of a unimodal `f` on [a, b] by golden-section search,
@@ -532,6 +593,25 @@ pub fn overlap_band(
     ((band.1 / band.0).log2() >= 1.0 / 3.0 - 1e-9).then_some(band)
 }
 
+/// The level of the first 5 % of an impulse response relative to its
+/// peak, dB, when it is above [`CUT_WITHIN_DB`]: the file begins inside
+/// the response (a measured response's file begins with its pre-roll,
+/// tens of dB down).
+pub fn starts_inside(h: &[f64]) -> Option<f64> {
+    let head = (h.len() / 20).max(1);
+    let peak = h.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    if peak <= 0.0 || h.len() < 40 {
+        return None;
+    }
+    let rms = (h[..head].iter().map(|v| v * v).sum::<f64>() / head as f64).sqrt();
+    let db = 20.0 * (rms / peak).max(1e-300).log10();
+    (db > CUT_WITHIN_DB).then_some(db)
+}
+
+/// See [`starts_inside`], dB (common practice: a file's pre-roll holds
+/// noise and pre-ringing far lower than this).
+pub const CUT_WITHIN_DB: f64 = -30.0;
+
 /// The version of align.json's layout (fields are added, never renamed).
 pub const ALIGN_SCHEMA_VERSION: u32 = 1;
 
@@ -683,6 +763,9 @@ pub struct Alignment {
     pub loudspeakers: Vec<Loudspeaker>,
     /// The best sum through `--crossover` (null when not asked).
     pub crossover: Option<Crossover>,
+    /// Why `crossover` is null although `--crossover` was given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub crossover_withheld: Option<String>,
     /// The curves behind the plots.
     pub curves: Curves,
     /// Warnings: `warnings` (the sentences) and `warning_codes` beside them.
@@ -765,12 +848,41 @@ pub fn align(inputs: &[Input<'_>], fs: f64, o: &Options) -> crate::Result<Alignm
         );
     }
     // arrival, level and polarity per position
-    let arrivals: Vec<Vec<Option<f64>>> = (0..o.positions)
+    let read: Vec<Vec<Option<Arrival>>> = (0..o.positions)
         .map(|p| {
             (0..speakers)
-                .map(|s| arrival_s(inputs[p * speakers + s].impulse, fs, band))
+                .map(|s| arrival(inputs[p * speakers + s].impulse, fs, band))
                 .collect()
         })
+        .collect();
+    for (p, row) in read.iter().enumerate() {
+        for (s, a) in row.iter().enumerate() {
+            if let Some((at, db)) = a
+                .and_then(|a| Some((a.time_s, a.earlier_hump?)))
+                .map(|(t, (h, db))| (t - h, db))
+            {
+                warnings.add(
+                    Code::AlignArrivalDoubtful,
+                    format!(
+                        "{}{}: its envelope over {:.0}–{:.0} Hz has an earlier hump {:.1} ms before the arrival read, {:.0} dB under the highest: the arrival read is likely the room's build-up and the earlier hump the loudspeaker's own sound (common with a subwoofer in a small room); trust the crossover's settings, which rest on the complex sum, rather than the arrival",
+                        o.names[s],
+                        if o.positions > 1 {
+                            format!(" at position {}", p + 1)
+                        } else {
+                            String::new()
+                        },
+                        band.0,
+                        band.1,
+                        at * 1e3,
+                        -db
+                    ),
+                );
+            }
+        }
+    }
+    let arrivals: Vec<Vec<Option<f64>>> = read
+        .iter()
+        .map(|row| row.iter().map(|a| a.map(|a| a.time_s)).collect())
         .collect();
     let mut loudspeakers = Vec::with_capacity(speakers);
     for (s, name) in o.names.iter().enumerate() {
@@ -833,8 +945,32 @@ pub fn align(inputs: &[Input<'_>], fs: f64, o: &Options) -> crate::Result<Alignm
     let grouped: Vec<Vec<&Spectrum>> = (0..o.positions)
         .map(|p| (0..speakers).map(|s| at(p, s)).collect())
         .collect();
+    let cut: Vec<(usize, f64)> = inputs
+        .iter()
+        .enumerate()
+        .filter_map(|(i, x)| Some((i, starts_inside(x.impulse.samples)?)))
+        .collect();
+    for &(i, db) in &cut {
+        warnings.add(
+            Code::AlignImpulseCut,
+            format!(
+                "{}{}: its impulse response begins inside the response (the first 5 % of impulse.wav is only {:.0} dB under its peak): the analysis placed the file's window after the sound's start, as it does when a room's build-up outweighs a subwoofer's direct sound, so the sums would miss that start",
+                o.names[i % speakers],
+                if o.positions > 1 {
+                    format!(" at position {}", i / speakers + 1)
+                } else {
+                    String::new()
+                },
+                -db
+            ),
+        );
+    }
+    let crossover_withheld = (o.crossover.is_some() && !cut.is_empty()).then(|| {
+        "a measurement's impulse response begins inside the response (see the warnings): a sum without its start would be a guess".to_string()
+    });
     let best = o
         .crossover
+        .filter(|_| cut.is_empty())
         .and_then(|c| Some((c, best_sum(&grouped, c, o.max_delay_s, fs)?)));
     let crossover = best.as_ref().map(|(c, b)| {
         let earliest = b
@@ -885,6 +1021,7 @@ pub fn align(inputs: &[Input<'_>], fs: f64, o: &Options) -> crate::Result<Alignm
         loopback_reference,
         loudspeakers,
         crossover,
+        crossover_withheld,
         curves,
         warnings,
     })
@@ -1302,6 +1439,18 @@ mod tests {
         // the delay lies between the two seats' own best delays
         let d = found.settings[1].delay_s * FS;
         assert!(d < -55.0 && d > -122.0, "{d} samples");
+    }
+
+    #[test]
+    fn a_file_that_begins_inside_its_response_is_told_from_one_with_a_pre_roll() {
+        let len = 8192;
+        let h = speaker(&delayed_impulse(len, 1000.0));
+        assert_eq!(starts_inside(&h), None);
+        // the same response with its first 1000 samples and 200 more cut:
+        // the file begins in its decay
+        let decay: Vec<f64> = lr4(&delayed_impulse(len, 300.0), 80.0, false)[400..].to_vec();
+        let db = starts_inside(&decay).expect("begins inside");
+        assert!(db > CUT_WITHIN_DB, "{db}");
     }
 
     #[test]

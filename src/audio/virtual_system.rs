@@ -220,6 +220,17 @@ impl Default for VirtualSystem {
     }
 }
 
+/// Where the monitor stands in the room (x, y, z), metres.
+const MONITOR_AT: (f64, f64, f64) = (1.1, 1.4, 1.2);
+
+/// Where the virtual subwoofer stands: on the floor, 0.6 m behind the
+/// monitor and 0.9 m to its side, metres.
+const SUBWOOFER_AT: (f64, f64, f64) = (0.5, 2.3, 0.3);
+
+/// The virtual subwoofer's crossover: a 4th-order Linkwitz–Riley low-pass
+/// (two 2nd-order Butterworth sections), Hz.
+pub const SUBWOOFER_CROSSOVER_HZ: f64 = 80.0;
+
 /// Adds `gain`·δ(t − `at`) to `buf`, band-limited: a Hann-windowed sinc
 /// over ±16 samples, so that fractional arrival times are exact in phase.
 pub fn add_fractional_impulse(buf: &mut [f64], at: f64, gain: f64) {
@@ -258,10 +269,18 @@ impl VirtualSystem {
     /// reflections of a rectangular room (image sources) and an
     /// exponentially decaying diffuse tail.
     pub fn room_impulse(&self, fs: f64) -> Vec<f64> {
+        self.room_impulse_from(fs, MONITOR_AT, self.seed ^ 0x5eed_7a11)
+    }
+
+    /// The room's impulse response from a source at `src` (metres) to the
+    /// microphone (placed from the monitor's position as
+    /// [`Self::room_impulse`] places it), time zero at the source; its
+    /// direct sound scaled by the monitor's distance over its own (the
+    /// inverse-distance law), its diffuse tail drawn from `tail_seed`.
+    pub fn room_impulse_from(&self, fs: f64, src: (f64, f64, f64), tail_seed: u64) -> Vec<f64> {
         let (lx, ly, lz) = self.room_m;
-        // source and microphone positions in the room, metres
-        let src = (1.1, 1.4, 1.2);
-        let mic = (src.0 + self.distance_m, src.1 + 0.15, 1.25);
+        // the microphone's position in the room, metres
+        let mic = (MONITOR_AT.0 + self.distance_m, MONITOR_AT.1 + 0.15, 1.25);
         let longest = self.reverberation_s.iter().map(|b| b.1).fold(0.0, f64::max);
         let len = ((longest * 1.5 + 0.05) * fs) as usize;
         let mut h = vec![0.0; len];
@@ -269,7 +288,11 @@ impl VirtualSystem {
             ((p.0 - mic.0).powi(2) + (p.1 - mic.1).powi(2) + (p.2 - mic.2).powi(2)).sqrt()
         };
         let direct = dist(src);
-        add_fractional_impulse(&mut h, direct / SPEED_OF_SOUND * fs, 1.0);
+        add_fractional_impulse(
+            &mut h,
+            direct / SPEED_OF_SOUND * fs,
+            dist(MONITOR_AT) / direct,
+        );
         // image sources across the six walls, reflection factor per wall
         let images = [
             ((-src.0, src.1, src.2), 0.8),
@@ -284,13 +307,13 @@ impl VirtualSystem {
             add_fractional_impulse(
                 &mut h,
                 d / SPEED_OF_SOUND * fs,
-                self.reflection_gain * r * direct / d,
+                self.reflection_gain * r * dist(MONITOR_AT) / d,
             );
         }
         // diffuse tail: noise split into octave bands (the band filters of
         // the analysis, which together pass a flat spectrum), each under
         // its own exponential envelope, starting after the first reflections
-        let mut rng = StdRng::seed_from_u64(self.seed ^ 0x5eed_7a11);
+        let mut rng = StdRng::seed_from_u64(tail_seed);
         let normal = Normal::new(0.0, 1.0).expect("unit normal");
         let t0 = (direct / SPEED_OF_SOUND + 0.006) * fs;
         let amp = 10f64.powf(self.tail_level_db / 20.0) * (48_000.0 / fs).sqrt() * 0.05;
@@ -382,6 +405,27 @@ impl VirtualSystem {
 }
 
 impl VirtualSystem {
+    /// What the microphone hears of the subwoofer on output 3 (invented,
+    /// for trying `gliss measure --each-output` and `gliss align` without
+    /// a sound card): the drive through a 4th-order Linkwitz–Riley
+    /// low-pass at [`SUBWOOFER_CROSSOVER_HZ`], the same sensitivity as the
+    /// monitor, from its place in the room, with the interface's latency.
+    /// The monitor's path carries the noise.
+    pub fn render_subwoofer(&self, drive: &[f64], fs: f64) -> Vec<f64> {
+        let mut x = drive.to_vec();
+        let section = Biquad::lowpass(fs, SUBWOOFER_CROSSOVER_HZ, std::f64::consts::FRAC_1_SQRT_2);
+        section.process(&mut x);
+        section.process(&mut x);
+        let room = self.room_impulse_from(fs, SUBWOOFER_AT, self.seed ^ 0x50b_0a5e);
+        let wet = fft::convolve(&x, &room);
+        let gain = 0.5;
+        let mut y = vec![0.0; drive.len()];
+        for (i, v) in y.iter_mut().enumerate().skip(self.latency_samples) {
+            *v = gain * wet.get(i - self.latency_samples).copied().unwrap_or(0.0);
+        }
+        y
+    }
+
     /// The same room after treatment (the demo's invented scenario):
     /// broadband panels at the first reflection points and on the rear
     /// wall, and two corner bass traps. The first reflections fall to a
@@ -441,7 +485,7 @@ impl PlayRecord for VirtualSystem {
     }
 
     fn output_channels(&self) -> usize {
-        2
+        if self.driver.is_some() { 2 } else { 3 }
     }
 
     fn check_rate(&self, rate: u32) -> Result<()> {
@@ -504,7 +548,15 @@ impl PlayRecord for VirtualSystem {
                 }
                 inputs
             }
-            None => vec![self.render(&drive_of(0), fs)],
+            None => {
+                let mut mic = self.render(&drive_of(0), fs);
+                if what.output_channels.contains(&2) {
+                    for (m, v) in mic.iter_mut().zip(self.render_subwoofer(&drive_of(2), fs)) {
+                        *m += v;
+                    }
+                }
+                vec![mic]
+            }
         };
         if self.loopback && self.driver.is_none() {
             let d = drive_of(1);

@@ -151,6 +151,9 @@ fn print(out: &str, a: &Alignment, files: &[String]) {
             l.name
         );
     }
+    if let Some(why) = &a.crossover_withheld {
+        println!("crossover: no settings: {why}");
+    }
     if let Some(x) = &a.crossover {
         println!("crossover {:.0}-{:.0} Hz: set", x.band_hz[0], x.band_hz[1]);
         for (l, s) in a.loudspeakers.iter().zip(&x.suggestions) {

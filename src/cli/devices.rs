@@ -97,7 +97,8 @@ pub fn run(a: Args) -> Result<()> {
     }
     println!(
         "virtual  the built-in simulated system: a loudspeaker in a room on output 1 and input 1, \
-a loopback from output 2 to input 2 (--device virtual; for trying gliss without a sound card)"
+a loopback from output 2 to input 2, a subwoofer on output 3 heard on input 1 (--device virtual; \
+for trying gliss without a sound card)"
     );
     Ok(())
 }

@@ -38,7 +38,8 @@ the interface's own response and latency are then divided out, so a loopback rea
 and 0 s. Without it the measured delay includes the interface's latency.
 
 --device virtual measures the built-in simulated system (nothing is played; input 2 is \
-a loopback from output 2; with --impedance, the simulated system's woofer on the bench \
+a loopback from output 2; output 3 a subwoofer crossed at 80 Hz in the same room, for \
+trying --each-output 1,3 --output-channel 2 --reference 2 and gliss align; with --impedance, the simulated system's woofer on the bench \
 behind the sense resistor, input 1 before it and input 2 across the driver).
 
 --impedance measures a driver's impedance instead (see gliss impedance --help for the \

@@ -179,6 +179,12 @@ codes! {
     /// An alignment: not every measurement rests on a loopback reference,
     /// so the relative times include the interface's latency.
     AlignNoReference = "align-no-reference", Caution, Combining;
+    /// An alignment: a loudspeaker's envelope in the band has a weaker
+    /// hump before the arrival read: likely a room's build-up.
+    AlignArrivalDoubtful = "align-arrival-doubtful", Caution, Combining;
+    /// An alignment: a measurement's impulse response file begins inside
+    /// the response; the sums are withheld.
+    AlignImpulseCut = "align-impulse-cut", Problem, Combining;
     /// An alignment: a loudspeaker's polarity cannot be told over the band.
     AlignPolarityUnclear = "align-polarity-unclear", Note, Combining;
     /// An alignment: the best delay lies at the edge of the search.

@@ -23,6 +23,9 @@ fn no_minus_zero(v: f64) -> f64 {
 
 /// The alignment in one sentence: what to set, and what it gains.
 pub fn answer_line(a: &Alignment) -> String {
+    if let (None, Some(why)) = (&a.crossover, &a.crossover_withheld) {
+        return format!("No settings are suggested: {why}.");
+    }
     let Some(x) = &a.crossover else {
         return format!(
             "{} loudspeakers related to {} over {}–{} Hz; no crossover was given, so no settings are suggested (gliss align --crossover LO,HI).",

@@ -332,3 +332,73 @@ fn each_output_refuses_what_it_cannot_do_before_playing() {
     );
     assert!(e.contains("not empty"), "{e}");
 }
+
+#[test]
+fn the_virtual_subwoofer_is_measured_on_its_own_output_and_its_late_window_is_told() {
+    // the virtual system: the monitor on output 1, the loopback on output
+    // 2, a subwoofer on output 3; one run, a folder per output
+    let t = tempfile::tempdir().unwrap();
+    let out = ok(
+        t.path(),
+        &[
+            "measure",
+            "--device",
+            "virtual",
+            "--each-output",
+            "1,3",
+            "--output-channel",
+            "2",
+            "--reference",
+            "2",
+            "--out",
+            "pair",
+            "--length",
+            "2",
+            "--tail",
+            "1",
+            "--no-plots",
+            "--no-bands",
+        ],
+    );
+    assert!(
+        out.contains("gliss align pair/output-1 pair/output-3"),
+        "{out}"
+    );
+    for o in ["output-1", "output-3"] {
+        let m = json(&t.path().join("pair").join(o).join("manifest.json"));
+        assert_eq!(m["complete"], true);
+        assert_eq!(m["measurement"]["reference_channel"], 2);
+    }
+    let m = json(&t.path().join("pair/output-3/manifest.json"));
+    assert_eq!(
+        m["measurement"]["output_channels"],
+        serde_json::json!([3, 2])
+    );
+    ok(
+        t.path(),
+        &[
+            "align",
+            "pair/output-1",
+            "pair/output-3",
+            "--crossover",
+            "50,150",
+            "--out",
+            "a",
+            "--no-plots",
+        ],
+    );
+    let j = json(&t.path().join("a/align.json"));
+    assert_eq!(j["loopback_reference"], true);
+    // the room's low-frequency build-up outweighs the subwoofer's direct
+    // sound, so its folder's impulse.wav begins after that sound: the
+    // sums are withheld with the reason, never guessed
+    let codes = j["warning_codes"].as_array().unwrap();
+    assert!(codes.iter().any(|c| c == "align-impulse-cut"), "{codes:?}");
+    assert!(j["crossover"].is_null());
+    assert!(
+        j["crossover_withheld"]
+            .as_str()
+            .unwrap()
+            .contains("begins inside")
+    );
+}
