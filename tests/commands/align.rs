@@ -402,3 +402,54 @@ fn the_virtual_subwoofer_is_measured_on_its_own_output_and_its_late_window_is_to
             .contains("begins inside")
     );
 }
+
+#[test]
+fn two_seats_are_given_in_turn_and_their_spread_is_stated() {
+    let t = tempfile::tempdir().unwrap();
+    make_sweep(t.path(), "sweep.wav", &["--length", "2", "--tail", "0.5"]);
+    // seat 1: the second loudspeaker 20 samples after the first; seat 2: 68
+    measure(t.path(), "s1a", |x| speaker(&delayed(x, 30.0)));
+    measure(t.path(), "s1b", |x| speaker(&delayed(x, 50.0)));
+    measure(t.path(), "s2a", |x| speaker(&delayed(x, 30.0)));
+    measure(t.path(), "s2b", |x| speaker(&delayed(x, 98.0)));
+    ok(
+        t.path(),
+        &[
+            "align",
+            "s1a",
+            "s1b",
+            "s2a",
+            "s2b",
+            "--positions",
+            "2",
+            "--names",
+            "left,right",
+            "--crossover",
+            "500,2000",
+            "--out",
+            "o",
+            "--no-plots",
+        ],
+    );
+    let j = json(&t.path().join("o/align.json"));
+    assert_eq!(j["positions"], 2);
+    let l = &j["loudspeakers"][1];
+    assert_eq!(l["name"], "right");
+    assert_eq!(l["arrival_s"].as_array().unwrap().len(), 2);
+    // the mean of 20 and 68 samples, and their spread of 48
+    let mean = l["relative_arrival_s"].as_f64().unwrap() * FS;
+    let spread = l["relative_arrival_spread_s"].as_f64().unwrap() * FS;
+    assert!((mean - 44.0).abs() < 0.05, "{mean}");
+    assert!((spread - 48.0).abs() < 0.05, "{spread}");
+    // the manifest lists the four folders in the order given
+    let m = json(&t.path().join("o/manifest.json"));
+    let folders: Vec<&str> = m["inputs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|i| i["folder"].as_str().unwrap())
+        .collect();
+    assert_eq!(folders, ["s1a", "s1b", "s2a", "s2b"]);
+    // one suggestion per loudspeaker, not per folder
+    assert_eq!(j["crossover"]["suggestions"].as_array().unwrap().len(), 2);
+}
