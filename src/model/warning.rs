@@ -176,6 +176,9 @@ codes! {
     SpeechImpulseOnly = "speech-impulse-only", Note, Other;
     /// The noise rating is withheld: an octave it needs is missing.
     NoiseRatingWithheld = "noise-rating-withheld", Caution, Other;
+    /// A curve of the directivity reduction (ANSI/CTA-2034-A) is withheld:
+    /// a position it needs was not measured.
+    DirectivityWithheld = "directivity-withheld", Caution, Combining;
     /// A warning read from a file written before codes existed.
     Unclassified = "unclassified", Note, Other;
 }
