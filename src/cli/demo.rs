@@ -198,6 +198,7 @@ fn measure_one(
         impulse: false,
         recovered_sweep: None,
         impedance: None,
+        position: None,
     };
     session::run(&job)
 }

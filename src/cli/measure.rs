@@ -127,6 +127,8 @@ pub struct Args {
     pub sweep: SweepArgs,
     #[command(flatten)]
     pub output: OutputArgs,
+    #[command(flatten)]
+    pub orbit: common::OrbitArgs,
     /// Record the room's background noise for S seconds with every output
     /// silent, into --out as a noise folder (as `gliss noise` writes),
     /// instead of measuring with the sweep; needs --calibration. 30 s or
@@ -385,6 +387,12 @@ pub fn run(a: Args) -> Result<()> {
         let highest_out = outputs.iter().copied().max().unwrap_or(0) + 1;
         sound_card(&a, &design, highest_in, highest_out)?
     };
+    let position = a.orbit.position()?;
+    if position.is_some() && (a.noise.is_some() || a.impedance) {
+        return Err(Error::parameter(
+            "--orbit and --angle place a loudspeaker measurement; they do not apply to --noise or --impedance: leave them out",
+        ));
+    }
     if let Some(seconds) = a.noise {
         return record_noise(&a, device.as_mut(), seconds, channel, calibration, &design);
     }
@@ -410,6 +418,7 @@ pub fn run(a: Args) -> Result<()> {
         source_kind: if is_virtual { "virtual" } else { "soundcard" }.into(),
         target,
         impedance,
+        position,
     };
     measure::check(&job, device.as_ref())?;
     // Ctrl-C, SIGTERM and a hangup (ctrlc's "termination" feature) stop

@@ -417,6 +417,11 @@ pub struct Settings {
     /// (its path and the SHA-256 of its manifest).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub noise_folder: Option<String>,
+    /// --orbit and --angle: where around a loudspeaker the measurement was
+    /// taken (`{"orbit": "horizontal", "angle_deg": 30}`), for `gliss
+    /// directivity`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub position: Option<crate::model::Position>,
 }
 
 /// What a file of a folder is.

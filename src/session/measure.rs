@@ -168,6 +168,8 @@ pub struct MeasureJob {
     /// then the input at the amplifier side of the resistor (not a
     /// loopback) and `channel` the input across the driver.
     pub impedance: Option<super::impedance::ImpedanceJob>,
+    /// Where around a loudspeaker it is measured (`--orbit`, `--angle`).
+    pub position: Option<crate::model::Position>,
 }
 
 /// The signal played: `repeat` sweeps (each with its tail) with `gap`
@@ -796,6 +798,7 @@ fn analysis_job(
         impulse: false,
         recovered_sweep: None,
         impedance: m.impedance.clone(),
+        position: m.position,
     })
 }
 
@@ -887,6 +890,7 @@ mod tests {
             source_kind: "virtual".into(),
             target: None,
             impedance: None,
+            position: None,
         }
     }
 

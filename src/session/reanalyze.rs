@@ -157,6 +157,7 @@ pub fn job(dir: &Path, s: &Settings) -> Result<Job> {
         impulse,
         recovered_sweep: None,
         impedance: None,
+        position: manifest.settings.position,
     })
 }
 
