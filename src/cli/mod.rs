@@ -8,6 +8,7 @@ mod common;
 mod compare;
 mod demo;
 mod devices;
+mod directivity;
 mod export;
 mod impedance;
 mod measure;
@@ -67,6 +68,8 @@ enum Command {
     Noise(noise::Args),
     /// Write one curve of a measurement folder (response, distortion, bands, impulse) as CSV or JSON.
     Export(export::Args),
+    /// Measurements at angles around a loudspeaker into polar data, beamwidth and the ANSI/CTA-2034-A spatial averages.
+    Directivity(directivity::Args),
 }
 
 /// Whether the command draws PNG plots unless told not to (--no-plots).
@@ -80,6 +83,7 @@ fn wants_plots(command: &Command) -> bool {
         Command::Average(a) => !a.no_plots,
         Command::Compare(a) => !a.no_plots,
         Command::Noise(a) => !a.no_plots,
+        Command::Directivity(a) => !a.no_plots,
         _ => false,
     }
 }
@@ -151,6 +155,7 @@ pub fn main() -> ExitCode {
         Command::Report(a) => report::run(a),
         Command::Export(a) => export::run(a),
         Command::Noise(a) => noise::run(a),
+        Command::Directivity(a) => directivity::run(a),
     };
     match result {
         Ok(()) => {

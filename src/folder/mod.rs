@@ -20,8 +20,8 @@ use std::path::{Component, Path, PathBuf};
 
 use crate::error::{Error, Result};
 use schema::{
-    Comparison, ComparisonManifest, FileEntry, FileRole, FolderKind, Manifest, NoiseManifest,
-    Results,
+    Comparison, ComparisonManifest, DirectivityFile, DirectivityManifest, FileEntry, FileRole,
+    FolderKind, Manifest, NoiseManifest, Results,
 };
 pub use write::{MeasurementFolder, sha256_hex};
 
@@ -167,6 +167,11 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
     if value.get("kind").and_then(serde_json::Value::as_str) == Some("noise") {
         return Err(Error::input(format!(
             "{name} is a noise folder (gliss noise): it holds the room's background noise, not a measurement; give it to gliss analyze, measure or demo as --noise {name}, and report the room measurement"
+        )));
+    }
+    if value.get("kind").and_then(serde_json::Value::as_str) == Some("directivity") {
+        return Err(Error::input(format!(
+            "{name} is a directivity folder (gliss directivity): it holds a loudspeaker's responses by angle and the spatial averages, not a measurement; report it with gliss report {name}, or give its measurement folders"
         )));
     }
     let not_ours = |e: serde_json::Error| {
@@ -466,5 +471,77 @@ pub fn open_noise(dir: &Path) -> Result<NoiseFolder> {
         manifest_sha256: sha256_hex(&mbytes),
         manifest,
         noise,
+    })
+}
+
+/// A directivity folder, opened and checked.
+#[derive(Debug, Clone)]
+pub struct DirectivityFolder {
+    /// The folder as given.
+    pub dir: PathBuf,
+    /// SHA-256 of its manifest.json.
+    pub manifest_sha256: String,
+    /// The manifest.
+    pub manifest: DirectivityManifest,
+    /// directivity.json.
+    pub directivity: DirectivityFile,
+}
+
+/// Opens a directivity folder (`gliss directivity`): the one reader of
+/// that kind, with the checks of [`open`] — complete, every listed file
+/// matching its SHA-256, directivity.json the one listed.
+pub fn open_directivity(dir: &Path) -> Result<DirectivityFolder> {
+    let name = dir.display();
+    let again = "run gliss directivity again into a new folder";
+    let mpath = dir.join("manifest.json");
+    if !dir.is_dir() || !mpath.is_file() {
+        return Err(Error::input(format!(
+            "{name} is not a directivity folder (no manifest.json); give a folder written by gliss directivity"
+        )));
+    }
+    let mbytes = fs::read(&mpath).map_err(|e| Error::io("read", &mpath, &e))?;
+    let value: serde_json::Value = serde_json::from_slice(&mbytes).map_err(|e| {
+        Error::input(format!(
+            "{name}/manifest.json is not valid JSON ({e}); {again}"
+        ))
+    })?;
+    if value.get("kind").and_then(serde_json::Value::as_str) != Some("directivity") {
+        return Err(Error::input(format!(
+            "{name} is not a directivity folder (its manifest says it is {}); give a folder written by gliss directivity",
+            value
+                .get("kind")
+                .and_then(serde_json::Value::as_str)
+                .unwrap_or("a measurement")
+        )));
+    }
+    if value.get("complete").and_then(serde_json::Value::as_bool) != Some(true) {
+        return Err(Error::input(format!(
+            "{name} is an incomplete directivity folder; {again}"
+        )));
+    }
+    let manifest: DirectivityManifest = serde_json::from_value(value).map_err(|e| {
+        Error::input(format!(
+            "{name}/manifest.json is not a gliss directivity manifest ({e}); {again}"
+        ))
+    })?;
+    let files = check_files(dir, &manifest.files, OpenOptions::default())?;
+    let (bytes, sha) = read_content(dir, "directivity.json", again)?;
+    content_matches(
+        dir,
+        "directivity.json",
+        &sha,
+        &files,
+        "gliss directivity ... --overwrite",
+    )?;
+    let directivity = serde_json::from_slice(&bytes).map_err(|e| {
+        Error::input(format!(
+            "{name}/directivity.json is not a gliss directivity file ({e}); {again}"
+        ))
+    })?;
+    Ok(DirectivityFolder {
+        dir: dir.to_path_buf(),
+        manifest_sha256: sha256_hex(&mbytes),
+        manifest,
+        directivity,
     })
 }

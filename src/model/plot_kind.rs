@@ -48,6 +48,13 @@ pub enum PlotKind {
     Mtf,
     /// A noise folder's background noise per band with its rating.
     Noise,
+    /// A directivity folder's level by angle and frequency, per orbit.
+    PolarMap,
+    /// A directivity folder's polar diagrams at a few frequencies.
+    PolarDiagram,
+    /// A directivity folder's spatial averages (ANSI/CTA-2034-A) with
+    /// their directivity indices.
+    SpatialAverages,
 }
 
 /// What a caption says about the folder it describes. Fill what the
@@ -72,11 +79,11 @@ pub struct CaptionFacts<'a> {
 }
 
 /// The rank after every known plot: where unknown files go in the report.
-pub const UNKNOWN_RANK: usize = 15;
+pub const UNKNOWN_RANK: usize = 18;
 
 impl PlotKind {
     /// Every plot, in the order of the variants.
-    pub const ALL: [PlotKind; 17] = [
+    pub const ALL: [PlotKind; 20] = [
         PlotKind::Response,
         PlotKind::Impulse,
         PlotKind::Phase,
@@ -94,6 +101,9 @@ impl PlotKind {
         PlotKind::Impedance,
         PlotKind::Mtf,
         PlotKind::Noise,
+        PlotKind::PolarMap,
+        PlotKind::PolarDiagram,
+        PlotKind::SpatialAverages,
     ];
 
     /// The plots of one measurement, in the order they are drawn (and
@@ -114,6 +124,13 @@ impl PlotKind {
 
     /// The plots of a noise folder.
     pub const NOISE: [PlotKind; 1] = [PlotKind::Noise];
+
+    /// The plots of a directivity folder, in the order they are drawn.
+    pub const DIRECTIVITY: [PlotKind; 3] = [
+        PlotKind::SpatialAverages,
+        PlotKind::PolarMap,
+        PlotKind::PolarDiagram,
+    ];
 
     /// The plots of an average, in the order they are drawn.
     pub const AVERAGE: [PlotKind; 2] = [PlotKind::AverageResponse, PlotKind::AverageReverberation];
@@ -144,6 +161,9 @@ impl PlotKind {
             PlotKind::Impedance => "plots/impedance.png",
             PlotKind::Mtf => "plots/mtf.png",
             PlotKind::Noise => "plots/noise.png",
+            PlotKind::PolarMap => "plots/polar-map.png",
+            PlotKind::PolarDiagram => "plots/polar-diagram.png",
+            PlotKind::SpatialAverages => "plots/spatial-averages.png",
         }
     }
 
@@ -169,6 +189,9 @@ impl PlotKind {
             PlotKind::Spectrogram => 12,
             PlotKind::Impulse => 13,
             PlotKind::Noise => 14,
+            PlotKind::SpatialAverages => 15,
+            PlotKind::PolarMap => 16,
+            PlotKind::PolarDiagram => 17,
         }
     }
 
@@ -240,6 +263,14 @@ impl PlotKind {
             PlotKind::Impedance => "Electrical impedance of the driver: magnitude in ohms above, phase below, on a log frequency axis; the fitted lumped model dashed over the measurement, the resonance fs marked.".to_string(),
             PlotKind::Mtf => "Modulation transfer function per octave 125 Hz–8 kHz: the modulation depth m that reaches the listener against the modulation frequency (IEC 60268-16), as the STI used it, with each octave's modulation transfer index.".to_string(),
             PlotKind::Noise => "Background noise: the equivalent continuous level per octave and one-third octave, dB SPL, with the noise rating curve it touches.".to_string(),
+            PlotKind::PolarMap => format!(
+                "Polar map: the level relative to on axis against the angle off axis and frequency, for each measured orbit, with contour lines at −3, −6 and −10 dB; {smoothing}."
+            ),
+            PlotKind::PolarDiagram => "Polar diagrams: the level relative to on axis around each measured orbit at a few frequencies, 0° (on axis) at the top.".to_string(),
+            PlotKind::SpatialAverages => format!(
+                "The spatial averages of ANSI/CTA-2034-A: on axis, listening window, early reflections, sound power and the estimated in-room response (left axis), with the sound power and early reflections directivity indices (right axis); {}. Curves the measured angles cannot give are left out and named in the report.",
+                f.magnitude_reference
+            ),
         }
     }
 }

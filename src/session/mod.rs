@@ -2,6 +2,7 @@
 //! All file I/O of an analysis happens here; the stages it calls are pure.
 
 pub mod compare;
+pub mod directivity;
 pub mod export;
 pub mod impedance;
 pub mod measure;
