@@ -88,14 +88,14 @@ pub fn spatial_averages_png(path: &Path, d: &Directivity, reference: &str) -> Re
                     .log_scale()
                     .with_key_points(bold.clone())
                     .with_light_points(light.clone()),
-                top - 50.0..top,
+                top - 70.0..top,
             )?
             .set_secondary_coord((f1..f2).log_scale(), -5.0..45.0);
         styled_mesh(&mut chart)
             .x_label_formatter(&label)
             .y_label_formatter(&|v: &f64| format!("{v:.0}"))
             .x_desc("Frequency (Hz)")
-            .y_desc(format!("Level (dB, {reference})"))
+            .y_desc("Level (dB)")
             .draw()?;
         chart
             .configure_secondary_axes()
@@ -143,7 +143,7 @@ pub fn spatial_averages_png(path: &Path, d: &Directivity, reference: &str) -> Re
         }
         chart
             .configure_series_labels()
-            .position(SeriesLabelPosition::LowerLeft)
+            .position(SeriesLabelPosition::MiddleLeft)
             .label_font((FONT, super::SMALLEST_TEXT_PX))
             .background_style(WHITE.mix(0.85))
             .border_style(RGBColor(200, 200, 200))
@@ -153,6 +153,7 @@ pub fn spatial_averages_png(path: &Path, d: &Directivity, reference: &str) -> Re
             "main plot area",
             format!("{},{},{},{}", xr.start, yr.start, xr.end, yr.end),
         );
+        marks.push("level reference", reference);
         Ok(())
     };
     draw().map_err(plot_error(path))?;
@@ -344,8 +345,8 @@ fn diagram_panel(
         let pts: Vec<(f64, f64)> = (0..=360).map(|a| xy(f64::from(a), r)).collect();
         chart.draw_series(LineSeries::new(pts, grid.stroke_width(1)))?;
         chart.draw_series(std::iter::once(Text::new(
-            format!("{ring_db:.0}"),
-            xy(8.0, r),
+            format!("{ring_db:.0} dB"),
+            xy(-135.0, r),
             (FONT, super::SMALLEST_TEXT_PX)
                 .into_font()
                 .color(&RGBColor(120, 120, 120)),
@@ -357,10 +358,9 @@ fn diagram_panel(
             grid.stroke_width(1),
         ))?;
     }
-    let mut drawn = 0;
     for (n, hz) in DIAGRAM_HZ.iter().enumerate() {
         let Some(i) = nearest(d, *hz) else { continue };
-        let colour = super::theme::ramp(n as f64 / (DIAGRAM_HZ.len() - 1) as f64);
+        let colour = diagram_colour(n);
         let mut pts: Vec<(f64, f64)> = o
             .angles_deg
             .iter()
@@ -370,28 +370,40 @@ fn diagram_panel(
         if o.angles_deg.first() == Some(&-170) && o.angles_deg.last() == Some(&180) {
             pts.push(pts[0]);
         }
-        chart
-            .draw_series(LineSeries::new(pts, colour.stroke_width(3)))?
-            .label(crate::model::units::hz(d.frequency_hz[i]))
-            .legend(move |(x, y)| {
-                PathElement::new(vec![(x, y), (x + 24, y)], colour.stroke_width(3))
-            });
-        drawn += 1;
-    }
-    if drawn > 0 {
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .label_font((FONT, super::SMALLEST_TEXT_PX))
-            .background_style(WHITE.mix(0.85))
-            .border_style(RGBColor(200, 200, 200))
-            .draw()?;
+        chart.draw_series(LineSeries::new(pts, colour.stroke_width(3)))?;
     }
     let (xr, yr) = chart.plotting_area().get_pixel_range();
     marks.push(
         &format!("{} plot area", o.orbit.code()),
         format!("{},{},{},{}", xr.start, yr.start, xr.end, yr.end),
     );
+    Ok(())
+}
+
+fn diagram_colour(n: usize) -> RGBColor {
+    super::theme::ramp(n as f64 / (DIAGRAM_HZ.len() - 1) as f64)
+}
+
+/// The legend of the diagrams in one row: a line of each frequency's
+/// colour and its nominal frequency.
+fn diagram_legend(strip: &super::theme::Area, d: &Directivity) -> DrawResult {
+    let mut x = 40;
+    for (n, hz) in DIAGRAM_HZ.iter().enumerate() {
+        if nearest(d, *hz).is_none() {
+            continue;
+        }
+        let colour = diagram_colour(n);
+        strip.draw(&PathElement::new(
+            vec![(x, 16), (x + 30, 16)],
+            colour.stroke_width(4),
+        ))?;
+        strip.draw(&Text::new(
+            format!("{} Hz", crate::model::units::format_hz(*hz)),
+            (x + 38, 4),
+            (FONT, super::SMALLEST_TEXT_PX).into_font(),
+        ))?;
+        x += 170;
+    }
     Ok(())
 }
 
@@ -405,15 +417,16 @@ pub fn polar_diagram_png(path: &Path, d: &Directivity) -> Result<()> {
         "Polar diagrams: level re on axis (dB), 0° up",
     )?;
     let mut marks = Marks::new();
+    let (top, strip) = body.split_vertically(body.dim_in_pixel().1 - 40);
     let mut draw = || -> DrawResult {
-        let panels = body.split_evenly((1, d.orbits.len().max(1)));
+        let panels = top.split_evenly((1, d.orbits.len().max(1)));
         for (o, area) in d.orbits.iter().zip(&panels) {
             diagram_panel(area, d, o, &mut marks)?;
         }
-        Ok(())
+        diagram_legend(&strip, d)
     };
     draw().map_err(plot_error(path))?;
     root.present().map_err(plot_error(path))?;
-    drop((root, body));
+    drop((root, body, top, strip));
     marks.save(path, &px)
 }
