@@ -110,6 +110,9 @@ fn usage_error_line(rendered: &str) -> String {
             out.push_str(&format!(" (possible values:{v})"));
         } else if let Some(t) = l.strip_prefix("tip:") {
             out.push_str(&format!(" (tip:{t})"));
+        } else if l.starts_with("--") || l.starts_with('<') {
+            // the arguments a "required arguments were not provided" lists
+            out.push_str(&format!(" {l}"));
         }
     }
     out.push_str("; see gliss --help, or gliss COMMAND --help");
@@ -189,6 +192,13 @@ mod tests {
             line.contains("possible values: wrapped, unwrapped"),
             "{line}"
         );
+        let e = Cli::try_parse_from([
+            "gliss", "analyze", "r.wav", "--sweep", "s.wav", "--out", "o", "--orbit", "vertical",
+        ])
+        .unwrap_err();
+        let line = usage_error_line(&e.render().to_string());
+        assert_eq!(line.lines().count(), 1, "{line}");
+        assert!(line.contains("not provided: --angle <DEG>"), "{line}");
         let e = Cli::try_parse_from(["gliss", "analyse"]).unwrap_err();
         let line = usage_error_line(&e.render().to_string());
         assert_eq!(line.lines().count(), 1, "{line}");

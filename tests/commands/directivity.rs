@@ -227,3 +227,194 @@ fn a_baffled_piston_measured_around_reads_its_closed_form() {
     let e = refused(dir, &["average", "set", "horizontal0", "--out", "avg"]);
     assert!(e.contains("is a directivity folder"), "{e}");
 }
+
+/// `gliss directivity` over `folders` into `out`.
+fn directivity_args<'a>(folders: &'a [String], out: &'a str) -> Vec<&'a str> {
+    let mut args = vec!["directivity"];
+    args.extend(folders.iter().map(String::as_str));
+    args.extend(["--out", out, "--no-plots"]);
+    args
+}
+
+#[test]
+fn a_source_without_directivity_on_one_orbit_reads_flat_and_withholds_the_rest() {
+    let t = tempfile::tempdir().unwrap();
+    let dir = t.path();
+    let x = sweep(dir);
+    let horizontal: Vec<(&str, i32)> = (-17..=18).map(|k| ("horizontal", k * 10)).collect();
+    for &(orbit, angle) in &horizontal {
+        record(dir, &format!("{}.wav", folder(orbit, angle)), &x, |_| 0.5);
+    }
+    analyse_all(dir, &horizontal, "-1,20");
+    let names: Vec<String> = horizontal.iter().map(|&(o, a)| folder(o, a)).collect();
+    let out = ok(dir, &directivity_args(&names, "omni"));
+    assert!(
+        out.contains("listening window: withheld (it needs the vertical orbit"),
+        "{out}"
+    );
+    let d = json(&dir.join("omni/directivity.json"));
+    let h = &d["orbits"][0];
+    assert_eq!(h["orbit"], "horizontal");
+    assert_eq!(h["angles_deg"].as_array().unwrap().len(), 36);
+    let worst = h["normalized_db"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .flat_map(|row| {
+            row.as_array()
+                .unwrap()
+                .iter()
+                .map(|v| v.as_f64().unwrap().abs())
+        })
+        .fold(0.0, f64::max);
+    assert!(worst < 0.1, "a flat polar map: {worst} dB");
+    // the curves of the horizontal orbit equal the on-axis response
+    let on = curve(&d, "on_axis").unwrap();
+    for key in ["front_wall_bounce", "side_wall_bounce", "rear_wall_bounce"] {
+        let c = curve(&d, key).unwrap();
+        assert!(c.iter().zip(&on).all(|(a, b)| (a - b).abs() < 0.1), "{key}");
+    }
+    for key in [
+        "listening_window",
+        "sound_power",
+        "sound_power_di",
+        "floor_bounce",
+    ] {
+        assert!(curve(&d, key).is_none(), "{key} needs the vertical orbit");
+        let c = d["curves"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|c| c["curve"] == key)
+            .unwrap();
+        assert!(
+            c["withheld"]["reason"]
+                .as_str()
+                .unwrap()
+                .contains("vertical orbit")
+        );
+    }
+    assert_eq!(d["beamwidth"][1]["beamwidth_deg"], serde_json::Value::Null);
+    assert!(
+        d["warning_codes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .all(|c| c == "directivity-withheld")
+    );
+
+    // a gap wider than the standard's 10°: the side walls and the
+    // beamwidth are withheld with the reason
+    let gapped: Vec<String> = names
+        .iter()
+        .filter(|n| *n != "horizontal50" && *n != "horizontal60")
+        .cloned()
+        .collect();
+    let out = ok(dir, &directivity_args(&gapped, "gapped"));
+    assert!(
+        out.contains("side wall bounce: withheld (it needs 50° horizontal"),
+        "{out}"
+    );
+    assert!(
+        out.contains("horizontal beamwidth: withheld (the horizontal orbit has a gap of 30°"),
+        "{out}"
+    );
+
+    // one angle twice
+    let mut twice = names.clone();
+    twice.push("horizontal30".into());
+    let e = refused(dir, &directivity_args(&twice, "twice"));
+    assert!(e.contains("30° horizontal is measured twice"), "{e}");
+    // no on-axis measurement
+    let e = refused(dir, &directivity_args(&names[..3], "no-axis"));
+    assert!(e.contains("no on-axis (0°) measurement"), "{e}");
+    // another gate at one angle
+    ok(
+        dir,
+        &[
+            "analyze",
+            "horizontal30.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "gate30",
+            "--orbit",
+            "horizontal",
+            "--angle",
+            "30",
+            "--gate",
+            "-1,10",
+            "--smooth",
+            "none",
+            "--no-bands",
+            "--harmonics",
+            "1",
+            "--no-plots",
+        ],
+    );
+    let mut mixed: Vec<String> = names
+        .iter()
+        .filter(|n| *n != "horizontal30")
+        .cloned()
+        .collect();
+    mixed.push("gate30".into());
+    let e = refused(dir, &directivity_args(&mixed, "mixed"));
+    assert!(e.contains("every angle needs the same gate"), "{e}");
+    // a folder that does not say where it was measured
+    ok(
+        dir,
+        &[
+            "analyze",
+            "horizontal0.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "nowhere",
+            "--gate",
+            "-1,20",
+            "--no-bands",
+            "--harmonics",
+            "1",
+            "--no-plots",
+        ],
+    );
+    let e = refused(dir, &directivity_args(&["nowhere".to_string()], "x"));
+    assert!(
+        e.contains("does not say where around the loudspeaker"),
+        "{e}"
+    );
+    // angles outside the standard's range, an orbit without an angle
+    for bad in [
+        ["--orbit", "vertical", "--angle", "-180"],
+        ["--orbit", "vertical", "--angle", "12.5"],
+    ] {
+        let mut args = vec![
+            "analyze",
+            "horizontal0.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "bad",
+        ];
+        args.extend(bad);
+        let e = refused(dir, &args);
+        assert!(e.contains("--angle"), "{e}");
+    }
+    let e = refused(
+        dir,
+        &[
+            "analyze",
+            "horizontal0.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "bad",
+            "--orbit",
+            "vertical",
+        ],
+    );
+    assert!(e.contains("--angle"), "{e}");
+    // nothing is overwritten without --overwrite
+    let e = refused(dir, &directivity_args(&names, "omni"));
+    assert!(e.contains("omni"), "{e}");
+}
