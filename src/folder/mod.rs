@@ -62,6 +62,14 @@ pub enum Content {
         /// The comparison.
         comparison: Box<Comparison>,
     },
+    /// A directivity folder: its manifest and directivity.json (read by
+    /// [`open_directivity`]; [`open`] refuses it by name).
+    Directivity {
+        /// The manifest.
+        manifest: Box<DirectivityManifest>,
+        /// directivity.json.
+        directivity: Box<DirectivityFile>,
+    },
 }
 
 /// A folder gliss wrote, opened and checked.
@@ -368,7 +376,9 @@ impl Folder {
     pub fn measurement(&self, why: &str) -> Result<(&Manifest, &Results)> {
         match &self.content {
             Content::Measurement { manifest, results } => Ok((manifest, results)),
-            Content::Comparison { .. } => Err(self.not_a_measurement(why)),
+            Content::Comparison { .. } | Content::Directivity { .. } => {
+                Err(self.not_a_measurement(why))
+            }
         }
     }
 
@@ -377,15 +387,18 @@ impl Folder {
     pub fn into_measurement(self, why: &str) -> Result<(Manifest, Results)> {
         match self.content {
             Content::Measurement { manifest, results } => Ok((*manifest, *results)),
-            Content::Comparison { .. } => Err(self.not_a_measurement(why)),
+            Content::Comparison { .. } | Content::Directivity { .. } => {
+                Err(self.not_a_measurement(why))
+            }
         }
     }
 
     #[cold]
     fn not_a_measurement(&self, why: &str) -> Error {
         Error::input(format!(
-            "{} is a comparison, not a measurement; {why}",
-            self.dir.display()
+            "{} is {}, not a measurement; {why}",
+            self.dir.display(),
+            self.kind.words()
         ))
     }
 }
@@ -485,6 +498,34 @@ pub struct DirectivityFolder {
     pub manifest: DirectivityManifest,
     /// directivity.json.
     pub directivity: DirectivityFile,
+    /// SHA-256 of directivity.json.
+    pub content_sha256: String,
+    /// Every file the manifest lists, checked against its hash.
+    pub files: Vec<FileCheck>,
+}
+
+/// Opens any folder gliss writes that a report shows: a directivity folder
+/// through [`open_directivity`], every other kind through [`open_with`].
+pub fn open_any(dir: &Path, options: OpenOptions) -> Result<Folder> {
+    let is_directivity = fs::read(dir.join("manifest.json"))
+        .ok()
+        .and_then(|b| serde_json::from_slice::<serde_json::Value>(&b).ok())
+        .is_some_and(|v| v.get("kind").and_then(serde_json::Value::as_str) == Some("directivity"));
+    if !is_directivity {
+        return open_with(dir, options);
+    }
+    let d = open_directivity(dir)?;
+    Ok(Folder {
+        dir: d.dir,
+        kind: FolderKind::Directivity,
+        manifest_sha256: d.manifest_sha256,
+        content_sha256: d.content_sha256,
+        files: d.files,
+        content: Content::Directivity {
+            manifest: Box::new(d.manifest),
+            directivity: Box::new(d.directivity),
+        },
+    })
 }
 
 /// Opens a directivity folder (`gliss directivity`): the one reader of
@@ -543,5 +584,7 @@ pub fn open_directivity(dir: &Path) -> Result<DirectivityFolder> {
         manifest_sha256: sha256_hex(&mbytes),
         manifest,
         directivity,
+        content_sha256: sha,
+        files,
     })
 }

@@ -8,6 +8,7 @@
 pub mod advice;
 pub mod answer;
 pub mod comparison;
+mod directivity;
 pub mod html;
 mod impedance;
 pub mod speech;
@@ -97,7 +98,7 @@ fn is_position(folders: &[Folder], k: usize) -> bool {
         Content::Measurement { manifest, results } => {
             results.average.is_some() && manifest.inputs.iter().any(|i| &i.folder == name)
         }
-        Content::Comparison { .. } => false,
+        Content::Comparison { .. } | Content::Directivity { .. } => false,
     })
 }
 
@@ -107,7 +108,7 @@ fn is_compared(folders: &[Folder], name: &str) -> bool {
         Content::Comparison { comparison, .. } => {
             comparison.inputs.iter().any(|i| i.folder == name)
         }
-        Content::Measurement { .. } => false,
+        Content::Measurement { .. } | Content::Directivity { .. } => false,
     })
 }
 
@@ -185,6 +186,10 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                     figure(&mut out, p, &caption(p, manifest, results), &mut counters);
                 }
             }
+            Content::Directivity {
+                manifest,
+                directivity: file,
+            } => directivity::answer(&mut out, lead, manifest, file, &mut counters),
         }
         out.push_str("</section>\n");
     }
@@ -218,6 +223,14 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 "comparison",
                 comparison_title(manifest, comparison),
                 comparison.warnings.len(),
+            ),
+            Content::Directivity {
+                manifest,
+                directivity: file,
+            } => (
+                "directivity",
+                manifest.source.description.clone(),
+                file.directivity.warnings.len(),
             ),
         };
         let _ = write!(
@@ -272,6 +285,9 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 manifest,
                 comparison,
             } => comparison_section(&mut out, f, manifest, comparison, &mut counters),
+            Content::Directivity {
+                directivity: file, ..
+            } => directivity::section(&mut out, f, file, i == 0, &mut counters),
         }
         out.push_str("</section>\n");
     }
@@ -306,6 +322,9 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 manifest,
                 comparison,
             } => comparison_appendix(&mut out, f, manifest, comparison, &mut counters),
+            Content::Directivity {
+                directivity: file, ..
+            } => directivity::appendix(&mut out, file),
         }
         out.push_str("</div>");
     }

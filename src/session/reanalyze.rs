@@ -59,6 +59,12 @@ pub fn job(dir: &Path, s: &Settings) -> Result<Job> {
                 dir.display()
             )));
         }
+        Content::Directivity { .. } => {
+            return Err(Error::input(format!(
+                "{} is a directivity folder, not a measurement; analyse its measurement folders again and run gliss directivity again",
+                dir.display()
+            )));
+        }
     };
     if manifest.kind == Some(FolderKind::Impedance) {
         return Err(Error::input(format!(

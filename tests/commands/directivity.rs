@@ -303,6 +303,13 @@ fn a_source_without_directivity_on_one_orbit_reads_flat_and_withholds_the_rest()
             .all(|c| c == "directivity-withheld")
     );
 
+    // the report shows the set and says what could not be computed
+    ok(dir, &["report", "omni", "--out", "omni.html"]);
+    let html = std::fs::read_to_string(dir.join("omni.html")).unwrap();
+    assert!(html.contains("Beamwidth and directivity indices by octave"));
+    assert!(html.contains("listening window: it needs the vertical orbit, which is not measured"));
+    assert!(html.contains("0° horizontal"));
+
     // a gap wider than the standard's 10°: the side walls and the
     // beamwidth are withheld with the reason
     let gapped: Vec<String> = names
