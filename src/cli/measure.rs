@@ -380,6 +380,7 @@ pub fn run(a: Args) -> Result<()> {
         Box::new(VirtualSystem {
             loopback: true,
             driver: a.sense_ohms.map(VirtualDriver::kestrel_woofer),
+            position: a.orbit.position()?,
             ..VirtualSystem::default()
         })
     } else {
