@@ -425,3 +425,67 @@ fn a_source_without_directivity_on_one_orbit_reads_flat_and_withholds_the_rest()
     let e = refused(dir, &directivity_args(&names, "omni"));
     assert!(e.contains("omni"), "{e}");
 }
+
+#[test]
+fn the_virtual_loudspeaker_measured_off_axis_records_its_position_and_narrows_at_high_frequencies()
+{
+    let t = tempfile::tempdir().unwrap();
+    let dir = t.path();
+    let measure = |out: &str, angle: &str| {
+        ok(
+            dir,
+            &[
+                "measure",
+                "--device",
+                "virtual",
+                "--profile",
+                "speaker",
+                "--length",
+                "1",
+                "--orbit",
+                "vertical",
+                "--angle",
+                angle,
+                "--gate",
+                "-1,4",
+                "--no-plots",
+                "--out",
+                out,
+            ],
+        )
+    };
+    measure("v0", "0");
+    measure("v60", "60");
+    let m = json(&dir.join("v60/manifest.json"));
+    assert_eq!(m["settings"]["position"]["orbit"], "vertical");
+    assert_eq!(m["settings"]["position"]["angle_deg"], 60);
+    let level = |d: &str, hz: f64| {
+        let r = json(&dir.join(format!("{d}/results.json")));
+        let f = r["response"]["frequency_hz"].as_array().unwrap();
+        let i = f.iter().position(|v| v.as_f64().unwrap() >= hz).unwrap();
+        r["response"]["magnitude_db"][i].as_f64().unwrap()
+    };
+    // 10 kHz at 60° above: the tweeter's piston (radius 3 cm vertically,
+    // ka ≈ 5.5) is more than 10 dB down; 300 Hz: within 1 dB
+    assert!(level("v60", 10_000.0) < level("v0", 10_000.0) - 10.0);
+    assert!((level("v60", 300.0) - level("v0", 300.0)).abs() < 1.0);
+    // and the options that do not place a loudspeaker measurement refuse them
+    let e = refused(
+        dir,
+        &[
+            "measure",
+            "--device",
+            "virtual",
+            "--impedance",
+            "--sense-ohms",
+            "10",
+            "--orbit",
+            "vertical",
+            "--angle",
+            "10",
+            "--out",
+            "z",
+        ],
+    );
+    assert!(e.contains("do not apply to --noise or --impedance"), "{e}");
+}
