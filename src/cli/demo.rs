@@ -391,11 +391,6 @@ fn series_positions() -> Vec<gliss::model::Position> {
     p
 }
 
-/// The folder of a position in a series: "horizontal30", "vertical-20".
-pub fn series_folder(p: gliss::model::Position) -> String {
-    format!("{}{}", p.orbit.code(), p.angle_deg)
-}
-
 /// `gliss demo --directivity`: the Kestrel 5 around both orbits, the
 /// on-axis gate for every angle, the reduction and the report.
 fn directivity_series(a: &Args, bare: &VirtualSystem) -> Result<()> {
@@ -426,7 +421,8 @@ fn directivity_series(a: &Args, bare: &VirtualSystem) -> Result<()> {
     let first = measure_with(
         a,
         &mut system(axis),
-        &a.out.join(series_folder(axis)),
+        &a.out
+            .join(gliss::session::directivity::position_folder(axis)),
         "Kestrel 5 on axis (simulated)",
         plots,
         config.clone(),
@@ -450,7 +446,7 @@ fn directivity_series(a: &Args, bare: &VirtualSystem) -> Result<()> {
                 measure_with(
                     a,
                     &mut system(p),
-                    &a.out.join(series_folder(p)),
+                    &a.out.join(gliss::session::directivity::position_folder(p)),
                     &format!("Kestrel 5 at {} (simulated)", p.words()),
                     plots,
                     config.clone(),
@@ -464,7 +460,7 @@ fn directivity_series(a: &Args, bare: &VirtualSystem) -> Result<()> {
     println!("measured {} positions", positions.len());
     let inputs: Vec<PathBuf> = positions
         .iter()
-        .map(|&p| a.out.join(series_folder(p)))
+        .map(|&p| a.out.join(gliss::session::directivity::position_folder(p)))
         .collect();
     let out = a.out.join("directivity");
     let outcome = gliss::session::directivity::run(&gliss::session::directivity::DirectivityJob {

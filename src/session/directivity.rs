@@ -17,8 +17,8 @@ use crate::folder::schema::{
     Manifest, Results, SCHEMA_VERSION, Source,
 };
 use crate::folder::{self, MeasurementFolder};
-use crate::model::Orbit;
 use crate::model::plot_kind::PLOTS_BUILT;
+use crate::model::{Orbit, Position};
 use crate::session::to_json;
 
 /// What `gliss directivity` hands the library.
@@ -318,4 +318,126 @@ pub fn run(job: &DirectivityJob) -> Result<DirectivityOutcome> {
             .collect(),
         file,
     })
+}
+
+/// The folder of a position inside a series folder: "horizontal30",
+/// "vertical-20".
+pub fn position_folder(p: Position) -> String {
+    format!("{}{}", p.orbit.code(), p.angle_deg)
+}
+
+/// The positions of a guided series on `orbit` at `step_deg`, in the
+/// order a turntable turns: 0°, step, … 180°, then −180° + step … −step.
+/// The step must divide 180° (the standard's is 10°).
+pub fn series_positions(orbit: Orbit, step_deg: i32) -> Result<Vec<Position>> {
+    if !(1..=90).contains(&step_deg) || 180 % step_deg != 0 {
+        return Err(Error::parameter(format!(
+            "--step {step_deg} does not divide the half circle into whole steps; use a step that divides 180, e.g. 10 (the standard's) or 15"
+        )));
+    }
+    let n = 360 / step_deg;
+    Ok((0..n)
+        .map(|k| {
+            let a = k * step_deg;
+            Position {
+                orbit,
+                angle_deg: if a > 180 { a - 360 } else { a },
+            }
+        })
+        .collect())
+}
+
+/// Where a position of a series stands in its series folder.
+#[derive(Debug, Clone, PartialEq)]
+pub enum SeriesState {
+    /// Not measured yet.
+    Missing,
+    /// Measured: a complete measurement folder that records this position
+    /// (for 0° and 180°, on either orbit), with the gate its response was
+    /// taken through.
+    Done {
+        /// The folder.
+        folder: PathBuf,
+        /// Its gate (`None`: none).
+        gate: Option<crate::analysis::gate::GateInfo>,
+    },
+    /// A folder is there but cannot be read as this position's
+    /// measurement (an interrupted one, or another position): the reason.
+    Blocked(String),
+}
+
+/// The state of position `p` in the series folder `dir`: what a resumed
+/// series skips, measures, or stops at.
+pub fn series_state(dir: &Path, p: Position) -> SeriesState {
+    let mut names = vec![position_folder(p)];
+    if p.is_shared() {
+        for o in Orbit::ALL {
+            let twin = position_folder(Position { orbit: o, ..p });
+            if !names.contains(&twin) {
+                names.push(twin);
+            }
+        }
+    }
+    for name in names {
+        let d = dir.join(&name);
+        if !d.exists() {
+            continue;
+        }
+        let read = folder::open(&d).and_then(|f| f.into_measurement("give a measurement"));
+        return match read {
+            Ok((m, r))
+                if m.settings.position == Some(p)
+                    || (p.is_shared()
+                        && m.settings
+                            .position
+                            .is_some_and(|q| q.angle_deg == p.angle_deg)) =>
+            {
+                SeriesState::Done {
+                    folder: d,
+                    gate: r.response.gate,
+                }
+            }
+            Ok(_) => SeriesState::Blocked(format!(
+                "{} holds another measurement than {}; move it away",
+                d.display(),
+                p.words()
+            )),
+            Err(e) => SeriesState::Blocked(format!(
+                "{} cannot be resumed ({}); remove it and run the series again: the other angles are kept",
+                d.display(),
+                e.message()
+            )),
+        };
+    }
+    SeriesState::Missing
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_series_turns_from_on_axis_round_the_circle_once() {
+        let p = series_positions(Orbit::Vertical, 10).unwrap();
+        assert_eq!(p.len(), 36);
+        let a: Vec<i32> = p.iter().map(|p| p.angle_deg).collect();
+        assert_eq!(&a[..3], &[0, 10, 20]);
+        assert_eq!(a[18], 180);
+        assert_eq!(a[19], -170);
+        assert_eq!(*a.last().unwrap(), -10);
+        assert!(series_positions(Orbit::Horizontal, 7).is_err());
+        assert_eq!(position_folder(p[35]), "vertical-10");
+    }
+
+    #[test]
+    fn a_series_folder_with_nothing_in_it_is_missing_every_position() {
+        let t = tempfile::tempdir().unwrap();
+        let p = Position {
+            orbit: Orbit::Horizontal,
+            angle_deg: 30,
+        };
+        assert_eq!(series_state(t.path(), p), SeriesState::Missing);
+        std::fs::create_dir(t.path().join("horizontal30")).unwrap();
+        assert!(matches!(series_state(t.path(), p), SeriesState::Blocked(_)));
+    }
 }

@@ -489,3 +489,58 @@ fn the_virtual_loudspeaker_measured_off_axis_records_its_position_and_narrows_at
     );
     assert!(e.contains("do not apply to --noise or --impedance"), "{e}");
 }
+
+#[test]
+fn a_guided_series_on_the_virtual_device_stops_when_asked_and_resumes_where_it_stopped() {
+    let t = tempfile::tempdir().unwrap();
+    let dir = t.path();
+    let args = [
+        "measure",
+        "--device",
+        "virtual",
+        "--series",
+        "horizontal",
+        "--step",
+        "90",
+        "--length",
+        "1",
+        "--profile",
+        "speaker",
+        "--no-plots",
+        "--out",
+        "series",
+    ];
+    // Enter twice, then q: 0° and 90° measured
+    let o = crate::util::gliss()
+        .current_dir(dir)
+        .args(args)
+        .write_stdin("\n\nq\n")
+        .output()
+        .unwrap();
+    let out = String::from_utf8_lossy(&o.stdout);
+    assert!(o.status.success(), "{out}");
+    assert!(out.contains("stopped: 2 of 4 angles measured"), "{out}");
+    assert!(dir.join("series/horizontal90/manifest.json").is_file());
+    assert!(!dir.join("series/horizontal180").exists());
+    // again: the two measured are kept, the rest measured with the on-axis gate
+    let mut again = args.to_vec();
+    again.push("--no-prompt");
+    let out = ok(dir, &again);
+    assert!(out.contains("0° horizontal already measured"), "{out}");
+    assert!(out.contains("series complete: 4 angles"), "{out}");
+    let gate = |name: &str| {
+        json(&dir.join(format!("series/{name}/results.json")))["response"]["gate"].clone()
+    };
+    for key in ["start_s", "end_s"] {
+        assert_eq!(gate("horizontal0")[key], gate("horizontal-90")[key]);
+    }
+    assert_eq!(gate("horizontal0")["auto"], true);
+    assert_eq!(gate("horizontal-90")["auto"], false);
+    let m = json(&dir.join("series/horizontal-90/manifest.json"));
+    assert_eq!(m["settings"]["position"]["angle_deg"], -90);
+    // a step that does not divide the half circle
+    let mut bad = args.to_vec();
+    bad[6] = "7";
+    let e = refused(dir, &bad);
+    assert!(e.contains("--step 7"), "{e}");
+}
