@@ -540,32 +540,6 @@ fn outcome_measurement(dir: &std::path::Path) -> Option<gliss::folder::schema::M
     gliss::folder::read_manifest(dir).ok()?.measurement
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn the_progress_line_fits_80_columns_and_says_when_there_is_no_signal() {
-        for (done, total, peak) in [
-            (0.0, 9.5, 0.0f32),
-            (123.4, 999.9, 1.0),
-            (5.0, 10.0, 0.01),
-            (5.0, 10.0, 1e-7),
-        ] {
-            let line = meter_line(done, total, peak, true);
-            let width = BAR_COLUMNS + 1 + line.chars().count();
-            assert!(width <= 80, "{width} columns: {line}");
-            // the meter shows its scale
-            assert!(line.contains("-60[") && line.contains("]0"), "{line}");
-        }
-        assert!(meter_line(1.0, 2.0, 0.0, true).contains("no signal"));
-        assert!(meter_line(1.0, 2.0, 1.0, true).ends_with("CLIP"));
-        assert!(meter_line(1.0, 2.0, 0.1, true).contains("-20.0 dBFS"));
-        assert_eq!(peak_words(-240.0), "no signal");
-        assert_eq!(peak_words(-11.94), "-11.9 dBFS");
-    }
-}
-
 /// Asks for the loudspeaker to be turned to `p`; false when the user stops
 /// (q, or the input ends).
 fn ask_turn(p: gliss::model::Position, k: usize, n: usize) -> bool {
@@ -674,4 +648,30 @@ fn series(
         common::show(&base)
     );
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_progress_line_fits_80_columns_and_says_when_there_is_no_signal() {
+        for (done, total, peak) in [
+            (0.0, 9.5, 0.0f32),
+            (123.4, 999.9, 1.0),
+            (5.0, 10.0, 0.01),
+            (5.0, 10.0, 1e-7),
+        ] {
+            let line = meter_line(done, total, peak, true);
+            let width = BAR_COLUMNS + 1 + line.chars().count();
+            assert!(width <= 80, "{width} columns: {line}");
+            // the meter shows its scale
+            assert!(line.contains("-60[") && line.contains("]0"), "{line}");
+        }
+        assert!(meter_line(1.0, 2.0, 0.0, true).contains("no signal"));
+        assert!(meter_line(1.0, 2.0, 1.0, true).ends_with("CLIP"));
+        assert!(meter_line(1.0, 2.0, 0.1, true).contains("-20.0 dBFS"));
+        assert_eq!(peak_words(-240.0), "no signal");
+        assert_eq!(peak_words(-11.94), "-11.9 dBFS");
+    }
 }

@@ -48,7 +48,7 @@ fn caption(p: &super::Plot, file: &DirectivityFile) -> String {
         .map_or_else(|| super::unknown_caption(&p.file), |k| k.caption(&facts))
 }
 
-fn plot<'a>(f: &'a Folder, kind: PlotKind) -> Option<&'a super::Plot> {
+fn plot(f: &Folder, kind: PlotKind) -> Option<&super::Plot> {
     f.plots.iter().find(|p| p.file == kind.file())
 }
 

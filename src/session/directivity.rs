@@ -187,7 +187,7 @@ pub fn reduce_folders(dirs: &[PathBuf]) -> Result<DirectivityFile> {
         schema_version: SCHEMA_VERSION,
         sample_rate_hz: r0.sample_rate_hz,
         smoothing: r0.response.smoothing,
-        gate: r0.response.gate.clone(),
+        gate: r0.response.gate,
         magnitude_reference: r0.response.magnitude_reference.clone(),
         inputs: members
             .into_iter()
