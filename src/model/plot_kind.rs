@@ -351,6 +351,7 @@ mod tests {
             .chain(&PlotKind::AVERAGE)
             .chain(&PlotKind::COMPARISON)
             .chain(&PlotKind::NOISE)
+            .chain(&PlotKind::DIRECTIVITY)
             .copied()
             .collect();
         listed.sort_by_key(|k| PlotKind::ALL.iter().position(|a| a == k));
@@ -375,6 +376,9 @@ mod tests {
             "spectrogram",
             "impulse",
             "noise",
+            "spatial-averages",
+            "polar-map",
+            "polar-diagram",
         ];
         for (i, stem) in order.iter().enumerate() {
             assert_eq!(plot_rank(&format!("plots/{stem}.png")), i, "{stem}");
