@@ -86,7 +86,7 @@ fn read_member(dir: &Path) -> Result<Member> {
 fn gate_words(g: Option<&crate::analysis::gate::GateInfo>) -> String {
     g.map_or_else(
         || "no gate".to_string(),
-        |g| format!("{:.2} to {:.2} ms", g.start_s * 1e3, g.end_s * 1e3),
+        |g| format!("the gate {:.2} to {:.2} ms", g.start_s * 1e3, g.end_s * 1e3),
     )
 }
 
@@ -119,7 +119,7 @@ fn check_set(members: &[Member]) -> Result<()> {
         };
         if !same_gate {
             return Err(Error::input(format!(
-                "{} ({}) was gated {} and {} ({}) {}; every angle needs the same gate: analyse them again with the on-axis gate given as --gate START_MS,END_MS",
+                "{} ({}) was analysed with {} and {} ({}) with {}; every angle needs the same gate: analyse them again with the on-axis gate given as --gate START_MS,END_MS",
                 m.dir.display(),
                 pos(m),
                 gate_words(r.response.gate.as_ref()),

@@ -367,6 +367,73 @@ fn a_source_without_directivity_on_one_orbit_reads_flat_and_withholds_the_rest()
     mixed.push("gate30".into());
     let e = refused(dir, &directivity_args(&mixed, "mixed"));
     assert!(e.contains("every angle needs the same gate"), "{e}");
+    // another sample rate at one angle
+    let s44 = make_sweep(
+        dir,
+        "sweep44.wav",
+        &[
+            "--start", "20", "--end", "20000", "--length", "0.5", "--tail", "0.1", "--rate",
+            "44100",
+        ],
+    );
+    let x44 = read_wav(&s44).1.remove(0);
+    let mut y44 = vec![0.0; FLIGHT];
+    y44.extend_from_slice(&x44);
+    y44.truncate(x44.len());
+    write_wav_f32(&dir.join("h40-44k.wav"), 44_100, &[y44]);
+    ok(
+        dir,
+        &[
+            "analyze",
+            "h40-44k.wav",
+            "--sweep",
+            "sweep44.wav",
+            "--out",
+            "rate40",
+            "--orbit",
+            "horizontal",
+            "--angle",
+            "40",
+            "--gate",
+            "-1,20",
+            "--smooth",
+            "none",
+            "--no-bands",
+            "--harmonics",
+            "1",
+            "--no-plots",
+        ],
+    );
+    let mut rates: Vec<String> = names
+        .iter()
+        .filter(|n| *n != "horizontal40")
+        .cloned()
+        .collect();
+    rates.push("rate40".into());
+    let e = refused(dir, &directivity_args(&rates, "rates"));
+    assert!(
+        e.contains("44100 Hz") && e.contains("one sample rate"),
+        "{e}"
+    );
+    // a re-analysis keeps the position
+    ok(
+        dir,
+        &[
+            "reanalyze",
+            "horizontal-20",
+            "--gate",
+            "-1,20",
+            "--smooth",
+            "none",
+            "--no-bands",
+            "--harmonics",
+            "1",
+            "--no-plots",
+        ],
+    );
+    let m = json(&dir.join("horizontal-20/manifest.json"));
+    assert_eq!(m["settings"]["position"]["angle_deg"], -20);
+    assert_eq!(m["settings"]["position"]["orbit"], "horizontal");
     // a folder that does not say where it was measured
     ok(
         dir,
