@@ -264,11 +264,11 @@ impl PlotKind {
             PlotKind::Mtf => "Modulation transfer function per octave 125 Hz–8 kHz: the modulation depth m that reaches the listener against the modulation frequency (IEC 60268-16), as the STI used it, with each octave's modulation transfer index.".to_string(),
             PlotKind::Noise => "Background noise: the equivalent continuous level per octave and one-third octave, dB SPL, with the noise rating curve it touches.".to_string(),
             PlotKind::PolarMap => format!(
-                "Polar map: the level relative to on axis against the angle off axis and frequency, for each measured orbit, with contour lines at −3, −6 and −10 dB; {smoothing}."
+                "Polar map: the level relative to on axis against the angle off axis and frequency, for each measured orbit, with contour lines at −3, −6 and −10 dB; {smoothing}.{gate}"
             ),
             PlotKind::PolarDiagram => "Polar diagrams: the level relative to on axis around each measured orbit at a few frequencies, 0° (on axis) at the top.".to_string(),
             PlotKind::SpatialAverages => format!(
-                "The spatial averages of ANSI/CTA-2034-A: on axis, listening window, early reflections, sound power and the estimated in-room response (left axis), with the sound power and early reflections directivity indices (right axis); {}. Curves the measured angles cannot give are left out and named in the report.",
+                "The spatial averages of ANSI/CTA-2034-A: on axis, listening window, early reflections, sound power and the estimated in-room response (left axis), with the sound power and early reflections directivity indices (right axis); {}. Curves the measured angles cannot give are left out and named in the report.{gate}",
                 f.magnitude_reference
             ),
         }

@@ -26,11 +26,33 @@ type DrawResult = std::result::Result<(), Box<dyn std::error::Error>>;
 
 /// Draws the plot `kind` of a directivity folder to `path`.
 pub fn draw(kind: PlotKind, path: &Path, f: &DirectivityFile) -> Result<()> {
+    let resolved = f.gate.map(|g| (g.resolution_hz, g.resolved_to_hz));
     match kind {
-        PlotKind::PolarMap => polar_map_png(path, &f.directivity),
+        PlotKind::PolarMap => polar_map_png(path, &f.directivity, resolved),
         PlotKind::PolarDiagram => polar_diagram_png(path, &f.directivity),
-        _ => spatial_averages_png(path, &f.directivity, &f.magnitude_reference),
+        _ => spatial_averages_png(path, &f.directivity, &f.magnitude_reference, resolved),
     }
+}
+
+/// The rectangles that grey out what the gate does not resolve (below
+/// `lo` and above `hi`), from `y0` to `y1`.
+fn unresolved(
+    (f1, f2): (f64, f64),
+    (y0, y1): (f64, f64),
+    resolved: Option<(f64, f64)>,
+) -> Vec<Rectangle<(f64, f64)>> {
+    let Some((lo, hi)) = resolved else {
+        return Vec::new();
+    };
+    let shade = WHITE.mix(0.65).filled();
+    let mut out = Vec::new();
+    if lo > f1 {
+        out.push(Rectangle::new([(f1, y0), (lo.min(f2), y1)], shade));
+    }
+    if hi < f2 {
+        out.push(Rectangle::new([(hi.max(f1), y0), (f2, y1)], shade));
+    }
+    out
 }
 
 fn band(d: &Directivity) -> (f64, f64) {
@@ -58,7 +80,12 @@ const INDICES: [(Curve, RGBColor); 2] = [
 
 /// The standard's level curves on the left axis, its directivity indices
 /// (dashed) on the right; withheld curves are left out.
-pub fn spatial_averages_png(path: &Path, d: &Directivity, reference: &str) -> Result<()> {
+pub fn spatial_averages_png(
+    path: &Path,
+    d: &Directivity,
+    reference: &str,
+    resolved: Option<(f64, f64)>,
+) -> Result<()> {
     let mut px = pixels();
     let (root, body) = canvas(
         &mut px,
@@ -141,6 +168,8 @@ pub fn spatial_averages_png(path: &Path, d: &Directivity, reference: &str) -> Re
                     });
             }
         }
+        // what the gate does not resolve, faded over the curves
+        chart.draw_series(unresolved((f1, f2), (top - 70.0, top), resolved))?;
         chart
             .configure_series_labels()
             .position(SeriesLabelPosition::MiddleLeft)
@@ -181,6 +210,7 @@ fn map_panel(
     area: &super::theme::Area,
     d: &Directivity,
     o: &OrbitResponses,
+    resolved: Option<(f64, f64)>,
     marks: &mut Marks,
 ) -> DrawResult {
     let (f1, f2) = band(d);
@@ -252,6 +282,7 @@ fn map_panel(
                 .map(|(p, q)| PathElement::new(vec![p, q], style)),
         )?;
     }
+    chart.draw_series(unresolved((f1, f2), (a_lo, a_hi), resolved))?;
     styled_mesh(&mut chart)
         .disable_mesh()
         .x_label_formatter(&label)
@@ -270,7 +301,7 @@ fn map_panel(
 
 /// The polar map of each measured orbit, one above the other, with a
 /// colour bar.
-pub fn polar_map_png(path: &Path, d: &Directivity) -> Result<()> {
+pub fn polar_map_png(path: &Path, d: &Directivity, resolved: Option<(f64, f64)>) -> Result<()> {
     let mut px = pixels();
     let (root, body) = canvas(
         &mut px,
@@ -282,7 +313,7 @@ pub fn polar_map_png(path: &Path, d: &Directivity) -> Result<()> {
     let mut draw = || -> DrawResult {
         let panels = main.split_evenly((d.orbits.len().max(1), 1));
         for (o, area) in d.orbits.iter().zip(&panels) {
-            map_panel(area, d, o, &mut marks)?;
+            map_panel(area, d, o, resolved, &mut marks)?;
         }
         let mut chart = ChartBuilder::on(&bar)
             .margin(10)

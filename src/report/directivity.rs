@@ -42,6 +42,7 @@ fn caption(p: &super::Plot, file: &DirectivityFile) -> String {
     let facts = CaptionFacts {
         smoothing: &smoothing,
         magnitude_reference: &file.magnitude_reference,
+        gate_hz: file.gate.map(|g| (g.resolution_hz, g.resolved_to_hz)),
         ..CaptionFacts::default()
     };
     PlotKind::from_file_among(&p.file, &PlotKind::DIRECTIVITY)
