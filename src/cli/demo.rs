@@ -46,7 +46,8 @@ pub struct Args {
     #[arg(long, conflicts_with = "single")]
     pub directivity: bool,
     /// In the story, draw plots only for the averages and the comparison
-    /// (smaller folders; the positions keep their numbers and CSVs).
+    /// (with --directivity: only for the directivity folder); smaller
+    /// folders, the positions keep their numbers and CSVs.
     #[arg(long)]
     pub no_position_plots: bool,
     /// Sample format of the simulated raw recordings: 16, 24 (integer) or
