@@ -278,11 +278,10 @@ pub fn run(job: &DirectivityJob) -> Result<DirectivityOutcome> {
     let folder = MeasurementFolder::check(&job.out, job.overwrite, &[])?;
     folder.create()?;
     let d = &file.directivity;
-    let mut files: Vec<FileEntry> = vec![
-        folder.derived_entry("directivity.json", &to_json(&file)?)?,
-        folder.derived_entry("directivity.csv", &curves_csv(d)?)?,
-        folder.derived_entry("polar.csv", &polar_csv(d)?)?,
-    ];
+    let mut files: Vec<FileEntry> = Vec::new();
+    files.push(folder.derived_entry("directivity.json", &to_json(&file)?)?);
+    files.push(folder.derived_entry("directivity.csv", &curves_csv(d)?)?);
+    files.push(folder.derived_entry("polar.csv", &polar_csv(d)?)?);
     let plots = job.plots && PLOTS_BUILT;
     #[cfg(not(feature = "plots"))]
     let _ = plots;
