@@ -277,10 +277,48 @@ fn align(c: &mut Criterion) {
     g.finish();
 }
 
+/// The directivity reduction of ANSI/CTA-2034-A's 70 positions on a
+/// 48-per-octave grid from 20 Hz to 20 kHz (480 points): the polar data,
+/// both beamwidths, every curve and index (no file I/O; reading the 70
+/// folders is timed as a whole command in docs/performance.md).
+fn directivity(c: &mut Criterion) {
+    use gliss::analysis::directivity::{AngleResponse, Curve, positions, reduce};
+    let f: Vec<f64> = (0..480)
+        .map(|i| 20.0 * 2f64.powf(i as f64 / 48.0))
+        .collect();
+    let set: Vec<(gliss::model::Position, Vec<f64>)> = positions(Curve::SoundPower)
+        .into_iter()
+        .map(|p| {
+            let theta = (p.off_axis_deg() as f64).to_radians().min(1.5);
+            let level = f
+                .iter()
+                .map(|&fi| {
+                    let ka = 2.0 * std::f64::consts::PI * fi / 343.0 * 0.1;
+                    let d = gliss::signal::special::piston_directivity(ka, theta);
+                    20.0 * d.abs().max(0.03).log10()
+                })
+                .collect();
+            (p, level)
+        })
+        .collect();
+    let inputs: Vec<AngleResponse> = set
+        .iter()
+        .map(|(p, m)| AngleResponse {
+            position: *p,
+            magnitude_db: m,
+        })
+        .collect();
+    let mut g = c.benchmark_group("directivity_70");
+    g.bench_function("reduce 70 positions x 480 frequencies", |b| {
+        b.iter(|| reduce(black_box(&f), black_box(&inputs)).unwrap())
+    });
+    g.finish();
+}
+
 criterion_group! {
     name = benches;
     // Criterion's own charts would need a system font; the numbers suffice.
     config = Criterion::default().without_plots();
-    targets = bench, png, align
+    targets = bench, png, align, directivity
 }
 criterion_main!(benches);

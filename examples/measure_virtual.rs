@@ -53,6 +53,7 @@ pub fn main() -> gliss::Result<()> {
         source_kind: "virtual".into(),
         target: None,
         impedance: None,
+        position: None,
     };
     let mut system = VirtualSystem::default();
     // nothing stops this run early; a program would set the flag from its

@@ -16,6 +16,7 @@ pub mod csd;
 pub mod curve_file;
 pub mod decay;
 pub mod delay;
+pub mod directivity;
 pub mod distortion;
 pub mod etc;
 pub mod gate;

@@ -90,6 +90,49 @@ pub struct VirtualSystem {
     /// wired for an impedance measurement (input 1 the amplifier side of
     /// the sense resistor, input 2 across the driver).
     pub driver: Option<VirtualDriver>,
+    /// Where around the loudspeaker the microphone is (`--orbit`,
+    /// `--angle`): the loudspeaker then radiates with its directivity
+    /// ([`loudspeaker_directivity`]); `None`, the default, is on axis and
+    /// renders exactly as before directivity existed.
+    pub position: Option<crate::model::Position>,
+}
+
+/// The Kestrel 5's woofer as a baffled piston, radius in m.
+pub const WOOFER_RADIUS_M: f64 = 0.065;
+/// Its tweeter in a shallow waveguide, as a piston of this radius in the
+/// horizontal plane and a larger (narrower beam) in the vertical, m.
+pub const TWEETER_RADIUS_M: (f64, f64) = (0.018, 0.03);
+/// The crossover frequency, Hz.
+pub const CROSSOVER_HZ: f64 = 2200.0;
+
+/// The Kestrel 5's (invented) far-field pressure at `f_hz` and `p`
+/// relative to on axis, real (no phase of its own): the woofer's and the
+/// tweeter's baffled-piston patterns 2·J1(ka·sin θ)/(ka·sin θ) (Kinsler
+/// et al., ch. 7) weighted by complementary 4th-order crossover gains that
+/// sum to one on axis; behind the baffle the level at 90° falls further
+/// as the cabinet shadows it, less at low frequencies (the cabinet is
+/// small against the wavelength there: the source is nearly omnidirectional
+/// below about 150 Hz).
+pub fn loudspeaker_directivity(f_hz: f64, p: crate::model::Position) -> f64 {
+    use crate::signal::special::piston_directivity;
+    let k = std::f64::consts::TAU * f_hz / SPEED_OF_SOUND;
+    let tweeter = match p.orbit {
+        crate::model::Orbit::Horizontal => TWEETER_RADIUS_M.0,
+        crate::model::Orbit::Vertical => TWEETER_RADIUS_M.1,
+    };
+    let high = 1.0 / (1.0 + (CROSSOVER_HZ / f_hz.max(1e-3)).powi(4));
+    let front = |theta: f64| {
+        (1.0 - high) * piston_directivity(k * WOOFER_RADIUS_M, theta)
+            + high * piston_directivity(k * tweeter, theta)
+    };
+    let off = f64::from(p.off_axis_deg()).to_radians();
+    let right = std::f64::consts::FRAC_PI_2;
+    if off <= right {
+        front(off)
+    } else {
+        let shadow = 1.0 / (1.0 + (f_hz / 150.0).powi(2)).sqrt();
+        front(right) * shadow.powf((off - right) / right)
+    }
 }
 
 /// The Kestrel 5's woofer (virtual, invented) on the bench behind a sense
@@ -216,6 +259,7 @@ impl Default for VirtualSystem {
             loopback: false,
             faults: Faults::default(),
             driver: None,
+            position: None,
         }
     }
 }
@@ -379,6 +423,12 @@ impl VirtualSystem {
         for f in self.loudspeaker_filters(fs) {
             f.process(&mut x);
         }
+        if let Some(p) = self.position {
+            // off axis: the loudspeaker's directivity, as the microphone
+            // at that angle hears it (the room's reflections get the same
+            // filter: gate them off for the loudspeaker's own response)
+            x = crate::signal::fft::zero_phase_filter(&x, fs, |f| loudspeaker_directivity(f, p));
+        }
         let room = self.room_impulse(fs);
         // sensitivity and distance: −6 dB at 1.2 m into the interface
         let gain = 0.5;
@@ -460,7 +510,7 @@ impl PlayRecord for VirtualSystem {
             );
         }
         format!(
-            "virtual system (simulated): Kestrel 5 monitor at {:.1} m in a {:.1} × {:.1} × {:.1} m room, T {:.2} s at 125 Hz to {:.2} s at 4 kHz, latency {} samples{}",
+            "virtual system (simulated): Kestrel 5 monitor at {:.1} m in a {:.1} × {:.1} × {:.1} m room, T {:.2} s at 125 Hz to {:.2} s at 4 kHz, latency {} samples{}{}",
             self.distance_m,
             self.room_m.0,
             self.room_m.1,
@@ -472,7 +522,11 @@ impl PlayRecord for VirtualSystem {
                 "; input 2 is a loopback from output 2"
             } else {
                 ""
-            }
+            },
+            self.position.map_or(String::new(), |p| format!(
+                "; microphone at {} off the loudspeaker's axis",
+                p.words()
+            ))
         )
     }
 
@@ -672,5 +726,34 @@ mod tests {
         let expected =
             (1.2f64.powi(2) + 0.15f64.powi(2) + 0.05f64.powi(2)).sqrt() / 343.0 * 48_000.0;
         assert!((i as f64 - expected).abs() <= 1.0);
+    }
+
+    #[test]
+    fn the_loudspeaker_is_omnidirectional_low_and_narrows_high() {
+        use crate::model::{Orbit, Position};
+        let at = |o, a| Position {
+            orbit: o,
+            angle_deg: a,
+        };
+        // on axis: the crossover's gains sum to one
+        for f in [50.0, 500.0, 2200.0, 10_000.0] {
+            assert!((loudspeaker_directivity(f, at(Orbit::Horizontal, 0)) - 1.0).abs() < 1e-12);
+        }
+        // 60 Hz: within 1 dB all round (ka of the woofer ≈ 0.07; the
+        // cabinet's shadow behind is 0.6 dB there)
+        for a in (-170..=180).step_by(10) {
+            let d = loudspeaker_directivity(60.0, at(Orbit::Horizontal, a)).abs();
+            assert!(20.0 * d.log10() > -1.0, "{a}°: {d}");
+        }
+        // 1.5 kHz, 60° off: the woofer's piston, 2·J1(v)/v with
+        // v = ka·sin 60° (the tweeter's share is 13 % there)
+        let d = loudspeaker_directivity(1500.0, at(Orbit::Horizontal, 60));
+        assert!(d < 0.8 && d > 0.3, "{d}");
+        // 10 kHz: the waveguide is narrower vertically than horizontally
+        let h = loudspeaker_directivity(10_000.0, at(Orbit::Horizontal, 40)).abs();
+        let v = loudspeaker_directivity(10_000.0, at(Orbit::Vertical, 40)).abs();
+        assert!(v < h, "{v} vs {h}");
+        // behind, 4 kHz: well below on axis
+        assert!(loudspeaker_directivity(4000.0, at(Orbit::Horizontal, 180)).abs() < 0.1);
     }
 }

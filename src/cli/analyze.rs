@@ -55,6 +55,8 @@ pub struct Args {
     pub output: OutputArgs,
     #[command(flatten)]
     pub speech: common::SpeechArgs,
+    #[command(flatten)]
+    pub orbit: common::OrbitArgs,
 }
 
 fn read(path: &PathBuf, what: &str) -> Result<(Vec<u8>, wav::WavData)> {
@@ -134,6 +136,7 @@ pub fn run(a: Args) -> Result<()> {
         impulse: false,
         recovered_sweep,
         impedance: None,
+        position: a.orbit.position()?,
     };
     let outcome = session::run(&job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);
@@ -198,6 +201,7 @@ fn run_impulse(
         impulse: true,
         recovered_sweep: None,
         impedance: None,
+        position: a.orbit.position()?,
     };
     let outcome = session::run(&job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);

@@ -118,6 +118,49 @@ impl SpeechArgs {
     }
 }
 
+/// Where around a loudspeaker a measurement is taken (`analyze`,
+/// `measure`), recorded in the manifest for `gliss directivity`.
+#[derive(Debug, Clone, ClapArgs)]
+pub struct OrbitArgs {
+    /// The plane of a directivity measurement around a loudspeaker:
+    /// horizontal or vertical (with --angle). Recorded in the manifest;
+    /// `gliss directivity` gathers the folders of a series.
+    #[arg(long, value_name = "PLANE", requires = "angle")]
+    pub orbit: Option<gliss::model::Orbit>,
+    /// The angle off the loudspeaker's axis on --orbit, whole degrees,
+    /// −170…180 (vertical: positive up, toward the ceiling; horizontal:
+    /// positive to the loudspeaker's left seen from the front).
+    #[arg(
+        long,
+        value_name = "DEG",
+        allow_hyphen_values = true,
+        requires = "orbit"
+    )]
+    pub angle: Option<String>,
+}
+
+impl OrbitArgs {
+    /// The position given, checked.
+    pub fn position(&self) -> Result<Option<gliss::model::Position>> {
+        let (Some(orbit), Some(angle)) = (self.orbit, self.angle.as_deref()) else {
+            return Ok(None);
+        };
+        let deg: i32 = angle.trim().parse().map_err(|_| {
+            Error::parameter(format!(
+                "--angle {angle} is not a whole number of degrees; give e.g. --angle 30 or --angle -20"
+            ))
+        })?;
+        gliss::model::Position::new(orbit, deg)
+            .map(Some)
+            .ok_or_else(|| {
+                Error::parameter(format!(
+                    "--angle {deg} is outside {}",
+                    gliss::model::orbit::angle_range_words()
+                ))
+            })
+    }
+}
+
 /// Analysis and output options of `analyze` and `demo`.
 #[derive(Debug, Clone, ClapArgs)]
 pub struct OutputArgs {

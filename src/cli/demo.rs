@@ -25,7 +25,10 @@ corner bass traps) and measured again at the same positions. gliss averages each
 condition, compares them with the room's volume, and writes the report, judging T30 against \
 the brief of 0.3 to 0.5 s per octave band. DIR gets \
 before-1..3, after-1..3 (measurements), before and after (averages), comparison and \
-report.html. With --single, DIR is one measurement of the bare room at 1.2 m.
+report.html. With --single, DIR is one measurement of the bare room at 1.2 m. With \
+--directivity, DIR gets the Kestrel 5 measured around both orbits at 10° (70 folders \
+horizontal0 … vertical-170, gated before the room's first reflection with the on-axis \
+gate), their reduction in directivity/ (gliss directivity) and report.html.
 
 Everything in the demo is simulated: the Kestrel 5 monitor and the rehearsal room are the \
 project's own inventions, rendered in software, and no sound is played."
@@ -37,8 +40,14 @@ pub struct Args {
     /// One measurement (the bare room at 1.2 m) instead of the story.
     #[arg(long)]
     pub single: bool,
+    /// A directivity series instead of the story: the Kestrel 5 measured
+    /// at 10° steps around both orbits (70 positions) at 1.2 m, reduced
+    /// by gliss directivity and reported.
+    #[arg(long, conflicts_with = "single")]
+    pub directivity: bool,
     /// In the story, draw plots only for the averages and the comparison
-    /// (smaller folders; the positions keep their numbers and CSVs).
+    /// (with --directivity: only for the directivity folder); smaller
+    /// folders, the positions keep their numbers and CSVs.
     #[arg(long)]
     pub no_position_plots: bool,
     /// Sample format of the simulated raw recordings: 16, 24 (integer) or
@@ -137,6 +146,18 @@ fn measure_one(
         // the story's room is a rehearsal room: a room for music
         config.profile = gliss::model::Profile::Music;
     }
+    measure_with(a, system, out, title, plots, config)
+}
+
+/// [`measure_one`] with the analysis settings given.
+fn measure_with(
+    a: &Args,
+    system: &mut VirtualSystem,
+    out: &std::path::Path,
+    title: &str,
+    plots: bool,
+    mut config: gliss::analysis::AnalysisConfig,
+) -> Result<Outcome> {
     config.speech = a.speech.conditions()?;
     let drive = a.output.drive()?;
     let mic = a.output.mic_correction()?;
@@ -198,6 +219,7 @@ fn measure_one(
         impulse: false,
         recovered_sweep: None,
         impedance: None,
+        position: system.position,
     };
     session::run(&job)
 }
@@ -208,6 +230,9 @@ pub fn run(a: Args) -> Result<()> {
         seed: a.seed,
         ..VirtualSystem::default()
     };
+    if a.directivity {
+        return directivity_series(&a, &bare);
+    }
     if a.single {
         let mut system = bare;
         println!("SIMULATED: {}", system.describe());
@@ -345,5 +370,114 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
         println!("  {w}/");
     }
     println!("  report.html  (open it in a browser: the comparison, then each average)");
+    Ok(())
+}
+
+/// The 70 positions of ANSI/CTA-2034-A's orbits at 10°, on axis first.
+fn series_positions() -> Vec<gliss::model::Position> {
+    use gliss::model::{Orbit, Position};
+    let mut p = vec![Position {
+        orbit: Orbit::Horizontal,
+        angle_deg: 0,
+    }];
+    for orbit in Orbit::ALL {
+        for k in -17..=18 {
+            let angle_deg = k * 10;
+            let shared = angle_deg == 0 || (angle_deg == 180 && orbit == Orbit::Vertical);
+            if !shared {
+                p.push(Position { orbit, angle_deg });
+            }
+        }
+    }
+    p
+}
+
+/// `gliss demo --directivity`: the Kestrel 5 around both orbits, the
+/// on-axis gate for every angle, the reduction and the report.
+fn directivity_series(a: &Args, bare: &VirtualSystem) -> Result<()> {
+    use gliss::analysis::gate::Gate;
+    println!(
+        "SIMULATED: the Kestrel 5 monitor (virtual) measured at 1.2 m around both orbits at 10° (70 positions)"
+    );
+    println!("(no sound is played; the recordings are computed)");
+    let mut config = a.output.config()?;
+    if a.output.profile.is_none() {
+        config.profile = gliss::model::Profile::Speaker;
+        if a.output.smooth.is_none() {
+            config.smoothing = gliss::analysis::Smoothing::Fraction(12);
+        }
+        config.bands = false;
+        if a.output.gate.is_none() {
+            config.gate = Some(Gate::Auto);
+        }
+    }
+    let positions = series_positions();
+    let plots = !a.output.no_plots && !a.no_position_plots;
+    let system = |p| VirtualSystem {
+        position: Some(p),
+        ..bare.clone()
+    };
+    // on axis first: its gate, found or given, is every angle's gate
+    let axis = positions[0];
+    let first = measure_with(
+        a,
+        &mut system(axis),
+        &a.out
+            .join(gliss::session::directivity::position_folder(axis)),
+        "Kestrel 5 on axis (simulated)",
+        plots,
+        config.clone(),
+    )?;
+    if let Some(g) = &first.analysis.gate {
+        config.gate = Some(Gate::Fixed {
+            start_s: g.start_s,
+            end_s: g.end_s,
+        });
+        println!(
+            "on axis: gate {:.2} to {:.2} ms, used for every angle",
+            g.start_s * 1e3,
+            g.end_s * 1e3
+        );
+    }
+    let rest: Vec<Result<Outcome>> = {
+        use rayon::prelude::*;
+        positions[1..]
+            .par_iter()
+            .map(|&p| {
+                measure_with(
+                    a,
+                    &mut system(p),
+                    &a.out.join(gliss::session::directivity::position_folder(p)),
+                    &format!("Kestrel 5 at {} (simulated)", p.words()),
+                    plots,
+                    config.clone(),
+                )
+            })
+            .collect()
+    };
+    for r in rest {
+        r?;
+    }
+    println!("measured {} positions", positions.len());
+    let inputs: Vec<PathBuf> = positions
+        .iter()
+        .map(|&p| a.out.join(gliss::session::directivity::position_folder(p)))
+        .collect();
+    let out = a.out.join("directivity");
+    let outcome = gliss::session::directivity::run(&gliss::session::directivity::DirectivityJob {
+        inputs,
+        out: out.clone(),
+        overwrite: a.output.overwrite,
+        plots: !a.output.no_plots,
+        command_line: std::env::args().collect(),
+    })?;
+    super::directivity::print_summary(&common::show(&out), &outcome.file);
+    super::report::run(super::report::Args {
+        dirs: vec![out],
+        out: a.out.join("report.html"),
+        overwrite: a.output.overwrite,
+        show_changed_raw: false,
+        target_rt: None,
+    })?;
     Ok(())
 }

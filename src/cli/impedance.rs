@@ -244,6 +244,7 @@ pub fn run(a: Args) -> Result<()> {
         impulse: false,
         recovered_sweep,
         impedance: Some(imp),
+        position: None,
     };
     let outcome = session::run(&job)?;
     print_summary(&common::show(&a.out), &outcome);

@@ -131,6 +131,22 @@ pub struct Args {
     pub sweep: SweepArgs,
     #[command(flatten)]
     pub output: OutputArgs,
+    #[command(flatten)]
+    pub orbit: common::OrbitArgs,
+    /// A guided directivity series around the loudspeaker on this orbit
+    /// (horizontal or vertical): --out is then the series folder, one
+    /// measurement folder per angle inside it; gliss asks you to turn the
+    /// loudspeaker to each angle in turn (Enter to measure, q to stop)
+    /// and resumes an interrupted series where it stopped.
+    #[arg(long, value_name = "ORBIT", conflicts_with_all = ["orbit", "angle", "noise", "impedance"])]
+    pub series: Option<gliss::model::Orbit>,
+    /// The series' step, degrees (it must divide 180; the standard's is 10).
+    #[arg(long, value_name = "DEG", default_value_t = 10, requires = "series")]
+    pub step: i32,
+    /// Measure each angle of the series without waiting for Enter (a
+    /// turntable turned by other means, or the virtual device).
+    #[arg(long, requires = "series")]
+    pub no_prompt: bool,
     /// Record the room's background noise for S seconds with every output
     /// silent, into --out as a noise folder (as `gliss noise` writes),
     /// instead of measuring with the sweep; needs --calibration. 30 s or
@@ -388,6 +404,7 @@ pub fn run(a: Args) -> Result<()> {
         Box::new(VirtualSystem {
             loopback: true,
             driver: a.sense_ohms.map(VirtualDriver::kestrel_woofer),
+            position: a.orbit.position()?,
             ..VirtualSystem::default()
         })
     } else {
@@ -395,6 +412,12 @@ pub fn run(a: Args) -> Result<()> {
         let highest_out = outputs.iter().chain(&each).copied().max().unwrap_or(0) + 1;
         sound_card(&a, &design, highest_in, highest_out)?
     };
+    let position = a.orbit.position()?;
+    if position.is_some() && (a.noise.is_some() || a.impedance) {
+        return Err(Error::parameter(
+            "--orbit and --angle place a loudspeaker measurement; they do not apply to --noise or --impedance: leave them out",
+        ));
+    }
     if let Some(seconds) = a.noise {
         return record_noise(&a, device.as_mut(), seconds, channel, calibration, &design);
     }
@@ -420,9 +443,13 @@ pub fn run(a: Args) -> Result<()> {
         source_kind: if is_virtual { "virtual" } else { "soundcard" }.into(),
         target,
         impedance,
+        position,
     };
     if !each.is_empty() {
         return measure_each(&a, device.as_mut(), &job, &each, reference_given);
+    }
+    if let Some(orbit) = a.series {
+        return series(&a, orbit, job, device, is_virtual);
     }
     measure::check(&job, device.as_ref())?;
     // Ctrl-C, SIGTERM and a hangup (ctrlc's "termination" feature) stop
@@ -631,6 +658,116 @@ fn record_noise(
 /// The measurement record of the folder just written.
 fn outcome_measurement(dir: &std::path::Path) -> Option<gliss::folder::schema::MeasurementRecord> {
     gliss::folder::read_manifest(dir).ok()?.measurement
+}
+
+/// Asks for the loudspeaker to be turned to `p`; false when the user stops
+/// (q, or the input ends).
+fn ask_turn(p: gliss::model::Position, k: usize, n: usize) -> bool {
+    use std::io::BufRead;
+    println!(
+        "[{k}/{n}] turn the loudspeaker so that the microphone is at {} off its axis, then press Enter (q and Enter to stop)",
+        p.words()
+    );
+    let mut line = String::new();
+    match std::io::stdin().lock().read_line(&mut line) {
+        Ok(0) | Err(_) => false,
+        Ok(_) => !line.trim().eq_ignore_ascii_case("q"),
+    }
+}
+
+/// `gliss measure --series ORBIT`: each angle of the orbit in turn into
+/// its own folder inside --out, skipping the angles already measured
+/// there; the on-axis measurement's gate (found or given) is every
+/// angle's gate.
+fn series(
+    a: &Args,
+    orbit: gliss::model::Orbit,
+    mut job: MeasureJob,
+    mut device: Box<dyn PlayRecord>,
+    is_virtual: bool,
+) -> Result<()> {
+    use gliss::analysis::gate::Gate;
+    use gliss::session::directivity::{
+        SeriesState, position_folder, series_positions, series_state,
+    };
+    let positions = series_positions(orbit, a.step)?;
+    let n = positions.len();
+    let _ = ctrlc::set_handler(|| STOP.store(true, Ordering::SeqCst));
+    println!("{}", device.describe());
+    let mut todo = Vec::new();
+    for &p in &positions {
+        match series_state(&a.out, p) {
+            SeriesState::Missing => todo.push(p),
+            SeriesState::Done { folder, gate } => {
+                if p.angle_deg == 0 {
+                    if let (Some(g), Some(Gate::Auto)) = (gate, job.config.gate) {
+                        job.config.gate = Some(Gate::Fixed {
+                            start_s: g.start_s,
+                            end_s: g.end_s,
+                        });
+                    }
+                }
+                println!(
+                    "{} already measured in {}",
+                    p.words(),
+                    common::show(&folder)
+                );
+            }
+            SeriesState::Blocked(why) => return Err(Error::input(why)),
+        }
+    }
+    let base = a.out.clone();
+    let done_before = n - todo.len();
+    for (k, p) in todo.into_iter().enumerate() {
+        if !a.no_prompt && !ask_turn(p, done_before + k + 1, n) {
+            println!(
+                "stopped: {} of {n} angles measured in {}; run the same command again to go on from {}",
+                done_before + k,
+                common::show(&base),
+                p.words()
+            );
+            return Ok(());
+        }
+        if is_virtual {
+            device = Box::new(VirtualSystem {
+                loopback: true,
+                position: Some(p),
+                ..VirtualSystem::default()
+            });
+        }
+        job.out = base.join(position_folder(p));
+        job.position = Some(p);
+        measure::check(&job, device.as_ref())?;
+        let mut meter = Meter::new(1, f64::from(job.design.params.sample_rate_hz));
+        let outcome = measure::measure(device.as_mut(), &job, &STOP, &mut |q| meter.update(q));
+        meter.bar.finish_and_clear();
+        let outcome = outcome?;
+        println!(
+            "measured {}: {}",
+            p.words(),
+            common::outcome_in_brief(&outcome)
+        );
+        if p.angle_deg == 0 {
+            if let (Some(g), Some(Gate::Auto)) = (&outcome.analysis.gate, job.config.gate) {
+                job.config.gate = Some(Gate::Fixed {
+                    start_s: g.start_s,
+                    end_s: g.end_s,
+                });
+                println!(
+                    "on axis: gate {:.2} to {:.2} ms, used for every angle",
+                    g.start_s * 1e3,
+                    g.end_s * 1e3
+                );
+            }
+        }
+    }
+    println!(
+        "series complete: {n} angles of the {} orbit in {}; reduce them with gliss directivity {}/* --out DIR",
+        orbit.code(),
+        common::show(&base),
+        common::show(&base)
+    );
+    Ok(())
 }
 
 #[cfg(test)]

@@ -9,6 +9,7 @@ mod common;
 mod compare;
 mod demo;
 mod devices;
+mod directivity;
 mod export;
 mod impedance;
 mod measure;
@@ -70,6 +71,8 @@ enum Command {
     Noise(noise::Args),
     /// Write one curve of a measurement folder (response, distortion, bands, impulse) as CSV or JSON.
     Export(export::Args),
+    /// Measurements at angles around a loudspeaker into polar data, beamwidth and the ANSI/CTA-2034-A spatial averages.
+    Directivity(directivity::Args),
 }
 
 /// Whether the command draws PNG plots unless told not to (--no-plots).
@@ -84,6 +87,7 @@ fn wants_plots(command: &Command) -> bool {
         Command::Compare(a) => !a.no_plots,
         Command::Noise(a) => !a.no_plots,
         Command::Align(a) => !a.no_plots,
+        Command::Directivity(a) => !a.no_plots,
         _ => false,
     }
 }
@@ -110,6 +114,9 @@ fn usage_error_line(rendered: &str) -> String {
             out.push_str(&format!(" (possible values:{v})"));
         } else if let Some(t) = l.strip_prefix("tip:") {
             out.push_str(&format!(" (tip:{t})"));
+        } else if l.starts_with("--") || l.starts_with('<') {
+            // the arguments a "required arguments were not provided" lists
+            out.push_str(&format!(" {l}"));
         }
     }
     out.push_str("; see gliss --help, or gliss COMMAND --help");
@@ -156,6 +163,7 @@ pub fn main() -> ExitCode {
         Command::Export(a) => export::run(a),
         Command::Noise(a) => noise::run(a),
         Command::Align(a) => align::run(a),
+        Command::Directivity(a) => directivity::run(a),
     };
     match result {
         Ok(()) => {
@@ -189,6 +197,13 @@ mod tests {
             line.contains("possible values: wrapped, unwrapped"),
             "{line}"
         );
+        let e = Cli::try_parse_from([
+            "gliss", "analyze", "r.wav", "--sweep", "s.wav", "--out", "o", "--orbit", "vertical",
+        ])
+        .unwrap_err();
+        let line = usage_error_line(&e.render().to_string());
+        assert_eq!(line.lines().count(), 1, "{line}");
+        assert!(line.contains("not provided: --angle <DEG>"), "{line}");
         let e = Cli::try_parse_from(["gliss", "analyse"]).unwrap_err();
         let line = usage_error_line(&e.render().to_string());
         assert_eq!(line.lines().count(), 1, "{line}");

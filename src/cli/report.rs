@@ -134,7 +134,7 @@ fn target_rt(arg: &str) -> Result<gliss::analysis::rt_target::RtTarget> {
 /// raw files changed (unless `show_changed_raw`: then the report shows the
 /// damage).
 pub fn read_folder(dir: &Path, show_changed_raw: bool) -> Result<Folder> {
-    let f = gliss::folder::open_with(
+    let f = gliss::folder::open_any(
         dir,
         gliss::folder::OpenOptions {
             allow_changed_raw: show_changed_raw,

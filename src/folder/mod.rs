@@ -20,8 +20,8 @@ use std::path::{Component, Path, PathBuf};
 
 use crate::error::{Error, Result};
 use schema::{
-    AlignManifest, Comparison, ComparisonManifest, FileEntry, FileRole, FolderKind, Manifest,
-    NoiseManifest, Results,
+    AlignManifest, Comparison, ComparisonManifest, DirectivityFile, DirectivityManifest, FileEntry,
+    FileRole, FolderKind, Manifest, NoiseManifest, Results,
 };
 pub use write::{MeasurementFolder, sha256_hex};
 
@@ -68,6 +68,14 @@ pub enum Content {
         manifest: Box<AlignManifest>,
         /// align.json.
         alignment: Box<crate::analysis::align::Alignment>,
+    },
+    /// A directivity folder: its manifest and directivity.json (read by
+    /// [`open_directivity`]; [`open`] refuses it by name).
+    Directivity {
+        /// The manifest.
+        manifest: Box<DirectivityManifest>,
+        /// directivity.json.
+        directivity: Box<DirectivityFile>,
     },
 }
 
@@ -178,6 +186,11 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
     }
     if value.get("kind").and_then(serde_json::Value::as_str) == Some("align") {
         return open_align(dir, value, &mbytes, options);
+    }
+    if value.get("kind").and_then(serde_json::Value::as_str) == Some("directivity") {
+        return Err(Error::input(format!(
+            "{name} is a directivity folder (gliss directivity): it holds a loudspeaker's responses by angle and the spatial averages, not a measurement; report it with gliss report {name}, or give its measurement folders"
+        )));
     }
     let not_ours = |e: serde_json::Error| {
         Error::input(format!(
@@ -425,13 +438,10 @@ impl Folder {
 
     #[cold]
     fn not_a_measurement(&self, why: &str) -> Error {
-        let what = match self.content {
-            Content::Align { .. } => "an alignment (gliss align)",
-            _ => "a comparison",
-        };
         Error::input(format!(
-            "{} is {what}, not a measurement; {why}",
-            self.dir.display()
+            "{} is {}, not a measurement; {why}",
+            self.dir.display(),
+            self.kind.words()
         ))
     }
 }
@@ -517,5 +527,107 @@ pub fn open_noise(dir: &Path) -> Result<NoiseFolder> {
         manifest_sha256: sha256_hex(&mbytes),
         manifest,
         noise,
+    })
+}
+
+/// A directivity folder, opened and checked.
+#[derive(Debug, Clone)]
+pub struct DirectivityFolder {
+    /// The folder as given.
+    pub dir: PathBuf,
+    /// SHA-256 of its manifest.json.
+    pub manifest_sha256: String,
+    /// The manifest.
+    pub manifest: DirectivityManifest,
+    /// directivity.json.
+    pub directivity: DirectivityFile,
+    /// SHA-256 of directivity.json.
+    pub content_sha256: String,
+    /// Every file the manifest lists, checked against its hash.
+    pub files: Vec<FileCheck>,
+}
+
+/// Opens any folder gliss writes that a report shows: a directivity folder
+/// through [`open_directivity`], every other kind through [`open_with`].
+pub fn open_any(dir: &Path, options: OpenOptions) -> Result<Folder> {
+    let is_directivity = fs::read(dir.join("manifest.json"))
+        .ok()
+        .and_then(|b| serde_json::from_slice::<serde_json::Value>(&b).ok())
+        .is_some_and(|v| v.get("kind").and_then(serde_json::Value::as_str) == Some("directivity"));
+    if !is_directivity {
+        return open_with(dir, options);
+    }
+    let d = open_directivity(dir)?;
+    Ok(Folder {
+        dir: d.dir,
+        kind: FolderKind::Directivity,
+        manifest_sha256: d.manifest_sha256,
+        content_sha256: d.content_sha256,
+        files: d.files,
+        content: Content::Directivity {
+            manifest: Box::new(d.manifest),
+            directivity: Box::new(d.directivity),
+        },
+    })
+}
+
+/// Opens a directivity folder (`gliss directivity`): the one reader of
+/// that kind, with the checks of [`open`] — complete, every listed file
+/// matching its SHA-256, directivity.json the one listed.
+pub fn open_directivity(dir: &Path) -> Result<DirectivityFolder> {
+    let name = dir.display();
+    let again = "run gliss directivity again into a new folder";
+    let mpath = dir.join("manifest.json");
+    if !dir.is_dir() || !mpath.is_file() {
+        return Err(Error::input(format!(
+            "{name} is not a directivity folder (no manifest.json); give a folder written by gliss directivity"
+        )));
+    }
+    let mbytes = fs::read(&mpath).map_err(|e| Error::io("read", &mpath, &e))?;
+    let value: serde_json::Value = serde_json::from_slice(&mbytes).map_err(|e| {
+        Error::input(format!(
+            "{name}/manifest.json is not valid JSON ({e}); {again}"
+        ))
+    })?;
+    if value.get("kind").and_then(serde_json::Value::as_str) != Some("directivity") {
+        return Err(Error::input(format!(
+            "{name} is not a directivity folder (its manifest says it is {}); give a folder written by gliss directivity",
+            value
+                .get("kind")
+                .and_then(serde_json::Value::as_str)
+                .unwrap_or("a measurement")
+        )));
+    }
+    if value.get("complete").and_then(serde_json::Value::as_bool) != Some(true) {
+        return Err(Error::input(format!(
+            "{name} is an incomplete directivity folder; {again}"
+        )));
+    }
+    let manifest: DirectivityManifest = serde_json::from_value(value).map_err(|e| {
+        Error::input(format!(
+            "{name}/manifest.json is not a gliss directivity manifest ({e}); {again}"
+        ))
+    })?;
+    let files = check_files(dir, &manifest.files, OpenOptions::default())?;
+    let (bytes, sha) = read_content(dir, "directivity.json", again)?;
+    content_matches(
+        dir,
+        "directivity.json",
+        &sha,
+        &files,
+        "gliss directivity ... --overwrite",
+    )?;
+    let directivity = serde_json::from_slice(&bytes).map_err(|e| {
+        Error::input(format!(
+            "{name}/directivity.json is not a gliss directivity file ({e}); {again}"
+        ))
+    })?;
+    Ok(DirectivityFolder {
+        dir: dir.to_path_buf(),
+        manifest_sha256: sha256_hex(&mbytes),
+        manifest,
+        directivity,
+        content_sha256: sha,
+        files,
     })
 }

@@ -39,6 +39,9 @@ pub enum FolderKind {
     /// polarity and the best sum through a crossover (align.json, `gliss
     /// align`).
     Align,
+    /// Measurements around a loudspeaker reduced to its directivity
+    /// (directivity.json, `gliss directivity`).
+    Directivity,
 }
 
 impl FolderKind {
@@ -51,6 +54,7 @@ impl FolderKind {
             FolderKind::Impedance => "an impedance measurement",
             FolderKind::Noise => "a noise measurement",
             FolderKind::Align => "an alignment",
+            FolderKind::Directivity => "a directivity reduction",
         }
     }
 }
@@ -422,6 +426,11 @@ pub struct Settings {
     /// (its path and the SHA-256 of its manifest).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub noise_folder: Option<String>,
+    /// --orbit and --angle: where around a loudspeaker the measurement was
+    /// taken (`{"orbit": "horizontal", "angle_deg": 30}`), for `gliss
+    /// directivity`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub position: Option<crate::model::Position>,
 }
 
 /// What a file of a folder is.
@@ -701,6 +710,63 @@ pub struct AlignManifest {
     pub inputs: Vec<InputRecord>,
     /// Every file of the folder with its SHA-256.
     pub files: Vec<FileEntry>,
+}
+
+/// The manifest of a directivity folder (`gliss directivity`): the
+/// measurement folders it reduced, with their hashes, and its files.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct DirectivityManifest {
+    /// Layout version.
+    pub schema_version: u32,
+    /// "gliss".
+    pub tool: String,
+    /// Version of gliss that wrote the folder.
+    pub tool_version: String,
+    /// When (UTC, RFC 3339).
+    pub created_utc: String,
+    /// Always true once written.
+    pub complete: bool,
+    /// Always `directivity`.
+    pub kind: FolderKind,
+    /// The command line that made it.
+    pub command_line: Vec<String>,
+    /// kind "directivity" and a description.
+    pub source: Source,
+    /// The measurement folders reduced, with their hashes.
+    pub inputs: Vec<InputRecord>,
+    /// Every file of the folder with its SHA-256.
+    pub files: Vec<FileEntry>,
+}
+
+/// One measurement of a directivity set: its folder and position.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct DirectivityInput {
+    /// Where it was measured.
+    pub position: crate::model::Position,
+    /// The folder and its hashes.
+    #[serde(flatten)]
+    pub folder: InputRecord,
+}
+
+/// directivity.json (schema version 1): what the set was and its
+/// reduction ([`crate::analysis::directivity::Directivity`]).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct DirectivityFile {
+    /// Layout version.
+    pub schema_version: u32,
+    /// Sample rate of every input, Hz.
+    pub sample_rate_hz: u32,
+    /// The smoothing of every input's response.
+    pub smoothing: Smoothing,
+    /// The gate every input's response was taken through (`null`: none).
+    pub gate: Option<GateInfo>,
+    /// What 0 dB means in `level_db` (the inputs' reference).
+    pub magnitude_reference: String,
+    /// The measurements, in the order given.
+    pub inputs: Vec<DirectivityInput>,
+    /// The reduction: responses by angle, beamwidths, curves, warnings.
+    #[serde(flatten)]
+    pub directivity: crate::analysis::directivity::Directivity,
 }
 
 fn schema_version() -> u32 {

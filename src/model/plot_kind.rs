@@ -53,6 +53,13 @@ pub enum PlotKind {
     AlignSum,
     /// An alignment's phases through the crossover band.
     AlignPhase,
+    /// A directivity folder's level by angle and frequency, per orbit.
+    PolarMap,
+    /// A directivity folder's polar diagrams at a few frequencies.
+    PolarDiagram,
+    /// A directivity folder's spatial averages (ANSI/CTA-2034-A) with
+    /// their directivity indices.
+    SpatialAverages,
 }
 
 /// What a caption says about the folder it describes. Fill what the
@@ -77,11 +84,11 @@ pub struct CaptionFacts<'a> {
 }
 
 /// The rank after every known plot: where unknown files go in the report.
-pub const UNKNOWN_RANK: usize = 17;
+pub const UNKNOWN_RANK: usize = 20;
 
 impl PlotKind {
     /// Every plot, in the order of the variants.
-    pub const ALL: [PlotKind; 19] = [
+    pub const ALL: [PlotKind; 22] = [
         PlotKind::Response,
         PlotKind::Impulse,
         PlotKind::Phase,
@@ -101,6 +108,9 @@ impl PlotKind {
         PlotKind::Noise,
         PlotKind::AlignSum,
         PlotKind::AlignPhase,
+        PlotKind::PolarMap,
+        PlotKind::PolarDiagram,
+        PlotKind::SpatialAverages,
     ];
 
     /// The plots of one measurement, in the order they are drawn (and
@@ -124,6 +134,12 @@ impl PlotKind {
 
     /// The plots of an alignment folder.
     pub const ALIGN: [PlotKind; 2] = [PlotKind::AlignSum, PlotKind::AlignPhase];
+    /// The plots of a directivity folder, in the order they are drawn.
+    pub const DIRECTIVITY: [PlotKind; 3] = [
+        PlotKind::SpatialAverages,
+        PlotKind::PolarMap,
+        PlotKind::PolarDiagram,
+    ];
 
     /// The plots of an average, in the order they are drawn.
     pub const AVERAGE: [PlotKind; 2] = [PlotKind::AverageResponse, PlotKind::AverageReverberation];
@@ -156,6 +172,9 @@ impl PlotKind {
             PlotKind::Noise => "plots/noise.png",
             PlotKind::AlignSum => "plots/align-sum.png",
             PlotKind::AlignPhase => "plots/align-phase.png",
+            PlotKind::PolarMap => "plots/polar-map.png",
+            PlotKind::PolarDiagram => "plots/polar-diagram.png",
+            PlotKind::SpatialAverages => "plots/spatial-averages.png",
         }
     }
 
@@ -181,8 +200,11 @@ impl PlotKind {
             PlotKind::Spectrogram => 12,
             PlotKind::Impulse => 13,
             PlotKind::Noise => 14,
-            PlotKind::AlignSum => 15,
-            PlotKind::AlignPhase => 16,
+            PlotKind::SpatialAverages => 15,
+            PlotKind::PolarMap => 16,
+            PlotKind::PolarDiagram => 17,
+            PlotKind::AlignSum => 18,
+            PlotKind::AlignPhase => 19,
         }
     }
 
@@ -256,6 +278,14 @@ impl PlotKind {
             PlotKind::Noise => "Background noise: the equivalent continuous level per octave and one-third octave, dB SPL, with the noise rating curve it touches.".to_string(),
             PlotKind::AlignSum => format!("Each loudspeaker's level and their complex sum at the listening position(s), as measured and with the suggested delays and polarities, 1/24-octave power smoothing; 0 dB is {}'s highest level in the plot; the crossover band between the grey lines.", f.reference),
             PlotKind::AlignPhase => format!("Each loudspeaker's phase through the crossover band, {}'s arrival taken out of all, as measured (solid), and each of the others with its suggested delay and polarity relative to it (dashed, lighter): where the curves meet, the loudspeakers add.", f.reference),
+            PlotKind::PolarMap => format!(
+                "Polar map: the level relative to on axis against the angle off axis and frequency, for each measured orbit, with contour lines at −3, −6 and −10 dB; {smoothing}.{gate}"
+            ),
+            PlotKind::PolarDiagram => "Polar diagrams: the level relative to on axis around each measured orbit at a few frequencies, 0° (on axis) at the top.".to_string(),
+            PlotKind::SpatialAverages => format!(
+                "The spatial averages of ANSI/CTA-2034-A: on axis, listening window, early reflections, sound power and the estimated in-room response (left axis), with the sound power and early reflections directivity indices (right axis); {}. Curves the measured angles cannot give are left out and named in the report.{gate}",
+                f.magnitude_reference
+            ),
         }
     }
 }
@@ -338,6 +368,7 @@ mod tests {
             .chain(&PlotKind::AVERAGE)
             .chain(&PlotKind::COMPARISON)
             .chain(&PlotKind::NOISE)
+            .chain(&PlotKind::DIRECTIVITY)
             .chain(&PlotKind::ALIGN)
             .copied()
             .collect();
@@ -363,6 +394,9 @@ mod tests {
             "spectrogram",
             "impulse",
             "noise",
+            "spatial-averages",
+            "polar-map",
+            "polar-diagram",
             "align-sum",
             "align-phase",
         ];

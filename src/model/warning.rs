@@ -189,6 +189,9 @@ codes! {
     AlignPolarityUnclear = "align-polarity-unclear", Note, Combining;
     /// An alignment: the best delay lies at the edge of the search.
     AlignSearchEdge = "align-search-edge", Caution, Combining;
+    /// A curve of the directivity reduction (ANSI/CTA-2034-A) is withheld:
+    /// a position it needs was not measured.
+    DirectivityWithheld = "directivity-withheld", Caution, Combining;
     /// A warning read from a file written before codes existed.
     Unclassified = "unclassified", Note, Other;
 }

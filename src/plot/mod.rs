@@ -32,6 +32,7 @@ mod compare_response;
 mod compare_reverberation;
 mod decay;
 mod decay_spectrum;
+pub mod directivity;
 mod distortion;
 mod group_delay;
 mod impedance;

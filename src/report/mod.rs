@@ -9,6 +9,7 @@ pub mod advice;
 pub mod align;
 pub mod answer;
 pub mod comparison;
+mod directivity;
 pub mod html;
 mod impedance;
 pub mod speech;
@@ -98,7 +99,7 @@ fn is_position(folders: &[Folder], k: usize) -> bool {
         Content::Measurement { manifest, results } => {
             results.average.is_some() && manifest.inputs.iter().any(|i| &i.folder == name)
         }
-        Content::Comparison { .. } | Content::Align { .. } => false,
+        Content::Comparison { .. } | Content::Align { .. } | Content::Directivity { .. } => false,
     })
 }
 
@@ -108,7 +109,7 @@ fn is_compared(folders: &[Folder], name: &str) -> bool {
         Content::Comparison { comparison, .. } => {
             comparison.inputs.iter().any(|i| i.folder == name)
         }
-        Content::Measurement { .. } | Content::Align { .. } => false,
+        Content::Measurement { .. } | Content::Align { .. } | Content::Directivity { .. } => false,
     })
 }
 
@@ -190,6 +191,10 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 manifest,
                 alignment,
             } => align::answer(&mut out, lead, manifest, alignment, &mut counters),
+            Content::Directivity {
+                manifest,
+                directivity: file,
+            } => directivity::answer(&mut out, lead, manifest, file, &mut counters),
         }
         out.push_str("</section>\n");
     }
@@ -231,6 +236,14 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 "alignment",
                 manifest.source.description.clone(),
                 alignment.warnings.0.len(),
+            ),
+            Content::Directivity {
+                manifest,
+                directivity: file,
+            } => (
+                "directivity",
+                manifest.source.description.clone(),
+                file.directivity.warnings.len(),
             ),
         };
         let _ = write!(
@@ -289,6 +302,9 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 manifest,
                 alignment,
             } => align::section(&mut out, f, manifest, alignment, i == 0, &mut counters),
+            Content::Directivity {
+                directivity: file, ..
+            } => directivity::section(&mut out, f, file, i == 0, &mut counters),
         }
         out.push_str("</section>\n");
     }
@@ -327,6 +343,9 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 manifest,
                 alignment,
             } => align::appendix(&mut out, f, manifest, alignment),
+            Content::Directivity {
+                directivity: file, ..
+            } => directivity::appendix(&mut out, file),
         }
         out.push_str("</div>");
     }

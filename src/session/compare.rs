@@ -513,6 +513,7 @@ fn write_average(
             reference_channel: None,
             speech_level_dba: None,
             noise_folder: None,
+            position: None,
         },
         files,
         measurement: None,

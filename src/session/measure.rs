@@ -168,6 +168,8 @@ pub struct MeasureJob {
     /// then the input at the amplifier side of the resistor (not a
     /// loopback) and `channel` the input across the driver.
     pub impedance: Option<super::impedance::ImpedanceJob>,
+    /// Where around a loudspeaker it is measured (`--orbit`, `--angle`).
+    pub position: Option<crate::model::Position>,
 }
 
 /// The jobs of `gliss measure --each-output`: `base` once per output of
@@ -814,6 +816,7 @@ fn analysis_job(
         impulse: false,
         recovered_sweep: None,
         impedance: m.impedance.clone(),
+        position: m.position,
     })
 }
 
@@ -905,6 +908,7 @@ mod tests {
             source_kind: "virtual".into(),
             target: None,
             impedance: None,
+            position: None,
         }
     }
 

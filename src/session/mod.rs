@@ -3,6 +3,7 @@
 
 pub mod align;
 pub mod compare;
+pub mod directivity;
 pub mod export;
 pub mod impedance;
 pub mod measure;
@@ -84,6 +85,9 @@ pub struct Job {
     /// A loudspeaker driver's impedance through a sense resistor: the
     /// folder is an impedance measurement ([`impedance`]).
     pub impedance: Option<impedance::ImpedanceJob>,
+    /// Where around a loudspeaker the measurement was taken (`--orbit`,
+    /// `--angle`), recorded in the manifest for `gliss directivity`.
+    pub position: Option<crate::model::Position>,
 }
 
 /// The name an impulse response given to `analyze --impulse` is kept
@@ -650,6 +654,7 @@ pub fn job_settings(job: &Job, plots: bool) -> Settings {
         job.target.as_ref(),
     );
     s.reference_channel = job.reference.filter(|_| !job.impulse).map(|r| r + 1);
+    s.position = job.position;
     s
 }
 
@@ -943,6 +948,7 @@ pub fn settings_record(
             .filter(|c| c.speech_level_given)
             .map(|c| c.speech_level_dba),
         noise_folder: config.speech.as_ref().and_then(|c| c.noise_source.clone()),
+        position: None,
     }
 }
 

@@ -65,6 +65,12 @@ pub fn job(dir: &Path, s: &Settings) -> Result<Job> {
                 dir.display()
             )));
         }
+        Content::Directivity { .. } => {
+            return Err(Error::input(format!(
+                "{} is a directivity folder, not a measurement; analyse its measurement folders again and run gliss directivity again",
+                dir.display()
+            )));
+        }
     };
     if manifest.kind == Some(FolderKind::Impedance) {
         return Err(Error::input(format!(
@@ -163,6 +169,7 @@ pub fn job(dir: &Path, s: &Settings) -> Result<Job> {
         impulse,
         recovered_sweep: None,
         impedance: None,
+        position: manifest.settings.position,
     })
 }
 

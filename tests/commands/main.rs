@@ -9,6 +9,7 @@ mod bad_input;
 mod compare;
 mod demo;
 mod device_under_test;
+mod directivity;
 mod distortion;
 mod examples;
 mod export;

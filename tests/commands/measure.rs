@@ -267,6 +267,7 @@ fn job(out: &Path) -> MeasureJob {
         source_kind: "virtual".into(),
         target: None,
         impedance: None,
+        position: None,
     }
 }
 
