@@ -215,6 +215,7 @@ pub fn run(job: &AlignJob) -> Result<(Alignment, Vec<String>)> {
     )?;
     let folder = MeasurementFolder::check(&job.out, job.overwrite, &[])?;
     folder.create()?;
+    #[cfg_attr(not(feature = "plots"), allow(unused_mut))]
     let mut files: Vec<FileEntry> = vec![
         folder.derived_entry("align.json", &to_json(&a)?)?,
         folder.derived_entry("align.csv", &align_csv(&a)?)?,
