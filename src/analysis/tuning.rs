@@ -213,6 +213,9 @@ pub struct Tuning {
     pub measured_db: Vec<f64>,
     /// The target there, dB.
     pub target_db: Vec<f64>,
+    /// The target's tolerance there (below, above; positive dB), when it
+    /// has one.
+    pub tolerance_db: Option<(Vec<f64>, Vec<f64>)>,
     /// The filters' summed response there, dB.
     pub correction_db: Vec<f64>,
     /// measured + correction, dB (the prediction, not level-aligned).
@@ -346,10 +349,23 @@ pub fn design(
     }
     let f: Vec<f64> = idx.iter().map(|&i| frequency_hz[i]).collect();
     let m: Vec<f64> = idx.iter().map(|&i| measured_db[i]).collect();
-    let t: Vec<f64> = f
+    let points: Vec<_> = f.iter().map(|&x| target.at(x)).collect();
+    let t: Vec<f64> = points
         .iter()
-        .map(|&x| target.at(x).map_or(0.0, |p| p.target_db))
+        .map(|p| p.map_or(0.0, |p| p.target_db))
         .collect();
+    let tolerance_db = target.has_tolerance().then(|| {
+        let tol = |k: usize| -> Vec<f64> {
+            points
+                .iter()
+                .map(|p| {
+                    p.and_then(|p| p.tolerance_db)
+                        .map_or(0.0, |t| if k == 0 { t.0 } else { t.1 })
+                })
+                .collect()
+        };
+        (tol(0), tol(1))
+    });
     let e: Vec<f64> = (0..f.len())
         .map(|i| m[i] + before.level_offset_db - t[i])
         .collect();
@@ -376,6 +392,7 @@ pub fn design(
         frequency_hz: f,
         measured_db: m,
         target_db: t,
+        tolerance_db,
         correction_db: correction,
         predicted_db: predicted,
         before,
@@ -569,6 +586,10 @@ impl<'a> Problem<'a> {
     /// `gains` and the common level `g`.
     fn residuals(&self, h: &[f64], gains: &[f64], g: f64, out: &mut Vec<f64>) {
         out.clear();
+        // a boost counts from the level of the rest: cutting everything
+        // but one region by 10 dB is a 10 dB boost of that region once the
+        // level is set again
+        let floor = self.median(h).min(0.0);
         for i in 0..h.len() {
             if self.w[i] > 0.0 {
                 out.push(self.w[i].sqrt() * (self.e[i] + h[i] - g));
@@ -576,7 +597,7 @@ impl<'a> Problem<'a> {
             if self.protect[i] > 0.0 {
                 out.push(self.protect[i].sqrt() * h[i].max(0.0));
             }
-            out.push(self.cap.sqrt() * (h[i] - self.s.max_boost_db).max(0.0));
+            out.push(self.cap.sqrt() * (h[i] - floor - self.s.max_boost_db).max(0.0));
         }
         // cuts preferred: each dB of boost costs a little
         let boost = (1e-3f64).sqrt();
@@ -773,31 +794,59 @@ impl<'a> Problem<'a> {
                 .filter(|&i| self.protect[i] > 0.0)
                 .map(|i| h[i] - 0.05)
                 .fold(f64::NEG_INFINITY, f64::max);
-            let over = h.iter().fold(f64::NEG_INFINITY, |a, &b| a.max(b)) - limit;
+            let floor = self.median(h).min(0.0);
+            let over = h.iter().fold(f64::NEG_INFINITY, |a, &b| a.max(b - floor)) - limit;
             over.max(protect)
         };
         if peak(set, &mut h, &mut one) <= 0.0 {
             return;
         }
         let original: Vec<Params> = set.to_vec();
-        let scaled = |k: f64, set: &mut [Params]| {
-            for (x, o) in set.iter_mut().zip(&original) {
-                if o.p[1] > 0.0 {
-                    x.p[1] = o.p[1] * k;
+        // the boosts scaled down first; only when cuts alone still lift
+        // part of the range above the rest by too much, every gain
+        for boosts_only in [true, false] {
+            let scaled = |k: f64, set: &mut [Params]| {
+                for (x, o) in set.iter_mut().zip(&original) {
+                    if o.p[1] > 0.0 || !boosts_only {
+                        x.p[1] = o.p[1] * k;
+                    }
+                }
+            };
+            scaled(0.0, set);
+            if peak(set, &mut h, &mut one) > 0.0 {
+                continue;
+            }
+            let (mut lo, mut hi) = (0.0, 1.0);
+            for _ in 0..40 {
+                let mid = 0.5 * (lo + hi);
+                scaled(mid, set);
+                if peak(set, &mut h, &mut one) <= 0.0 {
+                    lo = mid;
+                } else {
+                    hi = mid;
                 }
             }
-        };
-        let (mut lo, mut hi) = (0.0, 1.0);
-        for _ in 0..40 {
-            let mid = 0.5 * (lo + hi);
-            scaled(mid, set);
-            if peak(set, &mut h, &mut one) <= 0.0 {
-                lo = mid;
-            } else {
-                hi = mid;
-            }
+            scaled(lo, set);
+            return;
         }
-        scaled(lo, set);
+    }
+
+    /// The median of `h` over the fitted points (the grid is even in log
+    /// frequency, so this is the level of half the range): the level of
+    /// the part of the range the filters leave alone, however deep their
+    /// cuts elsewhere.
+    fn median(&self, h: &[f64]) -> f64 {
+        let mut v: Vec<f64> = h
+            .iter()
+            .zip(&self.w)
+            .filter(|(_, w)| **w > 0.0)
+            .map(|(x, _)| *x)
+            .collect();
+        if v.is_empty() {
+            return 0.0;
+        }
+        let k = v.len() / 2;
+        *v.select_nth_unstable_by(k, f64::total_cmp).1
     }
 }
 

@@ -15,6 +15,7 @@ mod noise;
 mod reanalyze;
 mod report;
 mod sweep;
+mod tune;
 
 use std::process::ExitCode;
 
@@ -65,6 +66,8 @@ enum Command {
     Report(report::Args),
     /// Background noise from a calibrated recording: Leq per band, dB(A), noise rating (NR).
     Noise(noise::Args),
+    /// Correction filters (parametric EQ) that bring a measured response to a target curve.
+    Tune(tune::Args),
     /// Write one curve of a measurement folder (response, distortion, bands, impulse) as CSV or JSON.
     Export(export::Args),
 }
@@ -80,6 +83,7 @@ fn wants_plots(command: &Command) -> bool {
         Command::Average(a) => !a.no_plots,
         Command::Compare(a) => !a.no_plots,
         Command::Noise(a) => !a.no_plots,
+        Command::Tune(a) => !a.no_plots,
         _ => false,
     }
 }
@@ -151,6 +155,7 @@ pub fn main() -> ExitCode {
         Command::Report(a) => report::run(a),
         Command::Export(a) => export::run(a),
         Command::Noise(a) => noise::run(a),
+        Command::Tune(a) => tune::run(a),
     };
     match result {
         Ok(()) => {

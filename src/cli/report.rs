@@ -27,8 +27,8 @@ are only read, never changed.
 it, or e.g. chromium --headless --no-pdf-header-footer --print-to-pdf=report.pdf report.html."
 )]
 pub struct Args {
-    /// Measurement or comparison folders (each with manifest.json), in the
-    /// order the report shows them.
+    /// Measurement, comparison or tuning folders (each with
+    /// manifest.json), in the order the report shows them.
     #[arg(value_name = "DIR", required = true)]
     pub dirs: Vec<PathBuf>,
     /// The HTML file to write (its name must end in .html or .htm; a PDF
@@ -134,7 +134,7 @@ fn target_rt(arg: &str) -> Result<gliss::analysis::rt_target::RtTarget> {
 /// raw files changed (unless `show_changed_raw`: then the report shows the
 /// damage).
 pub fn read_folder(dir: &Path, show_changed_raw: bool) -> Result<Folder> {
-    let f = gliss::folder::open_with(
+    let f = gliss::folder::open_any(
         dir,
         gliss::folder::OpenOptions {
             allow_changed_raw: show_changed_raw,

@@ -21,7 +21,7 @@ use std::path::{Component, Path, PathBuf};
 use crate::error::{Error, Result};
 use schema::{
     Comparison, ComparisonManifest, FileEntry, FileRole, FolderKind, Manifest, NoiseManifest,
-    Results,
+    Results, TuningFile, TuningManifest,
 };
 pub use write::{MeasurementFolder, sha256_hex};
 
@@ -61,6 +61,14 @@ pub enum Content {
         manifest: Box<ComparisonManifest>,
         /// The comparison.
         comparison: Box<Comparison>,
+    },
+    /// A tuning: its manifest and tuning.json (read by [`open_tuning`];
+    /// [`open`] refuses a tuning folder).
+    Tuning {
+        /// The manifest.
+        manifest: Box<TuningManifest>,
+        /// The filters and their predicted effect.
+        tuning: Box<TuningFile>,
     },
 }
 
@@ -169,6 +177,11 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
             "{name} is a noise folder (gliss noise): it holds the room's background noise, not a measurement; give it to gliss analyze, measure or demo as --noise {name}, and report the room measurement"
         )));
     }
+    if value.get("kind").and_then(serde_json::Value::as_str) == Some("tuning") {
+        return Err(Error::input(format!(
+            "{name} is a tuning folder (gliss tune): it holds correction filters, not a measurement; give it to gliss report, or to gliss compare beside a measurement made after tuning, or type its filters.txt into the processor"
+        )));
+    }
     let not_ours = |e: serde_json::Error| {
         Error::input(format!(
             "{name}/manifest.json is not a gliss manifest ({e}); give folders written by gliss"
@@ -220,6 +233,31 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
         content: Content::Measurement {
             manifest: Box::new(manifest),
             results: Box::new(results),
+        },
+    })
+}
+
+/// Opens a measurement, average, comparison or tuning folder (for what
+/// shows any of them, such as the report): a tuning folder through
+/// [`open_tuning`], everything else through [`open_with`].
+pub fn open_any(dir: &Path, options: OpenOptions) -> Result<Folder> {
+    let kind = fs::read(dir.join("manifest.json"))
+        .ok()
+        .and_then(|b| serde_json::from_slice::<serde_json::Value>(&b).ok())
+        .and_then(|v| v.get("kind").and_then(|k| k.as_str()).map(str::to_string));
+    if kind.as_deref() != Some("tuning") {
+        return open_with(dir, options);
+    }
+    let t = open_tuning(dir)?;
+    Ok(Folder {
+        dir: t.dir,
+        kind: FolderKind::Tuning,
+        manifest_sha256: t.manifest_sha256,
+        content_sha256: t.content_sha256,
+        files: t.files,
+        content: Content::Tuning {
+            manifest: Box::new(t.manifest),
+            tuning: Box::new(t.tuning),
         },
     })
 }
@@ -363,7 +401,7 @@ impl Folder {
     pub fn measurement(&self, why: &str) -> Result<(&Manifest, &Results)> {
         match &self.content {
             Content::Measurement { manifest, results } => Ok((manifest, results)),
-            Content::Comparison { .. } => Err(self.not_a_measurement(why)),
+            Content::Comparison { .. } | Content::Tuning { .. } => Err(self.not_a_measurement(why)),
         }
     }
 
@@ -372,15 +410,16 @@ impl Folder {
     pub fn into_measurement(self, why: &str) -> Result<(Manifest, Results)> {
         match self.content {
             Content::Measurement { manifest, results } => Ok((*manifest, *results)),
-            Content::Comparison { .. } => Err(self.not_a_measurement(why)),
+            Content::Comparison { .. } | Content::Tuning { .. } => Err(self.not_a_measurement(why)),
         }
     }
 
     #[cold]
     fn not_a_measurement(&self, why: &str) -> Error {
         Error::input(format!(
-            "{} is a comparison, not a measurement; {why}",
-            self.dir.display()
+            "{} is {}, not a measurement; {why}",
+            self.dir.display(),
+            self.kind.words()
         ))
     }
 }
@@ -466,5 +505,84 @@ pub fn open_noise(dir: &Path) -> Result<NoiseFolder> {
         manifest_sha256: sha256_hex(&mbytes),
         manifest,
         noise,
+    })
+}
+
+/// A tuning folder, opened and checked.
+#[derive(Debug, Clone)]
+pub struct TuningFolder {
+    /// The folder as given.
+    pub dir: PathBuf,
+    /// SHA-256 of its manifest.json.
+    pub manifest_sha256: String,
+    /// SHA-256 of its tuning.json.
+    pub content_sha256: String,
+    /// Every file the manifest lists, checked against its hash.
+    pub files: Vec<FileCheck>,
+    /// The manifest.
+    pub manifest: TuningManifest,
+    /// tuning.json.
+    pub tuning: TuningFile,
+}
+
+/// Opens a tuning folder (`gliss tune`): the one reader of that kind, with
+/// the checks of [`open`] — complete, every listed file matching its
+/// SHA-256, tuning.json the one listed.
+pub fn open_tuning(dir: &Path) -> Result<TuningFolder> {
+    let name = dir.display();
+    let mpath = dir.join("manifest.json");
+    if !dir.is_dir() || !mpath.is_file() {
+        return Err(Error::input(format!(
+            "{name} is not a tuning folder (no manifest.json); give a folder written by gliss tune"
+        )));
+    }
+    let mbytes = fs::read(&mpath).map_err(|e| Error::io("read", &mpath, &e))?;
+    let value: serde_json::Value = serde_json::from_slice(&mbytes).map_err(|e| {
+        Error::input(format!(
+            "{name}/manifest.json is not valid JSON ({e}); design the tuning again into a new folder"
+        ))
+    })?;
+    if value.get("kind").and_then(serde_json::Value::as_str) != Some("tuning") {
+        return Err(Error::input(format!(
+            "{name} is not a tuning folder (its manifest says it is {}); give a folder written by gliss tune",
+            value
+                .get("kind")
+                .and_then(serde_json::Value::as_str)
+                .unwrap_or("a measurement")
+        )));
+    }
+    if value.get("complete").and_then(serde_json::Value::as_bool) != Some(true) {
+        return Err(Error::input(format!(
+            "{name} is an incomplete tuning folder; run gliss tune again with --overwrite"
+        )));
+    }
+    let manifest: TuningManifest = serde_json::from_value(value).map_err(|e| {
+        Error::input(format!(
+            "{name}/manifest.json is not a gliss tuning manifest ({e}); run gliss tune again into a new folder"
+        ))
+    })?;
+    let files = check_files(dir, &manifest.files, OpenOptions::default())?;
+    let again = "gliss tune ... --overwrite";
+    let (bytes, sha) = read_content(dir, "tuning.json", "run gliss tune again with --overwrite")?;
+    content_matches(dir, "tuning.json", &sha, &files, again)?;
+    let tuning: TuningFile = serde_json::from_slice(&bytes).map_err(|e| {
+        Error::input(format!(
+            "{name}/tuning.json is not a gliss tuning file ({e}); run gliss tune again with --overwrite"
+        ))
+    })?;
+    if tuning.schema_version > schema::TUNING_SCHEMA_VERSION {
+        return Err(Error::input(format!(
+            "{name}/tuning.json is schema version {}, newer than this gliss reads ({}); use a newer gliss",
+            tuning.schema_version,
+            schema::TUNING_SCHEMA_VERSION
+        )));
+    }
+    Ok(TuningFolder {
+        dir: dir.to_path_buf(),
+        manifest_sha256: sha256_hex(&mbytes),
+        content_sha256: sha,
+        files,
+        manifest,
+        tuning,
     })
 }

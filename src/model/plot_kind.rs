@@ -48,6 +48,9 @@ pub enum PlotKind {
     Mtf,
     /// A noise folder's background noise per band with its rating.
     Noise,
+    /// A tuning folder's measured, predicted and target responses with
+    /// the correction filters.
+    Tuning,
 }
 
 /// What a caption says about the folder it describes. Fill what the
@@ -76,7 +79,7 @@ pub const UNKNOWN_RANK: usize = 15;
 
 impl PlotKind {
     /// Every plot, in the order of the variants.
-    pub const ALL: [PlotKind; 17] = [
+    pub const ALL: [PlotKind; 18] = [
         PlotKind::Response,
         PlotKind::Impulse,
         PlotKind::Phase,
@@ -94,6 +97,7 @@ impl PlotKind {
         PlotKind::Impedance,
         PlotKind::Mtf,
         PlotKind::Noise,
+        PlotKind::Tuning,
     ];
 
     /// The plots of one measurement, in the order they are drawn (and
@@ -111,6 +115,9 @@ impl PlotKind {
         PlotKind::Reverberation,
         PlotKind::Mtf,
     ];
+
+    /// The plots of a tuning folder.
+    pub const TUNING: [PlotKind; 1] = [PlotKind::Tuning];
 
     /// The plots of a noise folder.
     pub const NOISE: [PlotKind; 1] = [PlotKind::Noise];
@@ -144,6 +151,7 @@ impl PlotKind {
             PlotKind::Impedance => "plots/impedance.png",
             PlotKind::Mtf => "plots/mtf.png",
             PlotKind::Noise => "plots/noise.png",
+            PlotKind::Tuning => "plots/tuning.png",
         }
     }
 
@@ -169,6 +177,7 @@ impl PlotKind {
             PlotKind::Spectrogram => 12,
             PlotKind::Impulse => 13,
             PlotKind::Noise => 14,
+            PlotKind::Tuning => 15,
         }
     }
 
@@ -240,6 +249,7 @@ impl PlotKind {
             PlotKind::Impedance => "Electrical impedance of the driver: magnitude in ohms above, phase below, on a log frequency axis; the fitted lumped model dashed over the measurement, the resonance fs marked.".to_string(),
             PlotKind::Mtf => "Modulation transfer function per octave 125 Hz–8 kHz: the modulation depth m that reaches the listener against the modulation frequency (IEC 60268-16), as the STI used it, with each octave's modulation transfer index.".to_string(),
             PlotKind::Noise => "Background noise: the equivalent continuous level per octave and one-third octave, dB SPL, with the noise rating curve it touches.".to_string(),
+            PlotKind::Tuning => format!("Tuning, {}: above, the measured response and the response predicted after the correction (each level-aligned to the target) over the target and its tolerance band; below, the correction of all filters together and, faintly, each filter's own curve (Audio EQ Cookbook biquads, exact responses).", f.smoothing),
         }
     }
 }

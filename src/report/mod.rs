@@ -11,6 +11,7 @@ pub mod comparison;
 pub mod html;
 mod impedance;
 pub mod speech;
+mod tuning;
 
 use std::fmt::Write;
 
@@ -97,7 +98,7 @@ fn is_position(folders: &[Folder], k: usize) -> bool {
         Content::Measurement { manifest, results } => {
             results.average.is_some() && manifest.inputs.iter().any(|i| &i.folder == name)
         }
-        Content::Comparison { .. } => false,
+        Content::Comparison { .. } | Content::Tuning { .. } => false,
     })
 }
 
@@ -107,7 +108,7 @@ fn is_compared(folders: &[Folder], name: &str) -> bool {
         Content::Comparison { comparison, .. } => {
             comparison.inputs.iter().any(|i| i.folder == name)
         }
-        Content::Measurement { .. } => false,
+        Content::Measurement { .. } | Content::Tuning { .. } => false,
     })
 }
 
@@ -185,6 +186,9 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                     figure(&mut out, p, &caption(p, manifest, results), &mut counters);
                 }
             }
+            Content::Tuning { manifest, tuning } => {
+                tuning::answer(&mut out, lead, manifest, tuning)
+            }
         }
         out.push_str("</section>\n");
     }
@@ -219,6 +223,9 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 comparison_title(manifest, comparison),
                 comparison.warnings.len(),
             ),
+            Content::Tuning { manifest, tuning } => {
+                ("tuning", tuning::title(manifest), tuning.warnings.len())
+            }
         };
         let _ = write!(
             out,
@@ -272,6 +279,7 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 manifest,
                 comparison,
             } => comparison_section(&mut out, f, manifest, comparison, &mut counters),
+            Content::Tuning { tuning, .. } => tuning::section(&mut out, f, tuning, &mut counters),
         }
         out.push_str("</section>\n");
     }
@@ -306,6 +314,7 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 manifest,
                 comparison,
             } => comparison_appendix(&mut out, f, manifest, comparison, &mut counters),
+            Content::Tuning { manifest, tuning } => tuning::appendix(&mut out, f, manifest, tuning),
         }
         out.push_str("</div>");
     }

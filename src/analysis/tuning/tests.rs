@@ -42,15 +42,22 @@ fn flat_target() -> Target {
 }
 
 /// A loudspeaker-like device: a second-order high-pass and low-pass and
-/// three peaks or dips from `rng`.
+/// three peaks or dips from `rng`, at least an octave apart (two dips
+/// closer than that add up to one deeper than the largest boost, which
+/// the rules leave alone: see the notch test).
 fn device(rng: &mut StdRng) -> Vec<Biquad> {
     let q = std::f64::consts::FRAC_1_SQRT_2;
     let mut chain = vec![
         Biquad::highpass(FS, rng.random_range(35.0..55.0), q),
         Biquad::lowpass(FS, rng.random_range(17_000.0..20_000.0), q),
     ];
-    for _ in 0..3 {
+    let mut at: Vec<f64> = Vec::new();
+    while at.len() < 3 {
         let f = 2f64.powf(rng.random_range(150f64.log2()..7000f64.log2()));
+        if at.iter().any(|g| (f / g).log2().abs() < 1.0) {
+            continue;
+        }
+        at.push(f);
         let q = 2f64.powf(rng.random_range(0.7f64.log2()..5f64.log2()));
         let gain = if rng.random_bool(0.5) {
             rng.random_range(3.0..8.0)
@@ -151,7 +158,7 @@ fn known_devices_are_corrected_to_within_one_db_of_flat() {
     let range = (100.0, 10_000.0);
     let mut rng = StdRng::seed_from_u64(16);
     let mut worst: f64 = 0.0;
-    for n in 0..12 {
+    for n in 0..20 {
         let chain = device(&mut rng);
         let measured = chain_db(&chain, &f);
         let t = design(&f, &measured, &flat_target(), &settings(range)).unwrap();
@@ -195,7 +202,7 @@ fn known_devices_are_corrected_to_within_one_db_of_flat() {
         assert!(t.after.max_abs_db < t.before.max_abs_db);
         worst = worst.max(dev);
     }
-    eprintln!("largest deviation after correction over 12 devices: {worst:.3} dB");
+    eprintln!("largest deviation after correction over 20 devices: {worst:.3} dB");
 }
 
 #[test]
