@@ -69,6 +69,10 @@ pub const SHELF_Q: f64 = std::f64::consts::FRAC_1_SQRT_2;
 /// less than 1/this of the peaking filter's cost.
 pub const SHELF_ADVANTAGE: f64 = 2.0;
 
+/// A filter is kept only when it lowers the cost by at least this share;
+/// otherwise its place is not tried again.
+pub const MIN_GAIN: f64 = 0.02;
+
 /// The placement stops when no deviation larger than this (dB) is left.
 pub const DONE_DB: f64 = 0.2;
 
@@ -226,6 +230,20 @@ pub struct Tuning {
     pub after: TargetReport,
     /// The regions left alone, with their reasons.
     pub uncorrectable: Vec<UncorrectableRegion>,
+    /// The deviations before and after from the range's low end up to the
+    /// transition frequency, where equalisation acts on the room's modes
+    /// (`None` without a transition frequency, or when it lies below the
+    /// range or holds too few points).
+    pub below_transition: Option<BeforeAfter>,
+}
+
+/// The deviation from the target before and after over part of the range.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct BeforeAfter {
+    /// The measured response's.
+    pub before: TargetReport,
+    /// The predicted response's.
+    pub after: TargetReport,
 }
 
 /// Schroeder's transition frequency 2000·√(T/V) Hz (M. R. Schroeder, K. H.
@@ -387,6 +405,16 @@ pub fn design(
     let correction = response_db(&filters, s.sample_rate_hz, &f);
     let predicted: Vec<f64> = m.iter().zip(&correction).map(|(a, b)| a + b).collect();
     let after = target::deviation(&f, &predicted, target, range, true)?;
+    let below_transition = s
+        .transition_hz
+        .filter(|&ft| ft > range.0 * 1.05)
+        .and_then(|ft| {
+            let low = (range.0, ft.min(range.1));
+            Some(BeforeAfter {
+                before: target::deviation(&f, &m, target, low, true).ok()?,
+                after: target::deviation(&f, &predicted, target, low, true).ok()?,
+            })
+        });
     Ok(Tuning {
         filters,
         frequency_hz: f,
@@ -398,6 +426,7 @@ pub fn design(
         before,
         after,
         uncorrectable,
+        below_transition,
     })
 }
 
@@ -627,9 +656,15 @@ impl<'a> Problem<'a> {
         let mut h = vec![0.0; n];
         let mut scratch = Vec::new();
         let mut one = vec![0.0; n];
-        for _ in 0..self.s.filters {
+        // points where a filter could not help (a roll-off the boost limit
+        // keeps, a region the penalties hold): not picked again
+        let mut tabu = vec![false; n];
+        let mut tries = 0;
+        while set.len() < self.s.filters && tries < 3 * self.s.filters {
+            tries += 1;
             let g = self.level(&h);
-            let cands = self.candidates(&h, g, &set, &mut scratch, &mut one);
+            let before = self.cost(&h, &gains_of(&set), g, &mut scratch);
+            let (cands, pick) = self.candidates(&h, g, &set, &tabu, &mut scratch, &mut one);
             if cands.is_empty() {
                 break;
             }
@@ -647,14 +682,23 @@ impl<'a> Problem<'a> {
                     chosen = Some((trial, cost));
                 }
             }
-            if let Some((trial, _)) = chosen {
-                set = trial;
+            let Some((trial, cost)) = chosen else { break };
+            if cost > (1.0 - MIN_GAIN) * before {
+                // within a sixth of an octave of the pick
+                for (t, lf) in tabu.iter_mut().zip(&self.log_f) {
+                    if (lf - self.log_f[pick]).abs() <= 1.0 / 6.0 {
+                        *t = true;
+                    }
+                }
+                continue;
             }
+            set = trial;
             refine(self, &mut set, 0..k, 15);
             self.sum(&set, &mut h, &mut one);
         }
         let k = set.len();
         refine(self, &mut set, 0..k, 100);
+        self.prune(&mut set);
         self.cap_boost(&mut set);
         let mut filters: Vec<Filter> = set
             .iter()
@@ -684,14 +728,15 @@ impl<'a> Problem<'a> {
         h: &[f64],
         g: f64,
         set: &[Params],
+        tabu: &[bool],
         scratch: &mut Vec<f64>,
         one: &mut [f64],
-    ) -> Vec<Params> {
+    ) -> (Vec<Params>, usize) {
         let n = h.len();
         let r: Vec<f64> = (0..n).map(|i| self.e[i] + h[i] - g).collect();
         let mut best: Option<(usize, f64)> = None;
         for i in 0..n {
-            if self.w[i] <= 0.0 {
+            if self.w[i] <= 0.0 || tabu[i] {
                 continue;
             }
             let score = if r[i] > 0.0 {
@@ -704,10 +749,10 @@ impl<'a> Problem<'a> {
             }
         }
         let Some((i, score)) = best else {
-            return Vec::new();
+            return (Vec::new(), 0);
         };
         if score < DONE_DB {
-            return Vec::new();
+            return (Vec::new(), 0);
         }
         // the width at half height, in octaves
         let half = r[i] / 2.0;
@@ -778,7 +823,7 @@ impl<'a> Problem<'a> {
                 _ => {}
             }
         }
-        out.into_iter().map(|c| c.0).collect()
+        (out.into_iter().map(|c| c.0).collect(), i)
     }
 
     /// Scales every boost down, where the penalty left the summed boost
@@ -831,6 +876,42 @@ impl<'a> Problem<'a> {
         }
     }
 
+    /// Drops, smallest gain first, each filter whose removal raises the
+    /// cost by less than [`MIN_GAIN`] (a filter the joint fit left with
+    /// nothing to do is one more thing to type in for no audible change).
+    fn prune(&self, set: &mut Vec<Params>) {
+        let n = self.e.len();
+        let (mut h, mut one, mut scratch) = (vec![0.0; n], vec![0.0; n], Vec::new());
+        let mut order: Vec<usize> = (0..set.len()).collect();
+        order.sort_by(|&a, &b| set[a].p[1].abs().total_cmp(&set[b].p[1].abs()));
+        let mut keep = vec![true; set.len()];
+        let cost_of = |keep: &[bool], h: &mut Vec<f64>, one: &mut Vec<f64>, s: &mut Vec<f64>| {
+            let kept: Vec<Params> = set
+                .iter()
+                .zip(keep)
+                .filter(|(_, k)| **k)
+                .map(|(x, _)| *x)
+                .collect();
+            self.sum(&kept, h, one);
+            self.cost(h, &gains_of(&kept), self.level(h), s)
+        };
+        let mut now = cost_of(&keep, &mut h, &mut one, &mut scratch);
+        for i in order {
+            keep[i] = false;
+            let without = cost_of(&keep, &mut h, &mut one, &mut scratch);
+            if without < (1.0 + MIN_GAIN) * now {
+                now = without;
+            } else {
+                keep[i] = true;
+            }
+        }
+        let mut k = 0;
+        set.retain(|_| {
+            k += 1;
+            keep[k - 1]
+        });
+    }
+
     /// The median of `h` over the fitted points (the grid is even in log
     /// frequency, so this is the level of half the range): the level of
     /// the part of the range the filters leave alone, however deep their
@@ -848,6 +929,10 @@ impl<'a> Problem<'a> {
         let k = v.len() / 2;
         *v.select_nth_unstable_by(k, f64::total_cmp).1
     }
+}
+
+fn gains_of(set: &[Params]) -> Vec<f64> {
+    set.iter().map(|x| x.p[1]).collect()
 }
 
 /// Levenberg–Marquardt (K. Levenberg 1944, D. Marquardt 1963; damping

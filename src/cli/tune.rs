@@ -157,6 +157,17 @@ pub fn run(a: Args) -> Result<()> {
             tr.frequency_hz, tr.t_s, tr.volume_m3
         );
     }
+    if let Some(b) = &t.below_transition {
+        println!(
+            "below it ({:.0}–{:.0} Hz): largest deviation {:.1} → {:.1} dB, mean {:.1} → {:.1} dB",
+            b.before.range_hz[0],
+            b.before.range_hz[1],
+            b.before.max_abs_db,
+            b.after.max_abs_db,
+            b.before.mean_abs_db,
+            b.after.mean_abs_db
+        );
+    }
     for w in t.warnings.iter() {
         println!("warning: {}", w.message);
     }

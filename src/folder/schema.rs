@@ -736,6 +736,11 @@ pub struct TuningFile {
     pub after: crate::analysis::target::TargetReport,
     /// The regions left alone, with their reasons.
     pub uncorrectable: Vec<crate::analysis::tuning::UncorrectableRegion>,
+    /// The deviations before and after below the transition frequency
+    /// (each level-aligned over that part alone; `null` without
+    /// --volume).
+    #[serde(default)]
+    pub below_transition: Option<crate::analysis::tuning::BeforeAfter>,
     /// Warnings: `warnings` (the sentences) and `warning_codes` beside them.
     #[serde(flatten)]
     pub warnings: Warnings,

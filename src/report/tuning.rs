@@ -41,6 +41,17 @@ pub fn answer(out: &mut String, f: &Folder, m: &TuningManifest, t: &TuningFile) 
         t.before.mean_abs_db,
         t.after.mean_abs_db
     );
+    if let (Some(b), Some(tr)) = (&t.below_transition, &t.transition) {
+        let _ = write!(
+            out,
+            "<p>Below the room's transition frequency ({:.0} Hz), where equalisation acts on the room's modes: largest deviation {:.1} → {:.1} dB, mean {:.1} → {:.1} dB.</p>",
+            tr.frequency_hz,
+            b.before.max_abs_db,
+            b.after.max_abs_db,
+            b.before.mean_abs_db,
+            b.after.mean_abs_db
+        );
+    }
 }
 
 /// The evidence: the plot, the filters table, the regions left alone and

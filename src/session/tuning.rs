@@ -227,6 +227,7 @@ fn design(job: &TuneJob, inputs: &[Input], results: &Results) -> Result<TuningFi
         })
         .collect::<Result<Vec<_>>>()?;
     let warnings = warnings(&t, inputs, results, transition.is_some());
+    let below_transition = t.below_transition;
     let (lower, upper) = t.tolerance_db.clone().unwrap_or_default();
     Ok(TuningFile {
         schema_version: TUNING_SCHEMA_VERSION,
@@ -248,6 +249,7 @@ fn design(job: &TuneJob, inputs: &[Input], results: &Results) -> Result<TuningFi
         before: t.before,
         after: t.after,
         uncorrectable: t.uncorrectable,
+        below_transition,
         warnings,
     })
 }

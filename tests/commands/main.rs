@@ -28,4 +28,5 @@ mod speech;
 mod spine;
 mod sweep;
 mod target;
+mod tuning;
 mod wire;
