@@ -619,14 +619,14 @@ impl<'a> Problem<'a> {
         // but one region by 10 dB is a 10 dB boost of that region once the
         // level is set again
         let floor = self.median(h).min(0.0);
-        for i in 0..h.len() {
-            if self.w[i] > 0.0 {
-                out.push(self.w[i].sqrt() * (self.e[i] + h[i] - g));
+        for (((&hi, &w), &e), &protect) in h.iter().zip(&self.w).zip(&self.e).zip(&self.protect) {
+            if w > 0.0 {
+                out.push(w.sqrt() * (e + hi - g));
             }
-            if self.protect[i] > 0.0 {
-                out.push(self.protect[i].sqrt() * h[i].max(0.0));
+            if protect > 0.0 {
+                out.push(protect.sqrt() * hi.max(0.0));
             }
-            out.push(self.cap.sqrt() * (h[i] - floor - self.s.max_boost_db).max(0.0));
+            out.push(self.cap.sqrt() * (hi - floor - self.s.max_boost_db).max(0.0));
         }
         // cuts preferred: each dB of boost costs a little
         let boost = (1e-3f64).sqrt();
@@ -637,9 +637,9 @@ impl<'a> Problem<'a> {
     /// alignment would take out.
     fn level(&self, h: &[f64]) -> f64 {
         let (mut s, mut sw) = (0.0, 0.0);
-        for i in 0..h.len() {
-            s += self.w[i] * (self.e[i] + h[i]);
-            sw += self.w[i];
+        for ((&hi, &w), &e) in h.iter().zip(&self.w).zip(&self.e) {
+            s += w * (e + hi);
+            sw += w;
         }
         if sw > 0.0 { s / sw } else { 0.0 }
     }
@@ -784,15 +784,15 @@ impl<'a> Problem<'a> {
         while c < b - 1.0 / 3.0 {
             for kind in [FilterKind::LowShelf, FilterKind::HighShelf] {
                 let (mut s, mut sw) = (0.0, 0.0);
-                for k in 0..n {
+                for ((&lf, &w), &rk) in self.log_f.iter().zip(&self.w).zip(&r) {
                     let beyond = if kind == FilterKind::LowShelf {
-                        self.log_f[k] < c
+                        lf < c
                     } else {
-                        self.log_f[k] > c
+                        lf > c
                     };
-                    if beyond && self.w[k] > 0.0 {
-                        s += self.w[k] * r[k];
-                        sw += self.w[k];
+                    if beyond && w > 0.0 {
+                        s += w * rk;
+                        sw += w;
                     }
                 }
                 if sw > 0.0 && (s / sw).abs() > DONE_DB {
@@ -1083,8 +1083,9 @@ fn solve(mut a: Vec<Vec<f64>>, mut b: Vec<f64>) -> Option<Vec<f64>> {
             if m == 0.0 {
                 continue;
             }
-            for k in c..n {
-                a[i][k] -= m * a[c][k];
+            let (upper, lower) = a.split_at_mut(i);
+            for (x, y) in lower[0][c..].iter_mut().zip(&upper[c][c..]) {
+                *x -= m * y;
             }
             b[i] -= m * b[c];
         }

@@ -237,10 +237,7 @@ fn a_deep_narrow_notch_is_reported_and_not_filled() {
     let most = correction.iter().fold(f64::NEG_INFINITY, |a, &b| a.max(b));
     assert!(most <= 6.0 + 1e-6, "the filters boost {most} dB somewhere");
     let at_notch = chain_db(&filters, &[1000.0])[0];
-    assert!(
-        at_notch <= 6.0 && at_notch < 0.5,
-        "{at_notch} dB of boost into the notch"
-    );
+    assert!(at_notch < 0.5, "{at_notch} dB of boost into the notch");
     // the peak at 300 Hz is still corrected
     let i = f.iter().position(|&x| x >= 300.0).unwrap();
     let j = t.frequency_hz.iter().position(|&x| x >= 300.0).unwrap();
