@@ -65,6 +65,15 @@ pub const BOOST_DISFAVOUR: f64 = 1.5;
 /// steepest shelf without overshoot.
 pub const SHELF_Q: f64 = std::f64::consts::FRAC_1_SQRT_2;
 
+/// The cost of each dB of boost in the fit (in dB² of mean squared
+/// deviation): small, so that it tips a choice towards cuts without
+/// holding back a boost the target needs.
+pub const BOOST_COST: f64 = 1e-3;
+
+/// The fit's grid: at most this many points an octave (24: a peaking
+/// filter of Q 8 spans about four of them at half its gain).
+pub const FIT_POINTS_PER_OCTAVE: f64 = 24.0;
+
 /// A shelf is placed instead of the peaking filter only when it leaves
 /// less than 1/this of the peaking filter's cost.
 pub const SHELF_ADVANTAGE: f64 = 2.0;
@@ -400,8 +409,36 @@ pub fn design(
             });
         }
     }
-    let problem = Problem::new(&f, &e, &weights, s, &uncorrectable);
-    let filters = problem.solve();
+    // the fit runs on at most FIT_POINTS_PER_OCTAVE points an octave: a
+    // filter of the highest Q allowed still spans several of them, and
+    // the fit costs half as much as on the 48-per-octave grid
+    let per_octave = (f.len() - 1) as f64 / (f[f.len() - 1] / f[0]).log2();
+    let stride = ((per_octave / FIT_POINTS_PER_OCTAVE).round() as usize).max(1);
+    let pick = |k: &usize| k % stride == 0 || *k == f.len() - 1;
+    let sub = |v: &[f64]| -> Vec<f64> {
+        v.iter()
+            .enumerate()
+            .filter(|(k, _)| pick(k))
+            .map(|(_, x)| *x)
+            .collect()
+    };
+    let (fs_fit, es_fit) = (sub(&f), sub(&e));
+    let ws_fit: Vec<(usize, f64)> = weights
+        .iter()
+        .enumerate()
+        .filter(|(k, _)| pick(k))
+        .map(|(_, w)| (w.0, w.1 * stride as f64))
+        .collect();
+    let problem = Problem::new(&fs_fit, &es_fit, &ws_fit, s, &uncorrectable);
+    let mut set = problem.solve();
+    // the boost cap checked on every point of the grid
+    Problem::new(&f, &e, &weights, s, &uncorrectable).cap_boost(&mut set);
+    let mut filters: Vec<Filter> = set
+        .iter()
+        .map(Params::filter)
+        .filter(|f| f.gain_db.abs() >= 0.05)
+        .collect();
+    filters.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
     let correction = response_db(&filters, s.sample_rate_hz, &f);
     let predicted: Vec<f64> = m.iter().zip(&correction).map(|(a, b)| a + b).collect();
     let after = target::deviation(&f, &predicted, target, range, true)?;
@@ -514,6 +551,8 @@ struct Problem<'a> {
     protect: Vec<f64>,
     /// Weight of the total-boost cap at each point.
     cap: f64,
+    /// A buffer for the median, reused by every evaluation.
+    scratch: std::cell::RefCell<Vec<f64>>,
 }
 
 /// One filter as the fit sees it: log2 f, gain, log2 Q.
@@ -578,6 +617,7 @@ impl<'a> Problem<'a> {
             w,
             protect,
             cap: 100.0 / f.len() as f64,
+            scratch: std::cell::RefCell::new(Vec::with_capacity(f.len())),
         }
     }
 
@@ -629,8 +669,59 @@ impl<'a> Problem<'a> {
             out.push(self.cap.sqrt() * (hi - floor - self.s.max_boost_db).max(0.0));
         }
         // cuts preferred: each dB of boost costs a little
-        let boost = (1e-3f64).sqrt();
+        let boost = BOOST_COST.sqrt();
         out.extend(gains.iter().map(|&gain| boost * gain.max(0.0)));
+    }
+
+    /// One column of the Jacobian of [`Problem::residuals`] by the chain
+    /// rule, in the same row order: `dh` is the derivative of the summed
+    /// response at each point; the penalty rows count where they are
+    /// active (the median's own movement is left out, as Gauss–Newton
+    /// leaves out second derivatives); `gain_row` is the filter whose
+    /// gain this is, with the slope of its boost cost.
+    fn jacobian_column(
+        &self,
+        dh: &[f64],
+        h: &[f64],
+        gain_row: Option<(usize, f64)>,
+        filters: usize,
+        out: &mut Vec<f64>,
+    ) {
+        out.clear();
+        let floor = self.median(h).min(0.0);
+        for (i, (&d, &hi)) in dh.iter().zip(h).enumerate() {
+            if self.w[i] > 0.0 {
+                out.push(self.w[i].sqrt() * d);
+            }
+            if self.protect[i] > 0.0 {
+                out.push(if hi > 0.0 {
+                    self.protect[i].sqrt() * d
+                } else {
+                    0.0
+                });
+            }
+            let active = hi - floor - self.s.max_boost_db > 0.0;
+            out.push(if active { self.cap.sqrt() * d } else { 0.0 });
+        }
+        out.extend((0..filters).map(|k| match gain_row {
+            Some((fi, slope)) if fi == k => slope,
+            _ => 0.0,
+        }));
+    }
+
+    /// The Jacobian column of the common level.
+    fn level_column(&self, filters: usize, out: &mut Vec<f64>) {
+        out.clear();
+        for i in 0..self.w.len() {
+            if self.w[i] > 0.0 {
+                out.push(-self.w[i].sqrt());
+            }
+            if self.protect[i] > 0.0 {
+                out.push(0.0);
+            }
+            out.push(0.0);
+        }
+        out.extend(std::iter::repeat_n(0.0, filters));
     }
 
     /// The weighted mean of e + h over the fitted points: the level the
@@ -650,7 +741,7 @@ impl<'a> Problem<'a> {
     }
 
     /// Greedy placement, each step refined jointly.
-    fn solve(&self) -> Vec<Filter> {
+    fn solve(&self) -> Vec<Params> {
         let n = self.e.len();
         let mut set: Vec<Params> = Vec::new();
         let mut h = vec![0.0; n];
@@ -676,8 +767,8 @@ impl<'a> Problem<'a> {
             for (c, x) in cands.into_iter().enumerate() {
                 let mut trial = set.clone();
                 trial.push(x);
-                let cost = refine(self, &mut trial, k - 1..k, 20);
-                let cost = if c < 3 { cost } else { cost * SHELF_ADVANTAGE };
+                let cost = refine(self, &mut trial, k - 1..k, 12);
+                let cost = if c == 0 { cost } else { cost * SHELF_ADVANTAGE };
                 if chosen.as_ref().is_none_or(|b| cost < b.1) {
                     chosen = Some((trial, cost));
                 }
@@ -693,20 +784,13 @@ impl<'a> Problem<'a> {
                 continue;
             }
             set = trial;
-            refine(self, &mut set, 0..k, 15);
+            refine(self, &mut set, 0..k, 8);
             self.sum(&set, &mut h, &mut one);
         }
         let k = set.len();
-        refine(self, &mut set, 0..k, 100);
+        refine(self, &mut set, 0..k, 60);
         self.prune(&mut set);
-        self.cap_boost(&mut set);
-        let mut filters: Vec<Filter> = set
-            .iter()
-            .map(Params::filter)
-            .filter(|f| f.gain_db.abs() >= 0.05)
-            .collect();
-        filters.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
-        filters
+        set
     }
 
     fn sum(&self, set: &[Params], h: &mut [f64], one: &mut [f64]) {
@@ -816,11 +900,12 @@ impl<'a> Problem<'a> {
             let mut gs = gains.clone();
             gs.push(x.p[1]);
             let cost = self.cost(&trial, &gs, self.level(&trial), scratch);
-            // the peaking filters first, then the best shelf
-            match out.len() {
-                0..=3 => out.push((x, cost)),
-                _ if cost < out[3].1 => out[3] = (x, cost),
-                _ => {}
+            // the best peaking filter first, then the best shelf
+            let slot = usize::from(x.kind != FilterKind::Peaking);
+            match out.get(slot) {
+                None => out.push((x, cost)),
+                Some(o) if cost < o.1 => out[slot] = (x, cost),
+                Some(_) => {}
             }
         }
         (out.into_iter().map(|c| c.0).collect(), i)
@@ -917,12 +1002,14 @@ impl<'a> Problem<'a> {
     /// the part of the range the filters leave alone, however deep their
     /// cuts elsewhere.
     fn median(&self, h: &[f64]) -> f64 {
-        let mut v: Vec<f64> = h
-            .iter()
-            .zip(&self.w)
-            .filter(|(_, w)| **w > 0.0)
-            .map(|(x, _)| *x)
-            .collect();
+        let mut v = self.scratch.borrow_mut();
+        v.clear();
+        v.extend(
+            h.iter()
+                .zip(&self.w)
+                .filter(|(_, w)| **w > 0.0)
+                .map(|(x, _)| *x),
+        );
         if v.is_empty() {
             return 0.0;
         }
@@ -977,7 +1064,7 @@ fn refine(
     let mut c0: f64 = r0.iter().map(|r| r * r).sum();
     let mut lambda = 1e-3;
     let mut col = vec![0.0; n];
-    let mut rj = Vec::new();
+
     let mut jac: Vec<Vec<f64>> = vec![Vec::new(); np];
     let mut hj = vec![0.0; n];
     for _ in 0..iterations {
@@ -996,23 +1083,40 @@ fn refine(
                 x.p[d] += step;
                 p.db_of(&x, &mut col);
                 for i in 0..n {
-                    hj[i] = h[i] - parts[fi][i] + col[i];
+                    hj[i] = (col[i] - parts[fi][i]) / step;
                 }
-                let mut gs = gains(set);
-                gs[fi] = x.p[1];
-                p.residuals(&hj, &gs, g, &mut rj);
-                jac[c].clear();
-                jac[c].extend(rj.iter().zip(&r0).map(|(a, b)| (a - b) / step));
+                // the gain's own row of the boost cost
+                let gain_row = (d == 1).then(|| {
+                    let slope = if set[fi].p[1] > 0.0 {
+                        BOOST_COST.sqrt()
+                    } else {
+                        0.0
+                    };
+                    (fi, slope)
+                });
+                p.jacobian_column(&hj, &h, gain_row, set.len(), &mut jac[c]);
             }
         }
-        p.residuals(&h, &gains(set), g + 1e-6, &mut rj);
-        jac[np - 1].clear();
-        jac[np - 1].extend(rj.iter().zip(&r0).map(|(a, b)| (a - b) / 1e-6));
-        // normal equations
+        // the common level: −√w on the fitted rows
+        p.level_column(set.len(), &mut jac[np - 1]);
+        // normal equations, over the rows some column moves (an inactive
+        // penalty row adds nothing)
+        let rows: Vec<usize> = (0..r0.len())
+            .filter(|&row| jac.iter().any(|c| c[row] != 0.0))
+            .collect();
+        for c in jac.iter_mut() {
+            let packed: Vec<f64> = rows.iter().map(|&row| c[row]).collect();
+            *c = packed;
+        }
+        let r_active: Vec<f64> = rows.iter().map(|&row| r0[row]).collect();
         let mut a = vec![vec![0.0; np]; np];
         let mut grad = vec![0.0; np];
         for i in 0..np {
-            grad[i] = -jac[i].iter().zip(&r0).map(|(x, y)| x * y).sum::<f64>();
+            grad[i] = -jac[i]
+                .iter()
+                .zip(&r_active)
+                .map(|(x, y)| x * y)
+                .sum::<f64>();
             for kk in i..np {
                 let v: f64 = jac[i].iter().zip(&jac[kk]).map(|(x, y)| x * y).sum();
                 a[i][kk] = v;
@@ -1047,7 +1151,7 @@ fn refine(
             p.residuals(&ht, &gains(&trial), gt, &mut rt);
             let ct: f64 = rt.iter().map(|r| r * r).sum();
             if ct.is_finite() && ct < c0 {
-                let done = c0 - ct <= 1e-10 * c0.max(1e-12);
+                let done = c0 - ct <= 1e-6 * c0.max(1e-12);
                 set.copy_from_slice(&trial);
                 parts = tparts;
                 h = ht;
