@@ -263,8 +263,8 @@ pub fn transition_hz(t_s: f64, volume_m3: f64) -> f64 {
 }
 
 /// The cookbook coefficients of `filters` at `fs` Hz, each as b0, b1, b2,
-/// a1, a2 (a0 = 1; direct form I: y[n] = b0·x[n] + b1·x[n−1] + b2·x[n−2]
-/// − a1·y[n−1] − a2·y[n−2]). Refused when a filter lies at or above 0.49·fs.
+/// a1, a2 (a0 = 1; direct form I: `y[n] = b0·x[n] + b1·x[n−1] + b2·x[n−2]
+/// − a1·y[n−1] − a2·y[n−2]`). Refused when a filter lies at or above 0.49·fs.
 pub fn coefficients(filters: &[Filter], fs: f64) -> Result<Vec<[f64; 5]>> {
     filters
         .iter()
