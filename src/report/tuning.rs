@@ -64,7 +64,7 @@ pub fn section(out: &mut String, f: &Folder, t: &TuningFile, n: &mut Counters) {
     if t.uncorrectable.is_empty() {
         out.push_str("<p class=\"muted\">No part of the range was left uncorrected.</p>");
     } else {
-        out.push_str("<h3>Left uncorrected</h3><ul>");
+        out.push_str("<p><strong>Left uncorrected:</strong></p><ul>");
         for r in &t.uncorrectable {
             let depth = match (r.depth_db, r.width_octaves) {
                 (Some(d), Some(w)) => {
@@ -83,7 +83,12 @@ pub fn section(out: &mut String, f: &Folder, t: &TuningFile, n: &mut Counters) {
         }
         out.push_str("</ul>");
     }
-    for w in t.warnings.iter() {
+    // the regions left alone are listed above; the other warnings here
+    for w in t
+        .warnings
+        .iter()
+        .filter(|w| w.code != crate::model::Code::TuningUncorrectable)
+    {
         let _ = write!(out, "<p class=\"muted\">Warning: {}</p>", esc(&w.message));
     }
 }

@@ -153,6 +153,15 @@ fn a_demo_room_is_tuned_below_its_transition_frequency_and_reported() {
     let d = tempfile::tempdir().unwrap();
     let dir = d.path();
     ok(dir, &["demo", "--out", "demo", "--no-plots"]);
+    // the demo's own tuning step: the treated room to a gently sloping
+    // target, in its own report
+    let own = json(&dir.join("demo/tuning/tuning.json"));
+    assert!(
+        own["after"]["mean_abs_db"].as_f64().unwrap()
+            < own["before"]["mean_abs_db"].as_f64().unwrap()
+    );
+    let page = std::fs::read_to_string(dir.join("demo/tuning.html")).unwrap();
+    assert!(page.contains("Correction filters"));
     std::fs::write(
         dir.join("slope.csv"),
         "frequency_hz,target_db,lower_db,upper_db\n20,4,2,2\n200,2,2,2\n1000,0,2,2\n20000,-4,2,2\n",
