@@ -282,6 +282,46 @@ pub fn coefficients(filters: &[Filter], fs: f64) -> Result<Vec<[f64; 5]>> {
         .collect()
 }
 
+/// The correction as a finite impulse response of `taps` samples at `fs`:
+/// the impulse response of the filters in cascade (each cookbook section
+/// is minimum phase: its zeros and poles lie inside the unit circle for
+/// any gain, so the cascade is too), its last eighth faded out with half
+/// a Hann window so that the cut does not ring. For a processor that
+/// takes an FIR instead of biquads; its own response
+/// ([`fir_response_db`]) says how far the truncation changes it.
+pub fn fir(filters: &[Filter], fs: f64, taps: usize) -> Vec<f64> {
+    let mut x = vec![0.0; taps];
+    if let Some(first) = x.first_mut() {
+        *first = 1.0;
+    }
+    for f in filters {
+        f.biquad(fs).process(&mut x);
+    }
+    crate::signal::window::fade_out(&mut x, taps / 8);
+    x
+}
+
+/// The magnitude of the FIR `h` at `fs` at each frequency, dB, by its
+/// discrete-time Fourier transform summed directly (Goertzel's recursion).
+pub fn fir_response_db(h: &[f64], fs: f64, frequency_hz: &[f64]) -> Vec<f64> {
+    frequency_hz
+        .iter()
+        .map(|&f| {
+            let w = std::f64::consts::TAU * f / fs;
+            let c = 2.0 * w.cos();
+            let (mut s1, mut s2) = (0.0, 0.0);
+            for &v in h {
+                let s0 = v + c * s1 - s2;
+                s2 = s1;
+                s1 = s0;
+            }
+            // |H|² of the sum over n of h[n]·e^{−jωn}
+            let power = s1 * s1 + s2 * s2 - c * s1 * s2;
+            10.0 * power.max(1e-30).log10()
+        })
+        .collect()
+}
+
 /// The summed response of `filters` at `fs`, dB, at each frequency.
 pub fn response_db(filters: &[Filter], fs: f64, frequency_hz: &[f64]) -> Vec<f64> {
     let grid = Grid::new(frequency_hz, fs);

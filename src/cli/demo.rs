@@ -259,6 +259,7 @@ fn tune(a: &Args) -> Result<()> {
         rates: Vec::new(),
         volume_m3: Some(ROOM_VOLUME_M3),
         above_transition: None,
+        fir_taps: None,
         command_line: std::env::args().collect(),
     })?;
     let t = &outcome.tuning;

@@ -104,6 +104,12 @@ pub struct Args {
     /// below (full). Needs --volume [default: broad].
     #[arg(long, value_enum, value_name = "broad|none|full")]
     pub above_transition: Option<Above>,
+    /// Also write the correction as a minimum-phase finite impulse
+    /// response of TAPS samples at the measurement's rate
+    /// (correction.wav, 32-bit float), for a processor that takes an FIR;
+    /// tuning.json's `fir` gives its response and what it predicts.
+    #[arg(long, value_name = "TAPS")]
+    pub fir: Option<usize>,
     /// Replace the derived files of an existing tuning folder.
     #[arg(long)]
     pub overwrite: bool,
@@ -142,6 +148,7 @@ pub fn run(a: Args) -> Result<()> {
             Above::None => AboveTransition::None,
             Above::Full => AboveTransition::Full,
         }),
+        fir_taps: a.fir,
         command_line: std::env::args().collect(),
     };
     let outcome = tuning::run(&job)?;
@@ -166,6 +173,12 @@ pub fn run(a: Args) -> Result<()> {
             b.after.max_abs_db,
             b.before.mean_abs_db,
             b.after.mean_abs_db
+        );
+    }
+    if let Some(f) = &t.fir {
+        println!(
+            "{}: {} taps at {} Hz, within {:.2} dB of the filters; largest deviation with it {:.1} dB",
+            f.file, f.taps, f.sample_rate_hz, f.max_difference_db, f.after.max_abs_db
         );
     }
     for w in t.warnings.iter() {

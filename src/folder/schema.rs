@@ -741,9 +741,33 @@ pub struct TuningFile {
     /// --volume).
     #[serde(default)]
     pub below_transition: Option<crate::analysis::tuning::BeforeAfter>,
+    /// With --fir: the correction as a minimum-phase finite impulse
+    /// response and its predicted effect.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fir: Option<FirRecord>,
     /// Warnings: `warnings` (the sentences) and `warning_codes` beside them.
     #[serde(flatten)]
     pub warnings: Warnings,
+}
+
+/// tuning.json's `fir`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FirRecord {
+    /// The WAV in the folder (32-bit float, one channel).
+    pub file: String,
+    /// Its length, samples.
+    pub taps: usize,
+    /// Its rate (the design rate), Hz.
+    pub sample_rate_hz: f64,
+    /// How it was made, in words.
+    pub method: String,
+    /// Its magnitude on `response.frequency_hz`, dB.
+    pub response_db: Vec<f64>,
+    /// Its largest difference from the filters' `correction_db` over the
+    /// range, dB (what the truncation costs).
+    pub max_difference_db: f64,
+    /// The deviation of measured + FIR from the target (level-aligned).
+    pub after: crate::analysis::target::TargetReport,
 }
 
 /// tuning.json's `transition`.

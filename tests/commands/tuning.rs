@@ -8,7 +8,7 @@
 use std::path::Path;
 
 use crate::cookbook::{Coeffs, FS, filter, highpass, lowpass, peaking, response};
-use crate::util::{json, ok, record_device, refused, snapshot};
+use crate::util::{json, ok, read_wav, record_device, refused, snapshot};
 
 /// A loudspeaker-like device: high-pass at 45 Hz, low-pass at 18 kHz, a
 /// +6 dB peak at 400 Hz (Q 3), a −5 dB dip at 2.5 kHz (Q 2).
@@ -61,6 +61,8 @@ fn measured_and_tuned(dir: &Path) -> serde_json::Value {
             "48000",
             "--rate",
             "96000",
+            "--fir",
+            "8192",
         ],
     );
     json(&dir.join("t/tuning.json"))
@@ -140,6 +142,27 @@ fn the_exported_filters_bring_a_known_device_within_a_flat_targets_tolerance() {
     assert!(
         diff.abs() < 1.0,
         "400 Hz is {diff:.2} dB from 1 kHz after tuning"
+    );
+    // the FIR: 8192 taps of 32-bit float; the device through it at 400 Hz
+    // and 1 kHz by the naive DTFT, as flat as through the biquads
+    let (rate, ch) = read_wav(&d.path().join("t/correction.wav"));
+    assert_eq!((rate, ch.len(), ch[0].len()), (48_000, 1, 8192));
+    assert_eq!(t["fir"]["taps"], 8192);
+    let dtft_db = |f: f64| {
+        let w = std::f64::consts::TAU * f / FS;
+        let (re, im) = ch[0]
+            .iter()
+            .enumerate()
+            .fold((0.0, 0.0), |(re, im), (n, v)| {
+                (re + v * (w * n as f64).cos(), im - v * (w * n as f64).sin())
+            });
+        10.0 * (re * re + im * im).log10()
+    };
+    let through_fir = |f: f64| db(&device(), f) + dtft_db(f);
+    let d400 = through_fir(400.0) - through_fir(1000.0);
+    assert!(
+        d400.abs() < 1.0,
+        "400 Hz is {d400:.2} dB from 1 kHz through the FIR"
     );
     let txt = std::fs::read_to_string(d.path().join("t/filters.txt")).unwrap();
     assert_eq!(
@@ -261,6 +284,7 @@ fn bad_tuning_options_get_one_clear_line() {
         (&["--range", "10,30000"][..], "--range"),
         (&["--rate", "1000"][..], "--rate"),
         (&["--volume", "0"][..], "--volume"),
+        (&["--fir", "10"][..], "--fir"),
     ] {
         let args = with(extra);
         let args: Vec<&str> = args.iter().map(String::as_str).collect();

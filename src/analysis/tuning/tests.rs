@@ -340,3 +340,44 @@ fn cuts_are_preferred_to_boosts() {
         t.filters
     );
 }
+
+#[test]
+fn the_fir_realises_the_filters_within_its_length() {
+    // a cut and a boost whose rings die within 8192 taps at 48 kHz
+    let filters = [
+        Filter {
+            kind: FilterKind::Peaking,
+            frequency_hz: 120.0,
+            gain_db: -6.0,
+            q: 4.0,
+        },
+        Filter {
+            kind: FilterKind::HighShelf,
+            frequency_hz: 3000.0,
+            gain_db: 2.0,
+            q: SHELF_Q,
+        },
+    ];
+    let f = grid();
+    let h = fir(&filters, FS, 8192);
+    let want = chain_db(&filters.map(|x| x.biquad(FS)), &f);
+    let got = fir_response_db(&h, FS, &f);
+    for ((x, a), b) in f.iter().zip(&got).zip(&want) {
+        assert!(
+            (a - b).abs() < 0.05,
+            "{x} Hz: FIR {a:.3} dB, filters {b:.3} dB"
+        );
+    }
+    // the naive DTFT at 1 kHz as the reference of the Goertzel sum
+    let w = std::f64::consts::TAU * 1000.0 / FS;
+    let (re, im) = h.iter().enumerate().fold((0.0, 0.0), |(re, im), (n, v)| {
+        (re + v * (w * n as f64).cos(), im - v * (w * n as f64).sin())
+    });
+    let naive = 10.0 * (re * re + im * im).log10();
+    assert!((fir_response_db(&h, FS, &[1000.0])[0] - naive).abs() < 1e-9);
+    // minimum phase: the energy comes first; half of it is in the first
+    // few samples
+    let total: f64 = h.iter().map(|v| v * v).sum();
+    let early: f64 = h[..16].iter().map(|v| v * v).sum();
+    assert!(early > 0.5 * total);
+}
