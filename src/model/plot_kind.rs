@@ -330,6 +330,7 @@ mod tests {
             .chain(&PlotKind::AVERAGE)
             .chain(&PlotKind::COMPARISON)
             .chain(&PlotKind::NOISE)
+            .chain(&PlotKind::TUNING)
             .copied()
             .collect();
         listed.sort_by_key(|k| PlotKind::ALL.iter().position(|a| a == k));
@@ -354,6 +355,7 @@ mod tests {
             "spectrogram",
             "impulse",
             "noise",
+            "tuning",
         ];
         for (i, stem) in order.iter().enumerate() {
             assert_eq!(plot_rank(&format!("plots/{stem}.png")), i, "{stem}");
