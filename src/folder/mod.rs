@@ -237,15 +237,20 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
     })
 }
 
+/// The `kind` its manifest.json states, when it has a readable one (only
+/// to choose the reader; the reader checks everything).
+pub fn kind_of(dir: &Path) -> Option<String> {
+    fs::read(dir.join("manifest.json"))
+        .ok()
+        .and_then(|b| serde_json::from_slice::<serde_json::Value>(&b).ok())
+        .and_then(|v| v.get("kind").and_then(|k| k.as_str()).map(str::to_string))
+}
+
 /// Opens a measurement, average, comparison or tuning folder (for what
 /// shows any of them, such as the report): a tuning folder through
 /// [`open_tuning`], everything else through [`open_with`].
 pub fn open_any(dir: &Path, options: OpenOptions) -> Result<Folder> {
-    let kind = fs::read(dir.join("manifest.json"))
-        .ok()
-        .and_then(|b| serde_json::from_slice::<serde_json::Value>(&b).ok())
-        .and_then(|v| v.get("kind").and_then(|k| k.as_str()).map(str::to_string));
-    if kind.as_deref() != Some("tuning") {
+    if kind_of(dir).as_deref() != Some("tuning") {
         return open_with(dir, options);
     }
     let t = open_tuning(dir)?;

@@ -164,6 +164,15 @@ fn the_exported_filters_bring_a_known_device_within_a_flat_targets_tolerance() {
         d400.abs() < 1.0,
         "400 Hz is {d400:.2} dB from 1 kHz through the FIR"
     );
+    // gliss compare takes the tuning's prediction as one curve: against the
+    // measurement it is the correction, about −6 dB at the 400 Hz peak
+    ok(d.path(), &["compare", "m", "t", "--out", "c", "--no-plots"]);
+    let c = json(&d.path().join("c/comparison.json"));
+    assert_eq!(c["inputs"][1]["label"], "t (predicted)");
+    let f = crate::util::numbers(&c["response"]["frequency_hz"]);
+    let k = f.iter().position(|&x| x >= 400.0).unwrap();
+    let diff = c["response"]["difference_db"][1][k].as_f64().unwrap();
+    assert!((diff + 6.0).abs() < 1.0, "{diff} dB at {} Hz", f[k]);
     let txt = std::fs::read_to_string(d.path().join("t/filters.txt")).unwrap();
     assert_eq!(
         txt.lines().filter(|l| l.starts_with("Filter ")).count(),
