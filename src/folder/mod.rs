@@ -179,7 +179,7 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
     }
     if value.get("kind").and_then(serde_json::Value::as_str) == Some("tuning") {
         return Err(Error::input(format!(
-            "{name} is a tuning folder (gliss tune): it holds correction filters, not a measurement; give it to gliss report, type its filters.txt into the processor, and measure again to see the result"
+            "{name} is a tuning folder (gliss tune): it holds correction filters, not a measurement; give it to gliss report, or to gliss compare beside a measurement (its predicted response is compared), type its filters.txt into the processor, and measure again to see the result"
         )));
     }
     let not_ours = |e: serde_json::Error| {
