@@ -416,6 +416,12 @@ pub fn design(
     }
     let f: Vec<f64> = idx.iter().map(|&i| frequency_hz[i]).collect();
     let m: Vec<f64> = idx.iter().map(|&i| measured_db[i]).collect();
+    if let Some(k) = m.iter().position(|v| !v.is_finite()) {
+        return Err(Error::input(format!(
+            "the response has no finite level at {:.1} Hz; narrow --range to where the measurement holds a response",
+            f[k]
+        )));
+    }
     let points: Vec<_> = f.iter().map(|&x| target.at(x)).collect();
     let t: Vec<f64> = points
         .iter()

@@ -381,3 +381,23 @@ fn the_fir_realises_the_filters_within_its_length() {
     let early: f64 = h[..16].iter().map(|v| v * v).sum();
     assert!(early > 0.5 * total);
 }
+
+#[test]
+fn a_response_on_its_target_gets_no_filters_and_a_silent_one_is_refused() {
+    let f = grid();
+    // 2 dB above a flat target everywhere: the level alignment takes it out
+    let t = design(
+        &f,
+        &vec![2.0; f.len()],
+        &flat_target(),
+        &settings((100.0, 10_000.0)),
+    )
+    .unwrap();
+    assert!(t.filters.is_empty(), "{:?}", t.filters);
+    assert!(t.after.max_abs_db < 1e-9 && t.uncorrectable.is_empty());
+    let mut m = vec![0.0; f.len()];
+    let k = f.iter().position(|&x| x > 1000.0).unwrap();
+    m[k] = f64::NEG_INFINITY;
+    let e = design(&f, &m, &flat_target(), &settings((100.0, 10_000.0))).unwrap_err();
+    assert!(e.message().contains("no finite level"), "{e}");
+}
