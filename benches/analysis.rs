@@ -122,6 +122,7 @@ fn bench(c: &mut Criterion) {
     g.finish();
 
     impedance(c);
+    tuning(c);
 }
 
 /// Impedance and the small-signal fit for a 5 s sweep (1 s tail) through
@@ -160,6 +161,37 @@ fn impedance(c: &mut Criterion) {
     let zc = z.grid_complex();
     g.bench_function("the small-signal fit alone", |b| {
         b.iter(|| thiele_small::thiele_small(black_box(&z.frequency_hz), &zc, None).unwrap())
+    });
+    g.finish();
+}
+
+/// Designing 10 correction filters for the committed rehearsal room's
+/// average (its 1/6-octave response on the 48-per-octave grid, 20 Hz to
+/// 20 kHz) towards a gently sloping target: greedy placement, the joint
+/// Levenberg–Marquardt refinement, pruning and the boost cap.
+fn tuning(c: &mut Criterion) {
+    use gliss::analysis::target::Target;
+    use gliss::analysis::tuning::{AboveTransition, TuneSettings, design};
+    let dir =
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("measurements/rehearsal-room/after");
+    let f = gliss::folder::open(&dir).expect("the committed example");
+    let (_, r) = f.measurement("the example is an average").unwrap();
+    let target = Target::parse("20 4 2\n200 2 2\n1000 0 2\n20000 -4 2\n").expect("a valid target");
+    let settings = TuneSettings {
+        range_hz: (20.0, 19_000.0),
+        filters: 10,
+        max_boost_db: 6.0,
+        max_cut_db: 15.0,
+        q_range: (0.3, 8.0),
+        sample_rate_hz: 48_000.0,
+        transition_hz: Some(86.0),
+        above_transition: AboveTransition::Broad,
+    };
+    let (fr, m) = (&r.response.frequency_hz, &r.response.magnitude_db);
+    let mut g = c.benchmark_group("tuning");
+    g.sample_size(20);
+    g.bench_function("10 filters for the rehearsal room's average", |b| {
+        b.iter(|| design(black_box(fr), black_box(m), &target, &settings).unwrap())
     });
     g.finish();
 }

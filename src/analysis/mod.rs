@@ -34,6 +34,7 @@ pub mod speech;
 pub mod sweep_track;
 pub mod target;
 pub mod thiele_small;
+pub mod tuning;
 
 use crate::deconv;
 use crate::error::{Error, Result};

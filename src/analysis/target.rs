@@ -214,7 +214,7 @@ impl Target {
 /// Weights of the grid points inside [lo, hi] on a log-frequency axis:
 /// each point stands for the stretch halfway to its neighbours, cut to
 /// the range (midpoint rule). Returns (index, weight in octaves).
-fn log_weights(frequency_hz: &[f64], (lo, hi): (f64, f64)) -> Vec<(usize, f64)> {
+pub(crate) fn log_weights(frequency_hz: &[f64], (lo, hi): (f64, f64)) -> Vec<(usize, f64)> {
     let inside: Vec<usize> = (0..frequency_hz.len())
         .filter(|&i| {
             let f = frequency_hz[i];

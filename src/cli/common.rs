@@ -505,7 +505,7 @@ pub fn read_calibration(path: &Path) -> Result<(Calibration, FileEntry)> {
 
 /// Reads an input file named on the command line; returns its bytes and
 /// its manifest entry (path as given, role "input", SHA-256).
-fn read_input(path: &Path) -> Result<(Vec<u8>, FileEntry)> {
+pub fn read_input(path: &Path) -> Result<(Vec<u8>, FileEntry)> {
     let bytes = std::fs::read(path).map_err(|e| Error::io("read", path, &e))?;
     let entry = FileEntry {
         name: path.display().to_string(),

@@ -23,7 +23,8 @@ comparison.json, comparison.csv and plots/compare-*.png."
 )]
 pub struct Args {
     /// The folders: the reference (before) first, then the others
-    /// (measurements or averages).
+    /// (measurements or averages; a tuning folder from gliss tune gives
+    /// its predicted response, without bands).
     #[arg(value_name = "DIR", required = true)]
     pub inputs: Vec<PathBuf>,
     /// The new comparison folder.

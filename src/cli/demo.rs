@@ -22,13 +22,14 @@ use gliss::signal::wav::{SampleEncoding, decode_wav, encode_wav};
 2.6 m rehearsal room, measured at three microphone positions (1.2, 1.8 and 2.4 m); the \
 room is then treated (panels at the first reflection points and on the rear wall, two \
 corner bass traps) and measured again at the same positions. gliss averages each \
-condition, compares them with the room's volume, and writes the report, judging T30 against \
-the brief of 0.3 to 0.5 s per octave band. DIR gets \
-before-1..3, after-1..3 (measurements), before and after (averages), comparison and \
-report.html. With --single, DIR is one measurement of the bare room at 1.2 m. With \
---directivity, DIR gets the Kestrel 5 measured around both orbits at 10° (70 folders \
-horizontal0 … vertical-170, gated before the room's first reflection with the on-axis \
-gate), their reduction in directivity/ (gliss directivity) and report.html.
+condition, compares them with the room's volume, tunes the treated room's positions to a \
+gently sloping target (correction filters, as gliss tune), and writes the report, judging T30 \
+against the brief of 0.3 to 0.5 s per octave band. DIR gets \
+before-1..3, after-1..3 (measurements), before and after (averages), comparison, target.csv, \
+tuning, report.html and tuning.html (the tuning's report). With --single, DIR is one measurement \
+of the bare room at 1.2 m. With --directivity, DIR gets the Kestrel 5 measured around both \
+orbits at 10° (70 folders horizontal0 … vertical-170, gated before the room's first reflection \
+with the on-axis gate), their reduction in directivity/ (gliss directivity) and report.html.
 
 Everything in the demo is simulated: the Kestrel 5 monitor and the rehearsal room are the \
 project's own inventions, rendered in software, and no sound is played."
@@ -69,6 +70,14 @@ pub struct Args {
 /// octave band (the scenario's own choice for a small rehearsal room, not
 /// a standard's), drawn and judged on the report's first page.
 pub const BRIEF_RT: &str = "0.3,0.5";
+
+/// The story's target for tuning the treated room: a gentle slope from
+/// +3 dB at 20 Hz to −3 dB at 20 kHz (a straight line on a log axis),
+/// ±3 dB (the scenario's own choice, not a standard's).
+pub const TUNING_TARGET: &str = "# gliss demo: a gently sloping target, +3 dB at 20 Hz to -3 dB at 20 kHz, +-3 dB\nfrequency_hz,target_db,tolerance_db\n20,3,3\n20000,-3,3\n";
+
+/// The range the story tunes, Hz: where the Kestrel 5 plays.
+pub const TUNING_RANGE_HZ: (f64, f64) = (40.0, 16_000.0);
 
 /// Volume of the demo room, m³ (4.6 × 3.8 × 2.6 m).
 pub const ROOM_VOLUME_M3: f64 = 4.6 * 3.8 * 2.6;
@@ -250,8 +259,48 @@ pub fn run(a: Args) -> Result<()> {
     story(&a, &bare)
 }
 
+/// The story's tuning step: the treated room's three positions (the
+/// loudspeaker heard around the listening position) tuned to
+/// [`TUNING_TARGET`], written beside the folders as target.csv.
+fn tune(a: &Args) -> Result<()> {
+    use gliss::analysis::target::Target;
+    use gliss::session::tuning::{self, TuneJob};
+    let path = a.out.join("target.csv");
+    gliss::folder::write::write_replacing(&path, TUNING_TARGET.as_bytes(), a.output.overwrite)?;
+    let (bytes, target_file) = common::read_input(&path)?;
+    let target = Target::parse(&String::from_utf8_lossy(&bytes))?;
+    let outcome = tuning::run(&TuneJob {
+        out: a.out.join("tuning"),
+        overwrite: a.output.overwrite,
+        plots: !a.output.no_plots,
+        inputs: (1..=3).map(|k| a.out.join(format!("after-{k}"))).collect(),
+        target,
+        target_file,
+        range: Some(TUNING_RANGE_HZ),
+        filters: 10,
+        max_boost_db: 6.0,
+        max_cut_db: 15.0,
+        q_range: (0.3, 8.0),
+        rates: Vec::new(),
+        volume_m3: Some(ROOM_VOLUME_M3),
+        above_transition: None,
+        fir_taps: None,
+        command_line: std::env::args().collect(),
+    })?;
+    let t = &outcome.tuning;
+    println!(
+        "tuned the treated room to a gently sloping target: {} filters, largest deviation {:.1} → {:.1} dB over {:.0}–{:.0} Hz (predicted)",
+        t.filters.len(),
+        t.before.max_abs_db,
+        t.after.max_abs_db,
+        TUNING_RANGE_HZ.0,
+        TUNING_RANGE_HZ.1
+    );
+    Ok(())
+}
+
 /// The whole story: positions before and after treatment, averaged,
-/// compared and reported.
+/// compared, tuned and reported.
 fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
     println!(
         "SIMULATED: the Kestrel 5 monitor (virtual) in a bare 4.6 × 3.8 × 2.6 m rehearsal room (virtual), three microphone positions, before and after treatment"
@@ -347,6 +396,8 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
     written.push("comparison".into());
     println!("compared before and after treatment (room volume {ROOM_VOLUME_M3:.1} m³):");
     common::print_octave_verdicts(&cmp, 1);
+    tune(a)?;
+    written.push("tuning".into());
     let report = a.out.join("report.html");
     super::report::run(super::report::Args {
         // the positions last: the report puts them in its appendix
@@ -365,11 +416,22 @@ fn story(a: &Args, bare: &VirtualSystem) -> Result<()> {
         show_changed_raw: false,
         target_rt: Some(BRIEF_RT.to_string()),
     })?;
+    // the tuning's own report: the plan for the processor, with the
+    // treated room it was made from (the story's report stays within its
+    // ten A4 pages)
+    super::report::run(super::report::Args {
+        dirs: vec![a.out.join("tuning"), a.out.join("after")],
+        out: a.out.join("tuning.html"),
+        overwrite: a.output.overwrite,
+        show_changed_raw: false,
+        target_rt: None,
+    })?;
     println!("wrote {}:", common::show(&a.out));
     for w in &written {
         println!("  {w}/");
     }
     println!("  report.html  (open it in a browser: the comparison, then each average)");
+    println!("  tuning.html  (the correction filters for the treated room, with target.csv)");
     Ok(())
 }
 

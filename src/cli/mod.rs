@@ -17,6 +17,7 @@ mod noise;
 mod reanalyze;
 mod report;
 mod sweep;
+mod tune;
 
 use std::process::ExitCode;
 
@@ -69,6 +70,8 @@ enum Command {
     Report(report::Args),
     /// Background noise from a calibrated recording: Leq per band, dB(A), noise rating (NR).
     Noise(noise::Args),
+    /// Correction filters (parametric EQ) that bring a measured response to a target curve.
+    Tune(tune::Args),
     /// Write one curve of a measurement folder (response, distortion, bands, impulse) as CSV or JSON.
     Export(export::Args),
     /// Measurements at angles around a loudspeaker into polar data, beamwidth and the ANSI/CTA-2034-A spatial averages.
@@ -88,6 +91,7 @@ fn wants_plots(command: &Command) -> bool {
         Command::Noise(a) => !a.no_plots,
         Command::Align(a) => !a.no_plots,
         Command::Directivity(a) => !a.no_plots,
+        Command::Tune(a) => !a.no_plots,
         _ => false,
     }
 }
@@ -164,6 +168,7 @@ pub fn main() -> ExitCode {
         Command::Noise(a) => noise::run(a),
         Command::Align(a) => align::run(a),
         Command::Directivity(a) => directivity::run(a),
+        Command::Tune(a) => tune::run(a),
     };
     match result {
         Ok(()) => {

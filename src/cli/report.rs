@@ -27,8 +27,8 @@ are only read, never changed.
 it, or e.g. chromium --headless --no-pdf-header-footer --print-to-pdf=report.pdf report.html."
 )]
 pub struct Args {
-    /// Measurement or comparison folders (each with manifest.json), in the
-    /// order the report shows them.
+    /// Measurement, comparison or tuning folders (each with
+    /// manifest.json), in the order the report shows them.
     #[arg(value_name = "DIR", required = true)]
     pub dirs: Vec<PathBuf>,
     /// The HTML file to write (its name must end in .html or .htm; a PDF

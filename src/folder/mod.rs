@@ -21,7 +21,7 @@ use std::path::{Component, Path, PathBuf};
 use crate::error::{Error, Result};
 use schema::{
     AlignManifest, Comparison, ComparisonManifest, DirectivityFile, DirectivityManifest, FileEntry,
-    FileRole, FolderKind, Manifest, NoiseManifest, Results,
+    FileRole, FolderKind, Manifest, NoiseManifest, Results, TuningFile, TuningManifest,
 };
 pub use write::{MeasurementFolder, sha256_hex};
 
@@ -76,6 +76,14 @@ pub enum Content {
         manifest: Box<DirectivityManifest>,
         /// directivity.json.
         directivity: Box<DirectivityFile>,
+    },
+    /// A tuning: its manifest and tuning.json (read by [`open_tuning`];
+    /// [`open`] refuses a tuning folder).
+    Tuning {
+        /// The manifest.
+        manifest: Box<TuningManifest>,
+        /// The filters and their predicted effect.
+        tuning: Box<TuningFile>,
     },
 }
 
@@ -190,6 +198,11 @@ pub fn open_with(dir: &Path, options: OpenOptions) -> Result<Folder> {
     if value.get("kind").and_then(serde_json::Value::as_str) == Some("directivity") {
         return Err(Error::input(format!(
             "{name} is a directivity folder (gliss directivity): it holds a loudspeaker's responses by angle and the spatial averages, not a measurement; report it with gliss report {name}, or give its measurement folders"
+        )));
+    }
+    if value.get("kind").and_then(serde_json::Value::as_str) == Some("tuning") {
+        return Err(Error::input(format!(
+            "{name} is a tuning folder (gliss tune): it holds correction filters, not a measurement; give it to gliss report, or to gliss compare beside a measurement (its predicted response is compared), type its filters.txt into the processor, and measure again to see the result"
         )));
     }
     let not_ours = |e: serde_json::Error| {
@@ -547,27 +560,128 @@ pub struct DirectivityFolder {
     pub files: Vec<FileCheck>,
 }
 
-/// Opens any folder gliss writes that a report shows: a directivity folder
-/// through [`open_directivity`], every other kind through [`open_with`].
-pub fn open_any(dir: &Path, options: OpenOptions) -> Result<Folder> {
-    let is_directivity = fs::read(dir.join("manifest.json"))
+/// The `kind` its manifest.json states, when it has a readable one (only
+/// to choose the reader; the reader checks everything).
+pub fn kind_of(dir: &Path) -> Option<String> {
+    fs::read(dir.join("manifest.json"))
         .ok()
         .and_then(|b| serde_json::from_slice::<serde_json::Value>(&b).ok())
-        .is_some_and(|v| v.get("kind").and_then(serde_json::Value::as_str) == Some("directivity"));
-    if !is_directivity {
-        return open_with(dir, options);
+        .and_then(|v| v.get("kind").and_then(|k| k.as_str()).map(str::to_string))
+}
+
+/// Opens any folder gliss writes that a report shows: a directivity folder
+/// through [`open_directivity`], a tuning through [`open_tuning`], every
+/// other kind through [`open_with`].
+pub fn open_any(dir: &Path, options: OpenOptions) -> Result<Folder> {
+    match kind_of(dir).as_deref() {
+        Some("directivity") => {
+            let d = open_directivity(dir)?;
+            Ok(Folder {
+                dir: d.dir,
+                kind: FolderKind::Directivity,
+                manifest_sha256: d.manifest_sha256,
+                content_sha256: d.content_sha256,
+                files: d.files,
+                content: Content::Directivity {
+                    manifest: Box::new(d.manifest),
+                    directivity: Box::new(d.directivity),
+                },
+            })
+        }
+        Some("tuning") => {
+            let t = open_tuning(dir)?;
+            Ok(Folder {
+                dir: t.dir,
+                kind: FolderKind::Tuning,
+                manifest_sha256: t.manifest_sha256,
+                content_sha256: t.content_sha256,
+                files: t.files,
+                content: Content::Tuning {
+                    manifest: Box::new(t.manifest),
+                    tuning: Box::new(t.tuning),
+                },
+            })
+        }
+        _ => open_with(dir, options),
     }
-    let d = open_directivity(dir)?;
-    Ok(Folder {
-        dir: d.dir,
-        kind: FolderKind::Directivity,
-        manifest_sha256: d.manifest_sha256,
-        content_sha256: d.content_sha256,
-        files: d.files,
-        content: Content::Directivity {
-            manifest: Box::new(d.manifest),
-            directivity: Box::new(d.directivity),
-        },
+}
+
+/// A tuning folder, opened and checked.
+#[derive(Debug, Clone)]
+pub struct TuningFolder {
+    /// The folder as given.
+    pub dir: PathBuf,
+    /// SHA-256 of its manifest.json.
+    pub manifest_sha256: String,
+    /// SHA-256 of its tuning.json.
+    pub content_sha256: String,
+    /// Every file the manifest lists, checked against its hash.
+    pub files: Vec<FileCheck>,
+    /// The manifest.
+    pub manifest: TuningManifest,
+    /// tuning.json.
+    pub tuning: TuningFile,
+}
+
+/// Opens a tuning folder (`gliss tune`): the one reader of that kind, with
+/// the checks of [`open`] — complete, every listed file matching its
+/// SHA-256, tuning.json the one listed.
+pub fn open_tuning(dir: &Path) -> Result<TuningFolder> {
+    let name = dir.display();
+    let mpath = dir.join("manifest.json");
+    if !dir.is_dir() || !mpath.is_file() {
+        return Err(Error::input(format!(
+            "{name} is not a tuning folder (no manifest.json); give a folder written by gliss tune"
+        )));
+    }
+    let mbytes = fs::read(&mpath).map_err(|e| Error::io("read", &mpath, &e))?;
+    let value: serde_json::Value = serde_json::from_slice(&mbytes).map_err(|e| {
+        Error::input(format!(
+            "{name}/manifest.json is not valid JSON ({e}); design the tuning again into a new folder"
+        ))
+    })?;
+    if value.get("kind").and_then(serde_json::Value::as_str) != Some("tuning") {
+        return Err(Error::input(format!(
+            "{name} is not a tuning folder (its manifest says it is {}); give a folder written by gliss tune",
+            value
+                .get("kind")
+                .and_then(serde_json::Value::as_str)
+                .unwrap_or("a measurement")
+        )));
+    }
+    if value.get("complete").and_then(serde_json::Value::as_bool) != Some(true) {
+        return Err(Error::input(format!(
+            "{name} is an incomplete tuning folder; run gliss tune again with --overwrite"
+        )));
+    }
+    let manifest: TuningManifest = serde_json::from_value(value).map_err(|e| {
+        Error::input(format!(
+            "{name}/manifest.json is not a gliss tuning manifest ({e}); run gliss tune again into a new folder"
+        ))
+    })?;
+    let files = check_files(dir, &manifest.files, OpenOptions::default())?;
+    let again = "gliss tune ... --overwrite";
+    let (bytes, sha) = read_content(dir, "tuning.json", "run gliss tune again with --overwrite")?;
+    content_matches(dir, "tuning.json", &sha, &files, again)?;
+    let tuning: TuningFile = serde_json::from_slice(&bytes).map_err(|e| {
+        Error::input(format!(
+            "{name}/tuning.json is not a gliss tuning file ({e}); run gliss tune again with --overwrite"
+        ))
+    })?;
+    if tuning.schema_version > schema::TUNING_SCHEMA_VERSION {
+        return Err(Error::input(format!(
+            "{name}/tuning.json is schema version {}, newer than this gliss reads ({}); use a newer gliss",
+            tuning.schema_version,
+            schema::TUNING_SCHEMA_VERSION
+        )));
+    }
+    Ok(TuningFolder {
+        dir: dir.to_path_buf(),
+        manifest_sha256: sha256_hex(&mbytes),
+        content_sha256: sha,
+        files,
+        manifest,
+        tuning,
     })
 }
 

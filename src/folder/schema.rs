@@ -42,6 +42,8 @@ pub enum FolderKind {
     /// Measurements around a loudspeaker reduced to its directivity
     /// (directivity.json, `gliss directivity`).
     Directivity,
+    /// Correction filters designed for a response (tuning.json, `gliss tune`).
+    Tuning,
 }
 
 impl FolderKind {
@@ -55,6 +57,7 @@ impl FolderKind {
             FolderKind::Noise => "a noise measurement",
             FolderKind::Align => "an alignment",
             FolderKind::Directivity => "a directivity reduction",
+            FolderKind::Tuning => "a tuning",
         }
     }
 }
@@ -767,6 +770,147 @@ pub struct DirectivityFile {
     /// The reduction: responses by angle, beamwidths, curves, warnings.
     #[serde(flatten)]
     pub directivity: crate::analysis::directivity::Directivity,
+}
+
+/// The manifest of a tuning folder (`gliss tune`): the filters designed
+/// for the response of its inputs, in tuning.json ([`TuningFile`]).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TuningManifest {
+    /// Layout version.
+    pub schema_version: u32,
+    /// "gliss".
+    pub tool: String,
+    /// Version of gliss that wrote the folder.
+    pub tool_version: String,
+    /// When (UTC, RFC 3339).
+    pub created_utc: String,
+    /// Always true once written.
+    pub complete: bool,
+    /// Always `tuning`.
+    pub kind: FolderKind,
+    /// The command line that made it.
+    pub command_line: Vec<String>,
+    /// The measurement or average folders tuned, with their hashes (more
+    /// than one: their power average was tuned).
+    pub inputs: Vec<InputRecord>,
+    /// The target curve file as given, with its hash.
+    pub target: FileEntry,
+    /// Every file of the folder with its SHA-256.
+    pub files: Vec<FileEntry>,
+}
+
+/// Version of tuning.json.
+pub const TUNING_SCHEMA_VERSION: u32 = 1;
+
+/// The order of every coefficient row of tuning.json, in words.
+pub const COEFFICIENT_ORDER: &str = "b0, b1, b2, a1, a2: normalised so that a0 = 1; direct form I: y[n] = b0*x[n] + b1*x[n-1] + b2*x[n-2] - a1*y[n-1] - a2*y[n-2]";
+
+/// tuning.json: the correction filters, their coefficients per rate, the
+/// predicted effect and what was left alone (schema version 1; fields are
+/// added, never renamed).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TuningFile {
+    /// Layout version ([`TUNING_SCHEMA_VERSION`]).
+    pub schema_version: u32,
+    /// The limits the design kept to.
+    pub settings: crate::analysis::tuning::TuneSettings,
+    /// The room's transition frequency and what it rests on (`null`
+    /// without --volume).
+    pub transition: Option<TransitionRecord>,
+    /// The filters, by frequency, in the order they are applied (any
+    /// order gives the same response).
+    pub filters: Vec<crate::analysis::tuning::Filter>,
+    /// The order of each row of `coefficients[].sections`
+    /// ([`COEFFICIENT_ORDER`]).
+    pub coefficient_order: String,
+    /// The filters' cookbook coefficients for each requested rate.
+    pub coefficients: Vec<CoefficientSet>,
+    /// The response tuned, the target, the correction and the prediction
+    /// on the log-frequency grid within the range.
+    pub response: TuningResponse,
+    /// The measured response's deviation from the target, level-aligned.
+    pub before: crate::analysis::target::TargetReport,
+    /// The predicted response's deviation, level-aligned again.
+    pub after: crate::analysis::target::TargetReport,
+    /// The regions left alone, with their reasons.
+    pub uncorrectable: Vec<crate::analysis::tuning::UncorrectableRegion>,
+    /// The deviations before and after below the transition frequency
+    /// (each level-aligned over that part alone; `null` without
+    /// --volume).
+    #[serde(default)]
+    pub below_transition: Option<crate::analysis::tuning::BeforeAfter>,
+    /// With --fir: the correction as a minimum-phase finite impulse
+    /// response and its predicted effect.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fir: Option<FirRecord>,
+    /// Warnings: `warnings` (the sentences) and `warning_codes` beside them.
+    #[serde(flatten)]
+    pub warnings: Warnings,
+}
+
+/// tuning.json's `fir`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FirRecord {
+    /// The WAV in the folder (32-bit float, one channel).
+    pub file: String,
+    /// Its length, samples.
+    pub taps: usize,
+    /// Its rate (the design rate), Hz.
+    pub sample_rate_hz: f64,
+    /// How it was made, in words.
+    pub method: String,
+    /// Its magnitude on `response.frequency_hz`, dB.
+    pub response_db: Vec<f64>,
+    /// Its largest difference from the filters' `correction_db` over the
+    /// range, dB (what the truncation costs).
+    pub max_difference_db: f64,
+    /// The deviation of measured + FIR from the target (level-aligned).
+    pub after: crate::analysis::target::TargetReport,
+}
+
+/// tuning.json's `transition`.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct TransitionRecord {
+    /// 2000·√(T/V), Hz.
+    pub frequency_hz: f64,
+    /// The reverberation time it uses: the mean T30 (T20 where T30 is
+    /// missing) of the 500 Hz and 1 kHz octaves, s.
+    pub t_s: f64,
+    /// The room's volume (--volume), m³.
+    pub volume_m3: f64,
+}
+
+/// The coefficients of every filter at one rate.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CoefficientSet {
+    /// The rate, Hz.
+    pub sample_rate_hz: f64,
+    /// One row per filter, in the order of `filters`: b0, b1, b2, a1, a2.
+    pub sections: Vec<[f64; 5]>,
+}
+
+/// tuning.json's `response`: curves on one grid, dB.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TuningResponse {
+    /// The smoothing of the response tuned (as its folder has it).
+    pub smoothing: Smoothing,
+    /// Grid frequencies, Hz.
+    pub frequency_hz: Vec<f64>,
+    /// The measured response as read (dB re the sweep, arbitrary level).
+    pub measured_db: Vec<f64>,
+    /// The target.
+    pub target_db: Vec<f64>,
+    /// The target's tolerance below it (positive dB); empty when the
+    /// target has none.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub tolerance_lower_db: Vec<f64>,
+    /// The target's tolerance above it (positive dB); likewise.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub tolerance_upper_db: Vec<f64>,
+    /// The filters' summed response at the design rate.
+    pub correction_db: Vec<f64>,
+    /// measured_db + correction_db: the predicted response.
+    pub predicted_db: Vec<f64>,
 }
 
 fn schema_version() -> u32 {

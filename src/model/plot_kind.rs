@@ -60,6 +60,9 @@ pub enum PlotKind {
     /// A directivity folder's spatial averages (ANSI/CTA-2034-A) with
     /// their directivity indices.
     SpatialAverages,
+    /// A tuning folder's measured, predicted and target responses with
+    /// the correction filters.
+    Tuning,
 }
 
 /// What a caption says about the folder it describes. Fill what the
@@ -84,11 +87,11 @@ pub struct CaptionFacts<'a> {
 }
 
 /// The rank after every known plot: where unknown files go in the report.
-pub const UNKNOWN_RANK: usize = 20;
+pub const UNKNOWN_RANK: usize = 21;
 
 impl PlotKind {
     /// Every plot, in the order of the variants.
-    pub const ALL: [PlotKind; 22] = [
+    pub const ALL: [PlotKind; 23] = [
         PlotKind::Response,
         PlotKind::Impulse,
         PlotKind::Phase,
@@ -111,6 +114,7 @@ impl PlotKind {
         PlotKind::PolarMap,
         PlotKind::PolarDiagram,
         PlotKind::SpatialAverages,
+        PlotKind::Tuning,
     ];
 
     /// The plots of one measurement, in the order they are drawn (and
@@ -128,6 +132,9 @@ impl PlotKind {
         PlotKind::Reverberation,
         PlotKind::Mtf,
     ];
+
+    /// The plots of a tuning folder.
+    pub const TUNING: [PlotKind; 1] = [PlotKind::Tuning];
 
     /// The plots of a noise folder.
     pub const NOISE: [PlotKind; 1] = [PlotKind::Noise];
@@ -175,6 +182,7 @@ impl PlotKind {
             PlotKind::PolarMap => "plots/polar-map.png",
             PlotKind::PolarDiagram => "plots/polar-diagram.png",
             PlotKind::SpatialAverages => "plots/spatial-averages.png",
+            PlotKind::Tuning => "plots/tuning.png",
         }
     }
 
@@ -205,6 +213,7 @@ impl PlotKind {
             PlotKind::PolarDiagram => 17,
             PlotKind::AlignSum => 18,
             PlotKind::AlignPhase => 19,
+            PlotKind::Tuning => 20,
         }
     }
 
@@ -286,6 +295,7 @@ impl PlotKind {
                 "The spatial averages of ANSI/CTA-2034-A: on axis, listening window, early reflections, sound power and the estimated in-room response (left axis), with the sound power and early reflections directivity indices (right axis); {}. Curves the measured angles cannot give are left out and named in the report.{gate}",
                 f.magnitude_reference
             ),
+            PlotKind::Tuning => format!("Tuning, {}: above, the measured response and the response predicted after the correction (each level-aligned to the target) over the target and its tolerance band; below, the correction of all filters together and, faintly, each filter's own curve (Audio EQ Cookbook biquads, exact responses).", f.smoothing),
         }
     }
 }
@@ -370,6 +380,7 @@ mod tests {
             .chain(&PlotKind::NOISE)
             .chain(&PlotKind::DIRECTIVITY)
             .chain(&PlotKind::ALIGN)
+            .chain(&PlotKind::TUNING)
             .copied()
             .collect();
         listed.sort_by_key(|k| PlotKind::ALL.iter().position(|a| a == k));
@@ -399,6 +410,7 @@ mod tests {
             "polar-diagram",
             "align-sum",
             "align-phase",
+            "tuning",
         ];
         for (i, stem) in order.iter().enumerate() {
             assert_eq!(plot_rank(&format!("plots/{stem}.png")), i, "{stem}");

@@ -192,6 +192,14 @@ codes! {
     /// A curve of the directivity reduction (ANSI/CTA-2034-A) is withheld:
     /// a position it needs was not measured.
     DirectivityWithheld = "directivity-withheld", Caution, Combining;
+    /// A tuning leaves regions of its range uncorrected (dips equalisation
+    /// should not fill, or above the transition frequency).
+    TuningUncorrectable = "tuning-uncorrectable", Note, Other;
+    /// A tuning of one position of a room without the room's transition
+    /// frequency: above it one position's response is not the room's.
+    TuningSinglePosition = "tuning-single-position", Caution, Combining;
+    /// The predicted response still leaves the target's tolerance.
+    TuningOutsideTolerance = "tuning-outside-tolerance", Caution, Other;
     /// A warning read from a file written before codes existed.
     Unclassified = "unclassified", Note, Other;
 }

@@ -43,6 +43,7 @@ mod phase;
 mod response;
 mod reverberation;
 mod spectrogram;
+pub mod tuning;
 
 pub use average_response::average_response_png;
 pub use average_reverberation::average_reverberation_png;

@@ -13,6 +13,7 @@ mod directivity;
 pub mod html;
 mod impedance;
 pub mod speech;
+mod tuning;
 
 use std::fmt::Write;
 
@@ -99,7 +100,10 @@ fn is_position(folders: &[Folder], k: usize) -> bool {
         Content::Measurement { manifest, results } => {
             results.average.is_some() && manifest.inputs.iter().any(|i| &i.folder == name)
         }
-        Content::Comparison { .. } | Content::Align { .. } | Content::Directivity { .. } => false,
+        Content::Comparison { .. }
+        | Content::Align { .. }
+        | Content::Directivity { .. }
+        | Content::Tuning { .. } => false,
     })
 }
 
@@ -109,7 +113,10 @@ fn is_compared(folders: &[Folder], name: &str) -> bool {
         Content::Comparison { comparison, .. } => {
             comparison.inputs.iter().any(|i| i.folder == name)
         }
-        Content::Measurement { .. } | Content::Align { .. } | Content::Directivity { .. } => false,
+        Content::Measurement { .. }
+        | Content::Align { .. }
+        | Content::Directivity { .. }
+        | Content::Tuning { .. } => false,
     })
 }
 
@@ -195,6 +202,9 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 manifest,
                 directivity: file,
             } => directivity::answer(&mut out, lead, manifest, file, &mut counters),
+            Content::Tuning { manifest, tuning } => {
+                tuning::answer(&mut out, lead, manifest, tuning)
+            }
         }
         out.push_str("</section>\n");
     }
@@ -245,6 +255,9 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 manifest.source.description.clone(),
                 file.directivity.warnings.len(),
             ),
+            Content::Tuning { manifest, tuning } => {
+                ("tuning", tuning::title(manifest), tuning.warnings.len())
+            }
         };
         let _ = write!(
             out,
@@ -305,6 +318,7 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
             Content::Directivity {
                 directivity: file, ..
             } => directivity::section(&mut out, f, file, i == 0, &mut counters),
+            Content::Tuning { tuning, .. } => tuning::section(&mut out, f, tuning, &mut counters),
         }
         out.push_str("</section>\n");
     }
@@ -346,6 +360,7 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
             Content::Directivity {
                 directivity: file, ..
             } => directivity::appendix(&mut out, file),
+            Content::Tuning { manifest, tuning } => tuning::appendix(&mut out, f, manifest, tuning),
         }
         out.push_str("</div>");
     }

@@ -82,6 +82,101 @@ pub fn read_input(dir: &Path, label: Option<&str>) -> Result<Input> {
     })
 }
 
+/// Reads a tuning folder (`gliss tune`) as an input of a comparison: the
+/// response it predicts (measured + the filters' exact response, at the
+/// tuned response's level), on the manifest of the first folder it tuned
+/// (found as the tuning recorded it, or beside the tuning folder). It has
+/// no impulse response and no bands: a comparison shows its curve only.
+pub fn read_tuning_input(dir: &Path, label: Option<&str>) -> Result<Input> {
+    let t = folder::open_tuning(dir)?;
+    let first = t
+        .manifest
+        .inputs
+        .first()
+        .ok_or_else(|| Error::input(format!("{} names no folder it tuned", dir.display())))?;
+    let given = PathBuf::from(&first.folder);
+    let beside = dir
+        .parent()
+        .map(|p| p.join(given.file_name().unwrap_or_default()));
+    let source = [Some(given.clone()), beside]
+        .into_iter()
+        .flatten()
+        .find(|p| p.join("manifest.json").is_file())
+        .ok_or_else(|| {
+            Error::input(format!(
+                "{} tuned {}, which is not found from here nor beside it; run gliss compare from where gliss tune was run",
+                dir.display(),
+                given.display()
+            ))
+        })?;
+    let base = read_input(&source, None)?;
+    let name = dir.file_name().map_or_else(
+        || dir.display().to_string(),
+        |n| n.to_string_lossy().into_owned(),
+    );
+    let r = &t.tuning.response;
+    let mut results = base.results;
+    results.response = crate::folder::schema::ResponseRecord {
+        smoothing: r.smoothing,
+        magnitude_reference: format!(
+            "{} + the correction filters of {name} (predicted)",
+            results.response.magnitude_reference
+        ),
+        frequency_hz: r.frequency_hz.clone(),
+        magnitude_db: r.predicted_db.clone(),
+        phase_deg: Vec::new(),
+        phase_unwrapped_deg: Vec::new(),
+        group_delay_s: Vec::new(),
+        minimum_phase_deg: Vec::new(),
+        excess_group_delay_s: Vec::new(),
+        gate: None,
+        spl_db: Vec::new(),
+        sensitivity_db_spl: Vec::new(),
+        sensitivity: None,
+        resolved: Vec::new(),
+    };
+    results.impulse = None;
+    results.bands.clear();
+    results.broadband = None;
+    results.speech = None;
+    results.distortion = None;
+    Ok(Input {
+        dir: dir.to_path_buf(),
+        record: InputRecord {
+            folder: dir.display().to_string(),
+            label: label.map_or_else(|| format!("{name} (predicted)"), str::to_string),
+            sha256: t.manifest_sha256,
+            results_sha256: t.content_sha256,
+        },
+        manifest: base.manifest,
+        results,
+    })
+}
+
+/// The inputs of a comparison: measurement and average folders through
+/// [`read_input`], a tuning folder's prediction through
+/// [`read_tuning_input`].
+fn read_compare_inputs(dirs: &[PathBuf], labels: &[String]) -> Result<Vec<Input>> {
+    if !labels.is_empty() && labels.len() != dirs.len() {
+        return Err(Error::parameter(format!(
+            "--labels gives {} labels for {} folders; give one per folder, in order",
+            labels.len(),
+            dirs.len()
+        )));
+    }
+    dirs.iter()
+        .enumerate()
+        .map(|(i, d)| {
+            let label = labels.get(i).map(String::as_str);
+            if folder::kind_of(d).as_deref() == Some("tuning") {
+                read_tuning_input(d, label)
+            } else {
+                read_input(d, label)
+            }
+        })
+        .collect()
+}
+
 /// Reads all inputs, with labels from `labels` (comma list) where given.
 pub fn read_inputs(dirs: &[PathBuf], labels: &[String]) -> Result<Vec<Input>> {
     if !labels.is_empty() && labels.len() != dirs.len() {
@@ -593,7 +688,7 @@ pub struct CompareJob {
 /// adds the absorption and the target, writes the folder.
 pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
     check_compare_job(job)?;
-    let inputs = read_inputs(&job.inputs, &job.labels)?;
+    let inputs = read_compare_inputs(&job.inputs, &job.labels)?;
     let folder = MeasurementFolder::check(&job.out, job.overwrite, &[])?;
     let mut warnings = Warnings::new();
     let grid = common_grid(&inputs, &mut warnings)?;

@@ -10,6 +10,7 @@ pub mod measure;
 pub mod noise;
 pub mod reanalyze;
 pub mod sweep_file;
+pub mod tuning;
 
 use std::path::{Path, PathBuf};
 

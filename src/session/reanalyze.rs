@@ -71,6 +71,12 @@ pub fn job(dir: &Path, s: &Settings) -> Result<Job> {
                 dir.display()
             )));
         }
+        Content::Tuning { .. } => {
+            return Err(Error::input(format!(
+                "{} is a tuning, not a measurement; run gliss tune again to design it with new settings",
+                dir.display()
+            )));
+        }
     };
     if manifest.kind == Some(FolderKind::Impedance) {
         return Err(Error::input(format!(

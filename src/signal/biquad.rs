@@ -76,6 +76,43 @@ impl Biquad {
         )
     }
 
+    /// High shelf at f0 with shelf slope S and gain in dB (S = 1 is the
+    /// steepest slope without overshoot, the same as Q = 1/√2).
+    pub fn high_shelf(fs: f64, f0: f64, slope: f64, gain_db: f64) -> Self {
+        let a = 10f64.powf(gain_db / 40.0);
+        let w0 = std::f64::consts::TAU * f0 / fs;
+        let c = w0.cos();
+        let alpha = w0.sin() / 2.0 * ((a + 1.0 / a) * (1.0 / slope - 1.0) + 2.0).sqrt();
+        let sa = 2.0 * a.sqrt() * alpha;
+        Self::normalised(
+            [
+                a * ((a + 1.0) + (a - 1.0) * c + sa),
+                -2.0 * a * ((a - 1.0) + (a + 1.0) * c),
+                a * ((a + 1.0) + (a - 1.0) * c - sa),
+            ],
+            [
+                (a + 1.0) - (a - 1.0) * c + sa,
+                2.0 * ((a - 1.0) - (a + 1.0) * c),
+                (a + 1.0) - (a - 1.0) * c - sa,
+            ],
+        )
+    }
+
+    /// |H(e^{jω})|² from cos ω and cos 2ω: |b0 + b1·z⁻¹ + b2·z⁻²|² over
+    /// |1 + a1·z⁻¹ + a2·z⁻²|², expanded (no complex arithmetic, for the
+    /// inner loop of a fit on a fixed grid).
+    pub fn power_at(&self, cos_w: f64, cos_2w: f64) -> f64 {
+        let [b0, b1, b2] = self.b;
+        let [a1, a2] = self.a;
+        let num = b0 * b0
+            + b1 * b1
+            + b2 * b2
+            + 2.0 * (b0 * b1 + b1 * b2) * cos_w
+            + 2.0 * b0 * b2 * cos_2w;
+        let den = 1.0 + a1 * a1 + a2 * a2 + 2.0 * (a1 + a1 * a2) * cos_w + 2.0 * a2 * cos_2w;
+        num / den
+    }
+
     /// Filters `x` in place (transposed direct form II, zero initial state).
     pub fn process(&self, x: &mut [f64]) {
         let [b0, b1, b2] = self.b;

@@ -30,4 +30,5 @@ mod speech;
 mod spine;
 mod sweep;
 mod target;
+mod tuning;
 mod wire;
