@@ -560,6 +560,12 @@ pub struct DirectivityFolder {
     pub files: Vec<FileCheck>,
 }
 
+/// Whether `dir` holds a manifest.json (a folder gliss wrote, or began
+/// to write); only to find a folder, which [`open`] then checks.
+pub fn has_manifest(dir: &Path) -> bool {
+    dir.join("manifest.json").is_file()
+}
+
 /// The `kind` its manifest.json states, when it has a readable one (only
 /// to choose the reader; the reader checks everything).
 pub fn kind_of(dir: &Path) -> Option<String> {

@@ -101,7 +101,7 @@ pub fn read_tuning_input(dir: &Path, label: Option<&str>) -> Result<Input> {
     let source = [Some(given.clone()), beside]
         .into_iter()
         .flatten()
-        .find(|p| p.join("manifest.json").is_file())
+        .find(|p| folder::has_manifest(p))
         .ok_or_else(|| {
             Error::input(format!(
                 "{} tuned {}, which is not found from here nor beside it; run gliss compare from where gliss tune was run",
