@@ -248,31 +248,12 @@ fn golden_max(f: impl Fn(f64) -> f64, a: f64, b: f64, iterations: usize) -> f64 
             best_v = v;
         }
     }
-    let (mut a, mut b) = (best - step, best + step);
-    let g = 0.5 * (5f64.sqrt() - 1.0);
-    let mut c = b - g * (b - a);
-    let mut d = a + g * (b - a);
-    let (mut fc, mut fd) = (f(c), f(d));
-    for _ in 0..iterations {
-        if fc > fd {
-            b = d;
-            d = c;
-            fd = fc;
-            c = b - g * (b - a);
-            fc = f(c);
-        } else {
-            a = c;
-            c = d;
-            fc = fd;
-            d = a + g * (b - a);
-            fd = f(d);
-        }
-    }
-    0.5 * (a + b)
+    delay::golden_section_max(f, best - step, best + step, iterations)
 }
 
-/// The level of `s` over `band`: its power averaged over the bins with
-/// weight 1/f (each octave alike), dB. None when no bin falls in the band.
+/// The level of `s` over `band`: its power averaged over the band's
+/// log-frequency points ([`Spectrum::band_points`]: each octave alike),
+/// dB. None when no bin falls in the band.
 pub fn band_level_db(s: &Spectrum, band: (f64, f64)) -> Option<f64> {
     let points = s.band_points(band);
     if points.is_empty() {
@@ -313,7 +294,8 @@ pub const POLARITY_MIN_AGREEMENT: f64 = 0.3;
 
 /// How two responses agree in phase over `band` once `b` is advanced by
 /// `shift_s` (its arrival after `a`'s): Σ w·Re(A·conj(B')) / Σ w·|A|·|B'|
-/// with w = 1/f, from −1 (opposite) to +1 (in phase). None when no bin
+/// over the band's log-frequency points ([`Spectrum::band_points`], w
+/// their weights), from −1 (opposite) to +1 (in phase). None when no bin
 /// falls in the band or either is silent there.
 pub fn phase_agreement(a: &Spectrum, b: &Spectrum, band: (f64, f64), shift_s: f64) -> Option<f64> {
     let (mut num, mut den) = (0.0, 0.0);

@@ -57,12 +57,19 @@ pub fn refine_peak(h: &[f64], i: usize) -> f64 {
             best = t;
         }
     }
-    let (mut a, mut b) = (best - 0.05, best + 0.05);
+    golden_section_max(f, best - 0.05, best + 0.05, 40)
+}
+
+/// The maximum of `f`, unimodal on [a, b], by `iterations` steps of
+/// golden-section search (each shrinks the bracket by 0.618); the middle
+/// of the last bracket.
+pub fn golden_section_max(f: impl Fn(f64) -> f64, a: f64, b: f64, iterations: usize) -> f64 {
+    let (mut a, mut b) = (a, b);
     let g = 0.5 * (5f64.sqrt() - 1.0);
     let mut c = b - g * (b - a);
     let mut d = a + g * (b - a);
     let (mut fc, mut fd) = (f(c), f(d));
-    for _ in 0..40 {
+    for _ in 0..iterations {
         if fc > fd {
             b = d;
             d = c;

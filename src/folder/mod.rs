@@ -486,26 +486,35 @@ pub struct NoiseFolder {
     pub noise: crate::analysis::noise::NoiseLevels,
 }
 
-/// Opens a noise folder (`gliss noise`, `gliss measure --noise`): the one
-/// reader of that kind, with the checks of [`open`] — complete, every
-/// listed file matching its SHA-256, noise.json the one listed.
-pub fn open_noise(dir: &Path) -> Result<NoiseFolder> {
+/// The manifest of a folder of one kind (noise, tuning, directivity), for
+/// its one reader: the folder must have a manifest.json whose `kind` is
+/// `kind` and which says it is complete; `what` names such a folder ("a
+/// noise folder"), `made_by` the commands that write one, `again` what to
+/// do when it is damaged. Returns the manifest and its bytes (for their
+/// SHA-256).
+fn kind_manifest<M: serde::de::DeserializeOwned>(
+    dir: &Path,
+    kind: &str,
+    what: &str,
+    made_by: &str,
+    again: &str,
+) -> Result<(M, Vec<u8>)> {
     let name = dir.display();
     let mpath = dir.join("manifest.json");
     if !dir.is_dir() || !mpath.is_file() {
         return Err(Error::input(format!(
-            "{name} is not a noise folder (no manifest.json); give a folder written by gliss noise or gliss measure --noise"
+            "{name} is not {what} (no manifest.json); give a folder written by {made_by}"
         )));
     }
     let mbytes = fs::read(&mpath).map_err(|e| Error::io("read", &mpath, &e))?;
     let value: serde_json::Value = serde_json::from_slice(&mbytes).map_err(|e| {
         Error::input(format!(
-            "{name}/manifest.json is not valid JSON ({e}); record the noise again into a new folder"
+            "{name}/manifest.json is not valid JSON ({e}); {again}"
         ))
     })?;
-    if value.get("kind").and_then(serde_json::Value::as_str) != Some("noise") {
+    if value.get("kind").and_then(serde_json::Value::as_str) != Some(kind) {
         return Err(Error::input(format!(
-            "{name} is not a noise folder (its manifest says it is {}); give a folder written by gliss noise or gliss measure --noise",
+            "{name} is not {what} (its manifest says it is {}); give a folder written by {made_by}",
             value
                 .get("kind")
                 .and_then(serde_json::Value::as_str)
@@ -513,15 +522,31 @@ pub fn open_noise(dir: &Path) -> Result<NoiseFolder> {
         )));
     }
     if value.get("complete").and_then(serde_json::Value::as_bool) != Some(true) {
+        let bare = what.split_once(' ').map_or(what, |(_, rest)| rest);
         return Err(Error::input(format!(
-            "{name} is an incomplete noise folder; record the noise again into a new folder"
+            "{name} is an incomplete {bare}; {again}"
         )));
     }
-    let manifest: NoiseManifest = serde_json::from_value(value).map_err(|e| {
+    let manifest: M = serde_json::from_value(value).map_err(|e| {
         Error::input(format!(
-            "{name}/manifest.json is not a gliss noise manifest ({e}); record the noise again into a new folder"
+            "{name}/manifest.json is not a gliss {kind} manifest ({e}); {again}"
         ))
     })?;
+    Ok((manifest, mbytes))
+}
+
+/// Opens a noise folder (`gliss noise`, `gliss measure --noise`): the one
+/// reader of that kind, with the checks of [`open`] — complete, every
+/// listed file matching its SHA-256, noise.json the one listed.
+pub fn open_noise(dir: &Path) -> Result<NoiseFolder> {
+    let name = dir.display();
+    let (manifest, mbytes): (NoiseManifest, Vec<u8>) = kind_manifest(
+        dir,
+        "noise",
+        "a noise folder",
+        "gliss noise or gliss measure --noise",
+        "record the noise again into a new folder",
+    )?;
     let files = check_files(dir, &manifest.files, OpenOptions::default())?;
     let again = "gliss noise ... --overwrite";
     let (bytes, sha) = read_content(
@@ -634,37 +659,13 @@ pub struct TuningFolder {
 /// SHA-256, tuning.json the one listed.
 pub fn open_tuning(dir: &Path) -> Result<TuningFolder> {
     let name = dir.display();
-    let mpath = dir.join("manifest.json");
-    if !dir.is_dir() || !mpath.is_file() {
-        return Err(Error::input(format!(
-            "{name} is not a tuning folder (no manifest.json); give a folder written by gliss tune"
-        )));
-    }
-    let mbytes = fs::read(&mpath).map_err(|e| Error::io("read", &mpath, &e))?;
-    let value: serde_json::Value = serde_json::from_slice(&mbytes).map_err(|e| {
-        Error::input(format!(
-            "{name}/manifest.json is not valid JSON ({e}); design the tuning again into a new folder"
-        ))
-    })?;
-    if value.get("kind").and_then(serde_json::Value::as_str) != Some("tuning") {
-        return Err(Error::input(format!(
-            "{name} is not a tuning folder (its manifest says it is {}); give a folder written by gliss tune",
-            value
-                .get("kind")
-                .and_then(serde_json::Value::as_str)
-                .unwrap_or("a measurement")
-        )));
-    }
-    if value.get("complete").and_then(serde_json::Value::as_bool) != Some(true) {
-        return Err(Error::input(format!(
-            "{name} is an incomplete tuning folder; run gliss tune again with --overwrite"
-        )));
-    }
-    let manifest: TuningManifest = serde_json::from_value(value).map_err(|e| {
-        Error::input(format!(
-            "{name}/manifest.json is not a gliss tuning manifest ({e}); run gliss tune again into a new folder"
-        ))
-    })?;
+    let (manifest, mbytes): (TuningManifest, Vec<u8>) = kind_manifest(
+        dir,
+        "tuning",
+        "a tuning folder",
+        "gliss tune",
+        "run gliss tune again into a new folder",
+    )?;
     let files = check_files(dir, &manifest.files, OpenOptions::default())?;
     let again = "gliss tune ... --overwrite";
     let (bytes, sha) = read_content(dir, "tuning.json", "run gliss tune again with --overwrite")?;
@@ -697,37 +698,13 @@ pub fn open_tuning(dir: &Path) -> Result<TuningFolder> {
 pub fn open_directivity(dir: &Path) -> Result<DirectivityFolder> {
     let name = dir.display();
     let again = "run gliss directivity again into a new folder";
-    let mpath = dir.join("manifest.json");
-    if !dir.is_dir() || !mpath.is_file() {
-        return Err(Error::input(format!(
-            "{name} is not a directivity folder (no manifest.json); give a folder written by gliss directivity"
-        )));
-    }
-    let mbytes = fs::read(&mpath).map_err(|e| Error::io("read", &mpath, &e))?;
-    let value: serde_json::Value = serde_json::from_slice(&mbytes).map_err(|e| {
-        Error::input(format!(
-            "{name}/manifest.json is not valid JSON ({e}); {again}"
-        ))
-    })?;
-    if value.get("kind").and_then(serde_json::Value::as_str) != Some("directivity") {
-        return Err(Error::input(format!(
-            "{name} is not a directivity folder (its manifest says it is {}); give a folder written by gliss directivity",
-            value
-                .get("kind")
-                .and_then(serde_json::Value::as_str)
-                .unwrap_or("a measurement")
-        )));
-    }
-    if value.get("complete").and_then(serde_json::Value::as_bool) != Some(true) {
-        return Err(Error::input(format!(
-            "{name} is an incomplete directivity folder; {again}"
-        )));
-    }
-    let manifest: DirectivityManifest = serde_json::from_value(value).map_err(|e| {
-        Error::input(format!(
-            "{name}/manifest.json is not a gliss directivity manifest ({e}); {again}"
-        ))
-    })?;
+    let (manifest, mbytes): (DirectivityManifest, Vec<u8>) = kind_manifest(
+        dir,
+        "directivity",
+        "a directivity folder",
+        "gliss directivity",
+        again,
+    )?;
     let files = check_files(dir, &manifest.files, OpenOptions::default())?;
     let (bytes, sha) = read_content(dir, "directivity.json", again)?;
     content_matches(

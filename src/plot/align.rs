@@ -35,11 +35,17 @@ fn faint(c: RGBColor) -> RGBColor {
     RGBColor(m(c.0), m(c.1), m(c.2))
 }
 
-/// The crossover band's edges as two vertical lines from `lo` to `hi`.
-fn edges(a: &Alignment) -> Vec<([f64; 2], [f64; 2])> {
+/// The crossover band's edges as two vertical lines from `lo` to `hi`,
+/// the first labelled (none without a crossover).
+fn edges(a: &Alignment, lo: f64, hi: f64) -> Vec<([f64; 2], [f64; 2], String)> {
     a.crossover
         .as_ref()
-        .map(|c| vec![([c.band_hz[0]; 2], [0.0; 2]), ([c.band_hz[1]; 2], [0.0; 2])])
+        .map(|c| {
+            vec![
+                ([c.band_hz[0]; 2], [lo, hi], "crossover band".to_string()),
+                ([c.band_hz[1]; 2], [lo, hi], String::new()),
+            ]
+        })
         .unwrap_or_default()
 }
 
@@ -83,17 +89,9 @@ pub fn align_sum_png(path: &Path, title: &str, a: &Alignment) -> Result<()> {
             ),
         ));
     }
-    let mut edge = edges(a);
-    for e in &mut edge {
-        e.1 = [lo, hi];
-    }
-    for (k, (x, y)) in edge.iter().enumerate() {
-        let label = if k == 0 {
-            "crossover band".to_string()
-        } else {
-            String::new()
-        };
-        series.push((x, y, EDGE, label));
+    let edge = edges(a, lo, hi);
+    for (x, y, label) in &edge {
+        series.push((x, y, EDGE, label.clone()));
     }
     let mut marks = Marks::new();
     draw_log_panel(
@@ -154,17 +152,9 @@ pub fn align_phase_png(path: &Path, title: &str, a: &Alignment) -> Result<()> {
             format!("{} with its suggested setting (dashed)", s.name),
         ));
     }
-    let mut edge = edges(a);
-    for e in &mut edge {
-        e.1 = [-180.0, 180.0];
-    }
-    for (k, (x, y)) in edge.iter().enumerate() {
-        let label = if k == 0 {
-            "crossover band".to_string()
-        } else {
-            String::new()
-        };
-        series.push((x, y, EDGE, label));
+    let edge = edges(a, -180.0, 180.0);
+    for (x, y, label) in &edge {
+        series.push((x, y, EDGE, label.clone()));
     }
     let mut marks = Marks::new();
     draw_log_panel(
