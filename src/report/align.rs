@@ -218,14 +218,7 @@ pub(super) fn appendix(out: &mut String, f: &Folder, m: &AlignManifest, a: &Alig
         );
     }
     out.push_str("</tbody></table><table class=\"facts\"><caption>How the alignment was made</caption><tbody>");
-    let mut row = |k: &str, v: &str| {
-        let _ = write!(
-            out,
-            "<tr><th scope=\"row\">{}</th><td>{}</td></tr>",
-            esc(k),
-            esc(v)
-        );
-    };
+    let mut row = |k: &str, v: &str| super::fact_row(out, k, v);
     row("Folder", &f.name);
     row("Made", &m.created_utc);
     row("Tool", &format!("{} {}", m.tool, m.tool_version));

@@ -1015,14 +1015,7 @@ fn band_table(out: &mut String, rows: &[&BandResult], fraction: Fraction, n: &mu
 /// What was measured, where and how; the raw files and their hashes.
 fn about(out: &mut String, f: &Folder, m: &Manifest) {
     out.push_str("<table class=\"facts\"><caption>What was measured, and how</caption><tbody>");
-    let mut row = |k: &str, v: &str| {
-        let _ = write!(
-            out,
-            "<tr><th scope=\"row\">{}</th><td>{}</td></tr>",
-            esc(k),
-            esc(v)
-        );
-    };
+    let mut row = |k: &str, v: &str| fact_row(out, k, v);
     row("Folder", &f.name);
     row(
         "Source",
@@ -1251,14 +1244,7 @@ fn comparison_appendix(
     }
     out.push_str("</tbody></table>");
     out.push_str("<table class=\"facts\"><caption>How the comparison was made</caption><tbody>");
-    let mut row = |k: &str, v: &str| {
-        let _ = write!(
-            out,
-            "<tr><th scope=\"row\">{}</th><td>{}</td></tr>",
-            esc(k),
-            esc(v)
-        );
-    };
+    let mut row = |k: &str, v: &str| fact_row(out, k, v);
     row("Folder", &f.name);
     row("Made", &manifest.created_utc);
     row(
@@ -1272,6 +1258,16 @@ fn comparison_appendix(
         row("Criterion", k);
     }
     out.push_str("</tbody></table>");
+}
+
+/// One row of a facts table: the fact and its value, escaped.
+fn fact_row(out: &mut String, k: &str, v: &str) {
+    let _ = write!(
+        out,
+        "<tr><th scope=\"row\">{}</th><td>{}</td></tr>",
+        esc(k),
+        esc(v)
+    );
 }
 
 /// The style sheet: screen and print.

@@ -128,14 +128,7 @@ fn filters_table(out: &mut String, t: &TuningFile, n: &mut Counters) {
 /// The appendix: how the tuning was made.
 pub fn appendix(out: &mut String, f: &Folder, m: &TuningManifest, t: &TuningFile) {
     out.push_str("<table class=\"facts\"><caption>How the tuning was made</caption><tbody>");
-    let mut row = |k: &str, v: &str| {
-        let _ = write!(
-            out,
-            "<tr><th scope=\"row\">{}</th><td>{}</td></tr>",
-            esc(k),
-            esc(v)
-        );
-    };
+    let mut row = |k: &str, v: &str| super::fact_row(out, k, v);
     row("Folder", &f.name);
     for i in &m.inputs {
         row(
