@@ -43,7 +43,7 @@ pub const STEP_DEG: i32 = 10;
 /// The standard's sound power weights for the angle off the reference axis
 /// 0°, 10°, …, 90° (Appendix C of ANSI/CTA-2034-A; the angle θ and 180° − θ
 /// share a weight). Transcribed from memory of the standard's table and
-/// checked against public transcriptions of it; they sum over the 70
+/// checked against public copies of it; they sum over the 70
 /// positions to 0.9964, so gliss divides by their sum.
 pub const SOUND_POWER_WEIGHTS: [f64; 10] = [
     0.000_604_486,
