@@ -203,7 +203,7 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
                 directivity: file,
             } => directivity::answer(&mut out, lead, manifest, file, &mut counters),
             Content::Tuning { manifest, tuning } => {
-                tuning::answer(&mut out, lead, manifest, tuning)
+                tuning::answer(&mut out, lead, manifest, tuning, &mut counters)
             }
         }
         out.push_str("</section>\n");
@@ -318,7 +318,9 @@ pub fn render(folders: &[Folder], written_utc: &str, options: &Options) -> Strin
             Content::Directivity {
                 directivity: file, ..
             } => directivity::section(&mut out, f, file, i == 0, &mut counters),
-            Content::Tuning { tuning, .. } => tuning::section(&mut out, f, tuning, &mut counters),
+            Content::Tuning { tuning, .. } => {
+                tuning::section(&mut out, f, tuning, i == 0, &mut counters)
+            }
         }
         out.push_str("</section>\n");
     }

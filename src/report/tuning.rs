@@ -22,7 +22,7 @@ pub fn title(m: &TuningManifest) -> String {
 }
 
 /// The answer: the deviation before and after in one sentence.
-pub fn answer(out: &mut String, f: &Folder, m: &TuningManifest, t: &TuningFile) {
+pub fn answer(out: &mut String, f: &Folder, m: &TuningManifest, t: &TuningFile, n: &mut Counters) {
     let _ = write!(
         out,
         "<p class=\"lede\"><span class=\"folder\">{}</span>: {}</p>",
@@ -52,15 +52,22 @@ pub fn answer(out: &mut String, f: &Folder, m: &TuningManifest, t: &TuningFile) 
             b.after.mean_abs_db
         );
     }
-}
-
-/// The evidence: the plot, the filters table, the regions left alone and
-/// the warnings.
-pub fn section(out: &mut String, f: &Folder, t: &TuningFile, n: &mut Counters) {
+    // what to do and what it does, on the first page
     for p in &f.plots {
         figure(out, p, &caption(p, t), n);
     }
     filters_table(out, t, n);
+}
+
+/// The evidence: the plot and the filters table (unless the first page
+/// showed them: `lead`), the regions left alone and the warnings.
+pub fn section(out: &mut String, f: &Folder, t: &TuningFile, lead: bool, n: &mut Counters) {
+    if !lead {
+        for p in &f.plots {
+            figure(out, p, &caption(p, t), n);
+        }
+        filters_table(out, t, n);
+    }
     if t.uncorrectable.is_empty() {
         out.push_str("<p class=\"muted\">No part of the range was left uncorrected.</p>");
     } else {
