@@ -1112,6 +1112,18 @@ mod tests {
 
     const FS: f64 = 48_000.0;
 
+    /// The spectrum of `h` at FFT length `n`, its first sample at time 0.
+    fn spectrum_at_zero(h: &[f64], n: usize) -> Spectrum {
+        spectrum(
+            Impulse {
+                samples: h,
+                start_s: 0.0,
+            },
+            FS,
+            n,
+        )
+    }
+
     /// A unit impulse delayed by a fraction of a sample: the ideal
     /// band-limited interpolator sinc(n − d), Hann-tapered over ±400
     /// samples (a closed form).
@@ -1239,14 +1251,7 @@ mod tests {
         .unwrap();
         assert!((t1 - t2).abs() < 1e-7);
         let n = common_len(&[h.len(), shifted.len()]);
-        let a = spectrum(
-            Impulse {
-                samples: &h,
-                start_s: 0.0,
-            },
-            FS,
-            n,
-        );
+        let a = spectrum_at_zero(&h, n);
         let b = spectrum(
             Impulse {
                 samples: &shifted,
@@ -1269,22 +1274,8 @@ mod tests {
             .map(|v| -0.25 * v)
             .collect();
         let n = common_len(&[len]);
-        let a = spectrum(
-            Impulse {
-                samples: &h1,
-                start_s: 0.0,
-            },
-            FS,
-            n,
-        );
-        let b = spectrum(
-            Impulse {
-                samples: &h2,
-                start_s: 0.0,
-            },
-            FS,
-            n,
-        );
+        let a = spectrum_at_zero(&h1, n);
+        let b = spectrum_at_zero(&h2, n);
         let band = (300.0, 3000.0);
         let level = band_level_db(&b, band).unwrap() - band_level_db(&a, band).unwrap();
         assert!((level - 20.0 * 0.25f64.log10()).abs() < 1e-6, "{level}");
@@ -1329,22 +1320,8 @@ mod tests {
                 .map(|v| if invert { -v } else { *v })
                 .collect();
             let n = common_len(&[len]);
-            let a = spectrum(
-                Impulse {
-                    samples: &sub,
-                    start_s: 0.0,
-                },
-                FS,
-                n,
-            );
-            let b = spectrum(
-                Impulse {
-                    samples: &main,
-                    start_s: 0.0,
-                },
-                FS,
-                n,
-            );
+            let a = spectrum_at_zero(&sub, n);
+            let b = spectrum_at_zero(&main, n);
             let band = (50.0, 150.0);
             let found = best_sum(&[vec![&a, &b]], band, 0.02, FS).unwrap();
             let best = exhaustive(&a, &b, band, 0.02);
@@ -1370,32 +1347,11 @@ mod tests {
         let len = 32_768;
         let sub = lr4(&delayed_impulse(len, 500.0), 80.0, false);
         let n = common_len(&[len]);
-        let a = spectrum(
-            Impulse {
-                samples: &sub,
-                start_s: 0.0,
-            },
-            FS,
-            n,
-        );
+        let a = spectrum_at_zero(&sub, n);
         let m1 = lr4(&delayed_impulse(len, 560.0), 80.0, true);
         let m2 = lr4(&delayed_impulse(len, 560.0 + 57.6), 80.0, true);
-        let b1 = spectrum(
-            Impulse {
-                samples: &m1,
-                start_s: 0.0,
-            },
-            FS,
-            n,
-        );
-        let b2 = spectrum(
-            Impulse {
-                samples: &m2,
-                start_s: 0.0,
-            },
-            FS,
-            n,
-        );
+        let b1 = spectrum_at_zero(&m1, n);
+        let b2 = spectrum_at_zero(&m2, n);
         let band = (50.0, 150.0);
         let positions = [vec![&a, &b1], vec![&a, &b2]];
         let found = best_sum(&positions, band, 0.02, FS).unwrap();
@@ -1444,30 +1400,9 @@ mod tests {
         let h2 = speaker(&delayed_impulse(len, 302.0));
         let both: Vec<f64> = h1.iter().zip(&h2).map(|(a, b)| a + b).collect();
         let n = common_len(&[len]);
-        let a = spectrum(
-            Impulse {
-                samples: &h1,
-                start_s: 0.0,
-            },
-            FS,
-            n,
-        );
-        let b = spectrum(
-            Impulse {
-                samples: &h2,
-                start_s: 0.0,
-            },
-            FS,
-            n,
-        );
-        let s = spectrum(
-            Impulse {
-                samples: &both,
-                start_s: 0.0,
-            },
-            FS,
-            n,
-        );
+        let a = spectrum_at_zero(&h1, n);
+        let b = spectrum_at_zero(&h2, n);
+        let s = spectrum_at_zero(&both, n);
         let band = (100.0, 2000.0);
         let predicted = sum_level_db(&[vec![&a, &b]], &[Setting::AS_IS; 2], band).unwrap();
         let single = sum_level_db(&[vec![&s]], &[Setting::AS_IS], band).unwrap();
@@ -1480,22 +1415,8 @@ mod tests {
         let sub = lr4(&delayed_impulse(len, 300.0), 100.0, false);
         let main = lr4(&delayed_impulse(len, 300.0), 100.0, true);
         let n = common_len(&[len]);
-        let a = spectrum(
-            Impulse {
-                samples: &sub,
-                start_s: 0.0,
-            },
-            FS,
-            n,
-        );
-        let b = spectrum(
-            Impulse {
-                samples: &main,
-                start_s: 0.0,
-            },
-            FS,
-            n,
-        );
+        let a = spectrum_at_zero(&sub, n);
+        let b = spectrum_at_zero(&main, n);
         let (lo, hi) = overlap_band(&[&a, &b], (20.0, 20_000.0), 12.0).unwrap();
         assert!(
             lo > 40.0 && lo < 100.0 && hi > 100.0 && hi < 250.0,
