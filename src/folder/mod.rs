@@ -431,6 +431,18 @@ impl Folder {
             .unwrap_or_else(|| self.dir.display().to_string())
     }
 
+    /// How a folder made from this one records it: the folder as given,
+    /// `label` (or the folder's last component) and the SHA-256 of its
+    /// manifest and of its results.
+    pub fn input_record(&self, label: Option<&str>) -> schema::InputRecord {
+        schema::InputRecord {
+            folder: self.dir.display().to_string(),
+            label: label.map_or_else(|| self.label(), str::to_string),
+            sha256: self.manifest_sha256.clone(),
+            results_sha256: self.content_sha256.clone(),
+        }
+    }
+
     /// The manifest and results of a measurement or an average; a
     /// comparison is refused with `why` (what the caller needs instead).
     pub fn measurement(&self, why: &str) -> Result<(&Manifest, &Results)> {

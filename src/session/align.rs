@@ -54,12 +54,7 @@ struct Read {
 /// impulse.wav.
 fn read(dir: &Path) -> Result<Read> {
     let f = folder::open(dir)?;
-    let record = InputRecord {
-        folder: dir.display().to_string(),
-        label: f.label(),
-        sha256: f.manifest_sha256.clone(),
-        results_sha256: f.content_sha256.clone(),
-    };
+    let record = f.input_record(None);
     let (manifest, results) = f.into_measurement(
         "gliss align relates measurements of each loudspeaker: give their measurement folders",
     )?;

@@ -59,12 +59,7 @@ impl Input {
 /// a complete measurement or average whose raw files are intact.
 pub fn read_input(dir: &Path, label: Option<&str>) -> Result<Input> {
     let f = folder::open(dir)?;
-    let record = InputRecord {
-        folder: dir.display().to_string(),
-        label: label.map_or_else(|| f.label(), str::to_string),
-        sha256: f.manifest_sha256.clone(),
-        results_sha256: f.content_sha256.clone(),
-    };
+    let record = f.input_record(label);
     let (manifest, results) = f.into_measurement("give the measurement folders it compared")?;
     if results.response.frequency_hz.is_empty()
         || results.response.frequency_hz.len() != results.response.magnitude_db.len()

@@ -55,12 +55,7 @@ struct Member {
 
 fn read_member(dir: &Path) -> Result<Member> {
     let f = folder::open(dir)?;
-    let record = InputRecord {
-        folder: dir.display().to_string(),
-        label: f.label(),
-        sha256: f.manifest_sha256.clone(),
-        results_sha256: f.content_sha256.clone(),
-    };
+    let record = f.input_record(None);
     let (manifest, results) = f.into_measurement("give the measurement folders of each angle")?;
     if manifest.kind.is_some_and(|k| k != FolderKind::Measurement) {
         return Err(Error::input(format!(
