@@ -138,7 +138,7 @@ pub fn run(a: Args) -> Result<()> {
         impedance: None,
         position: a.orbit.position()?,
     };
-    let outcome = session::run(&job)?;
+    let outcome = session::run(job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);
     Ok(())
 }
@@ -203,7 +203,7 @@ fn run_impulse(
         impedance: None,
         position: a.orbit.position()?,
     };
-    let outcome = session::run(&job)?;
+    let outcome = session::run(job)?;
     super::demo::print_summary(&common::show(&a.out), &outcome);
     println!(
         "(an impulse response analysed as it is: the delay is where it peaks, from the first sample of {}; \"recording peak\" is its own peak)",

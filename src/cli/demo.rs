@@ -232,7 +232,7 @@ fn measure_with(
         impedance: None,
         position: system.position,
     };
-    session::run(&job)
+    session::run(job)
 }
 
 /// Runs `gliss demo`.

@@ -246,7 +246,7 @@ pub fn run(a: Args) -> Result<()> {
         impedance: Some(imp),
         position: None,
     };
-    let outcome = session::run(&job)?;
+    let outcome = session::run(job)?;
     print_summary(&common::show(&a.out), &outcome);
     Ok(())
 }

@@ -765,7 +765,7 @@ fn analyse_takes(
     let averaged = synchronous_average(&on_disk.channels, takes);
     let folder = &started.folder;
     let job = analysis_job(m, &started, recording_bytes, averaged, record)?;
-    let mut outcome = analyse_into(&job, folder)?;
+    let mut outcome = analyse_into(job, folder)?;
     // clipping on any input used, by name (the analysis looks at the
     // microphone only)
     if let Some(r) = m.reference {

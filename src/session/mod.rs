@@ -397,26 +397,40 @@ fn check_channel(job: &Job, warnings: &mut Warnings) -> Result<()> {
 
 /// Runs a job: checks, analyses, then writes the folder. Nothing is
 /// written when the inputs or the folder are refused.
-pub fn run(job: &Job) -> Result<Outcome> {
-    let warnings = check_inputs(job)?;
-    let folder = MeasurementFolder::check(&job.out, job.overwrite, &raw_files(job))?;
+pub fn run(job: Job) -> Result<Outcome> {
+    let warnings = check_inputs(&job)?;
+    let folder = MeasurementFolder::check(&job.out, job.overwrite, &raw_files(&job))?;
     analyse_checked(job, &folder, warnings)
 }
 
 /// Analyses a job into `folder`, whose raw files may already be there
 /// (a measurement writes them while it records).
-pub fn analyse_into(job: &Job, folder: &MeasurementFolder) -> Result<Outcome> {
-    analyse_checked(job, folder, check_inputs(job)?)
+pub fn analyse_into(job: Job, folder: &MeasurementFolder) -> Result<Outcome> {
+    let warnings = check_inputs(&job)?;
+    analyse_checked(job, folder, warnings)
 }
 
 /// [`analyse_into`] once [`check_inputs`] has passed and said `extra`.
-fn analyse_checked(job: &Job, folder: &MeasurementFolder, mut extra: Warnings) -> Result<Outcome> {
+fn analyse_checked(
+    mut job: Job,
+    folder: &MeasurementFolder,
+    mut extra: Warnings,
+) -> Result<Outcome> {
     // an impedance is refused (swapped channels, clipping, an open
     // circuit) before anything is written
     let imp = match &job.impedance {
-        Some(i) => Some(impedance::analyse(job, i)?),
+        Some(i) => Some(impedance::analyse(&job, i)?),
         None => None,
     };
+    // The raw files go into the folder first, as they came, and their
+    // bytes are let go before the analysis needs its memory (8 bytes per
+    // recorded sample for a 32-bit recording and its sweep). A run that
+    // fails from here on takes the files it created away again when the
+    // folder is dropped; raw files already there are only compared.
+    let raw = write_raw_files(&job, folder)?;
+    job.recording_bytes = Vec::new();
+    job.stimulus_bytes = Vec::new();
+    let job = &job;
     if let Some(o) = &imp {
         extra.extend(o.warnings.iter().cloned());
     }
@@ -471,7 +485,7 @@ fn analyse_checked(job: &Job, folder: &MeasurementFolder, mut extra: Warnings) -
     extra.append(&mut analysis.warnings);
     analysis.warnings = extra;
     let target = compare_target(job, &analysis)?;
-    let files = write_folder(job, folder, &analysis, target.as_ref(), imp.as_ref())?;
+    let files = write_folder(job, folder, raw, &analysis, target.as_ref(), imp.as_ref())?;
     Ok(Outcome {
         analysis,
         files,
@@ -532,18 +546,19 @@ fn compare_target(job: &Job, a: &Analysis) -> Result<Option<(TargetRecord, f64)>
     Ok(Some((record, -shift - report.level_offset_db)))
 }
 
-/// Writes the folder: the raw files, the impulse response, the results
-/// and the curves, the plots, then the manifest last. Returns the files
-/// written, manifest first.
+/// Writes the folder after the raw files (`raw`, already written): the
+/// impulse response, the results and the curves, the plots, then the
+/// manifest last. Returns the files written, manifest first.
 fn write_folder(
     job: &Job,
     folder: &MeasurementFolder,
+    raw: Vec<FileEntry>,
     a: &Analysis,
     target: Option<&(TargetRecord, f64)>,
     imp: Option<&impedance::ImpedanceOutcome>,
 ) -> Result<Vec<String>> {
     folder.create()?;
-    let mut files = write_raw_files(job, folder)?;
+    let mut files = raw;
     files.push(folder.derived_entry(
         "impulse.wav",
         &wav::encode_wav(

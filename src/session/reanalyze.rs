@@ -190,7 +190,7 @@ pub fn reanalyze_all(
 ) -> Vec<Result<Outcome>> {
     dirs.par_iter()
         .map(|d| {
-            let r = job(d, s).and_then(|j| session::run(&j));
+            let r = job(d, s).and_then(session::run);
             done(d, &r);
             r
         })

@@ -14,8 +14,17 @@ thread_local! {
 }
 
 /// A complex FFT plan of length n, forward or inverse (cached per thread,
-/// like the real plans, so every stage shares one plan per size).
+/// like the real plans, so every stage shares one plan per size; not
+/// cached above [`CACHED_PLAN_MAX_LEN`]).
 pub fn complex_plan(n: usize, inverse: bool) -> Arc<dyn rustfft::Fft<f64>> {
+    if n > CACHED_PLAN_MAX_LEN {
+        let mut p = rustfft::FftPlanner::new();
+        return if inverse {
+            p.plan_fft_inverse(n)
+        } else {
+            p.plan_fft_forward(n)
+        };
+    }
     COMPLEX_PLANNER.with(|p| {
         let mut p = p.borrow_mut();
         if inverse {
@@ -26,13 +35,33 @@ pub fn complex_plan(n: usize, inverse: bool) -> Arc<dyn rustfft::Fft<f64>> {
     })
 }
 
-/// A forward real FFT plan of length n (cached per thread by realfft).
+/// The longest transform whose plan is kept in the per-thread cache.
+///
+/// A plan holds twiddle tables of about 12 bytes per point (realfft's own
+/// quarter-length table and the inner complex FFT's half-length one), and
+/// the cache keeps every plan for the thread's life. Up to 2²¹ points (a
+/// 43 s recording at 48 kHz) a plan costs at most 25 MB and is worth
+/// keeping: `reanalyze` and the demo transform many recordings of one
+/// length, and building a plan costs about as much as using it once.
+/// Longer plans are built for each use and dropped with it, so a long
+/// recording at a high rate never holds a forward and an inverse plan of
+/// its full length at once (60 s at 192 kHz: 146 MB each).
+pub const CACHED_PLAN_MAX_LEN: usize = 1 << 21;
+
+/// A forward real FFT plan of length n (cached per thread by realfft up to
+/// [`CACHED_PLAN_MAX_LEN`]).
 pub fn forward_plan(n: usize) -> Arc<dyn RealToComplex<f64>> {
+    if n > CACHED_PLAN_MAX_LEN {
+        return RealFftPlanner::new().plan_fft_forward(n);
+    }
     PLANNER.with(|p| p.borrow_mut().plan_fft_forward(n))
 }
 
-/// An inverse real FFT plan of length n.
+/// An inverse real FFT plan of length n (cached like [`forward_plan`]).
 pub fn inverse_plan(n: usize) -> Arc<dyn ComplexToReal<f64>> {
+    if n > CACHED_PLAN_MAX_LEN {
+        return RealFftPlanner::new().plan_fft_inverse(n);
+    }
     PLANNER.with(|p| p.borrow_mut().plan_fft_inverse(n))
 }
 
@@ -135,6 +164,21 @@ mod tests {
             .wrapping_mul(6364136223846793005)
             .wrapping_add(1442695040888963407);
         ((*seed >> 11) as f64 / (1u64 << 53) as f64) - 0.5
+    }
+
+    #[test]
+    fn long_plans_are_not_kept_and_short_ones_are() {
+        // a kept plan is the same object each time; a long one is built
+        // for each use, so its twiddle tables go when the transform is done
+        let short = fast_len(48_000);
+        assert!(Arc::ptr_eq(&forward_plan(short), &forward_plan(short)));
+        assert!(Arc::ptr_eq(&inverse_plan(short), &inverse_plan(short)));
+        let long = fast_len(CACHED_PLAN_MAX_LEN + 1);
+        assert!(!Arc::ptr_eq(&forward_plan(long), &forward_plan(long)));
+        assert!(!Arc::ptr_eq(
+            &complex_plan(long, true),
+            &complex_plan(long, true)
+        ));
     }
 
     #[test]
