@@ -147,6 +147,20 @@ pub enum AboveTransition {
     Full,
 }
 
+/// A range edge where the measured response lies at least this far (dB)
+/// under its median over the range may be the loudspeaker's own roll-off.
+pub const ROLL_OFF_MIN_DB: f64 = 6.0;
+
+/// A roll-off region reaches from the range's edge to where the measured
+/// response first comes within this (dB) of its median: the roll-off's
+/// −3 dB point.
+pub const ROLL_OFF_EDGE_DB: f64 = 3.0;
+
+/// Going towards the edge, a roll-off's response may rise again by at most
+/// this (dB): more is a dip or a mode beside the edge, which the dip rule
+/// judges, not a steady fall.
+pub const ROLL_OFF_RIPPLE_DB: f64 = 2.0;
+
 /// Why a region is left uncorrected.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -157,6 +171,9 @@ pub enum Uncorrectable {
     DeepDip,
     /// Above the transition frequency with `--above-transition none`.
     AboveTransition,
+    /// The loudspeaker's own roll-off at an edge of the range
+    /// ([`find_roll_offs`]).
+    RollOff,
 }
 
 impl Uncorrectable {
@@ -171,6 +188,9 @@ impl Uncorrectable {
             }
             Uncorrectable::AboveTransition => {
                 "above the room's transition frequency, where one position's response is not the room's (--above-transition none)"
+            }
+            Uncorrectable::RollOff => {
+                "the loudspeaker's own roll-off at the edge of the range: a boost there drives it hardest where it can take least (a woofer's excursion below its bass limit, a tweeter past its top); narrow --range to where it plays, or give a target that follows the roll-off"
             }
         }
     }
@@ -443,6 +463,14 @@ pub fn design(
         .map(|i| m[i] + before.level_offset_db - t[i])
         .collect();
     let mut uncorrectable = find_dips(&f, &e, s.max_boost_db);
+    // a dip that reaches into a roll-off is part of it
+    let roll_offs = find_roll_offs(&f, &m);
+    uncorrectable.retain(|d| {
+        !roll_offs
+            .iter()
+            .any(|r| d.range_hz[0] <= r.range_hz[1] && d.range_hz[1] >= r.range_hz[0])
+    });
+    uncorrectable.extend(roll_offs);
     if let (Some(ft), AboveTransition::None) = (s.transition_hz, s.above_transition) {
         if ft < range.1 {
             uncorrectable.push(UncorrectableRegion {
@@ -511,6 +539,115 @@ pub fn design(
         uncorrectable,
         below_transition,
     })
+}
+
+/// A boost of `filters` that reaches past an edge of `range` (Hz), where
+/// nothing was measured: a peaking boost whose half-gain band (from its Q
+/// by the cookbook's bandwidth relation 1/Q = 2·sinh(ln 2/2·BW)) crosses
+/// an edge, or a shelf that boosts the side beyond one. Each as the
+/// filter, the edge it crosses, and the boost at half an octave past that
+/// edge (dB, at `fs`). The design cannot tell from the measurement
+/// whether a loudspeaker plays below the range asked for (in a room its
+/// roll-off is often hidden by the room's gain), so this is said, not
+/// prevented.
+pub fn boosts_past_edges(
+    filters: &[Filter],
+    range: (f64, f64),
+    fs: f64,
+) -> Vec<(Filter, f64, f64)> {
+    let mut out = Vec::new();
+    for f in filters.iter().filter(|f| f.gain_db > 0.0) {
+        let (low, high) = match f.kind {
+            FilterKind::Peaking => {
+                let bw = 2.0 / std::f64::consts::LN_2 * (1.0 / (2.0 * f.q)).asinh();
+                let half = 2f64.powf(bw / 2.0);
+                (
+                    f.frequency_hz / half < range.0,
+                    f.frequency_hz * half > range.1,
+                )
+            }
+            FilterKind::LowShelf => (true, false),
+            FilterKind::HighShelf => (false, true),
+        };
+        for (crosses, edge, past) in [
+            (low, range.0, range.0 / std::f64::consts::SQRT_2),
+            (high, range.1, range.1 * std::f64::consts::SQRT_2),
+        ] {
+            if crosses && past < fs / 2.0 {
+                out.push((*f, edge, response_db(&[*f], fs, &[past])[0]));
+            }
+        }
+    }
+    out
+}
+
+/// The loudspeaker's own roll-offs at the edges of the range, from the
+/// measured response `m` at `f` (the range's points, by frequency): at an
+/// edge where `m` lies at least [`ROLL_OFF_MIN_DB`] under its median over
+/// the range, the region from the edge to where `m` first comes within
+/// [`ROLL_OFF_EDGE_DB`] of the median, provided `m` falls steadily
+/// towards the edge (never rising again by more than
+/// [`ROLL_OFF_RIPPLE_DB`]). Boosting a roll-off is the classic way to
+/// overdrive a loudspeaker: below its bass limit a woofer's excursion
+/// grows fast with every dB of boost (and a vented box no longer loads
+/// it), and a tweeter past its top takes the boost as heat. Our rule: the
+/// design leaves such a region alone and never boosts there. The depth is
+/// the fall at the edge below the median; `center_hz` is the edge; a
+/// roll-off has no width at half depth (`None`).
+pub fn find_roll_offs(f: &[f64], m: &[f64]) -> Vec<UncorrectableRegion> {
+    let n = f.len().min(m.len());
+    if n < 3 {
+        return Vec::new();
+    }
+    let mut sorted = m[..n].to_vec();
+    sorted.sort_by(f64::total_cmp);
+    let median = sorted[n / 2];
+    // the region from the edge (index `edge`) inward, stepping by `dir`
+    let walk = |edge: usize, dir: isize| -> Option<UncorrectableRegion> {
+        let at = |k: usize| m[k];
+        if at(edge) > median - ROLL_OFF_MIN_DB {
+            return None;
+        }
+        let mut k = edge;
+        let mut inner = None;
+        for _ in 0..n {
+            if at(k) >= median - ROLL_OFF_EDGE_DB {
+                inner = Some(k);
+                break;
+            }
+            let next = k as isize + dir;
+            if next < 0 || next as usize >= n {
+                break;
+            }
+            k = next as usize;
+        }
+        let inner = inner?;
+        // steady: from the inner end towards the edge, the response never
+        // rises more than the ripple above the lowest level passed so far
+        let mut lowest = at(inner);
+        let mut k = inner;
+        while k != edge {
+            k = (k as isize - dir) as usize;
+            if at(k) > lowest + ROLL_OFF_RIPPLE_DB {
+                return None;
+            }
+            lowest = lowest.min(at(k));
+        }
+        let (lo, hi) = if dir > 0 {
+            (edge, inner)
+        } else {
+            (inner, edge)
+        };
+        Some(UncorrectableRegion {
+            kind: Uncorrectable::RollOff,
+            reason: Uncorrectable::RollOff.reason().into(),
+            range_hz: [f[lo], f[hi]],
+            center_hz: Some(f[edge]),
+            depth_db: Some(median - at(edge)),
+            width_octaves: None,
+        })
+    };
+    walk(0, 1).into_iter().chain(walk(n - 1, -1)).collect()
 }
 
 /// The dips of the error `e` (at `f`) that equalisation should leave: a
@@ -641,6 +778,7 @@ impl<'a> Problem<'a> {
             inside(x, Uncorrectable::NarrowDip)
                 || inside(x, Uncorrectable::DeepDip)
                 || inside(x, Uncorrectable::AboveTransition)
+                || inside(x, Uncorrectable::RollOff)
         };
         let w: Vec<f64> = f
             .iter()
@@ -651,7 +789,9 @@ impl<'a> Problem<'a> {
             .iter()
             .zip(weights)
             .map(|(&x, &(_, wi))| {
-                let dip = inside(x, Uncorrectable::NarrowDip) || inside(x, Uncorrectable::DeepDip);
+                let dip = inside(x, Uncorrectable::NarrowDip)
+                    || inside(x, Uncorrectable::DeepDip)
+                    || inside(x, Uncorrectable::RollOff);
                 if dip { 100.0 * wi / total } else { 0.0 }
             })
             .collect();

@@ -193,13 +193,17 @@ codes! {
     /// a position it needs was not measured.
     DirectivityWithheld = "directivity-withheld", Caution, Combining;
     /// A tuning leaves regions of its range uncorrected (dips equalisation
-    /// should not fill, or above the transition frequency).
+    /// should not fill, a loudspeaker's roll-off, or above the transition
+    /// frequency).
     TuningUncorrectable = "tuning-uncorrectable", Note, Other;
     /// A tuning of one position of a room without the room's transition
     /// frequency: above it one position's response is not the room's.
     TuningSinglePosition = "tuning-single-position", Caution, Combining;
     /// The predicted response still leaves the target's tolerance.
     TuningOutsideTolerance = "tuning-outside-tolerance", Caution, Other;
+    /// A boost of the tuning reaches past an edge of its range, where
+    /// nothing was measured (a loudspeaker may not play there).
+    TuningBoostPastEdge = "tuning-boost-past-edge", Caution, Other;
     /// A warning read from a file written before codes existed.
     Unclassified = "unclassified", Note, Other;
 }

@@ -7,6 +7,7 @@ use std::fmt::Write;
 
 use super::html::{esc, hz};
 use super::{Counters, Folder, Plot, figure};
+use crate::analysis::tuning::Uncorrectable;
 use crate::folder::schema::{TuningFile, TuningManifest};
 use crate::model::plot_kind::{CaptionFacts, PlotKind};
 
@@ -73,8 +74,11 @@ pub fn section(out: &mut String, f: &Folder, t: &TuningFile, lead: bool, n: &mut
     } else {
         out.push_str("<p><strong>Left uncorrected:</strong></p><ul>");
         for r in &t.uncorrectable {
-            let depth = match (r.depth_db, r.width_octaves) {
-                (Some(d), Some(w)) => {
+            let depth = match (r.kind, r.depth_db, r.width_octaves) {
+                (Uncorrectable::RollOff, Some(d), _) => {
+                    format!(" ({d:.1} dB under the range's median at its edge)")
+                }
+                (_, Some(d), Some(w)) => {
                     format!(" ({d:.1} dB deep, {w:.2} octave wide at half depth)")
                 }
                 _ => String::new(),

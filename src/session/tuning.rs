@@ -245,7 +245,7 @@ fn design(job: &TuneJob, inputs: &[Input], results: &Results) -> Result<TuningFi
             })
         })
         .collect::<Result<Vec<_>>>()?;
-    let warnings = warnings(&t, inputs, results, transition.is_some());
+    let warnings = warnings(&t, &settings, inputs, results, transition.is_some());
     let below_transition = t.below_transition;
     let fir = match job.fir_taps {
         None => None,
@@ -314,7 +314,13 @@ fn fir_record(
 }
 
 /// The warnings of a design.
-fn warnings(t: &Tuning, inputs: &[Input], results: &Results, transition: bool) -> Warnings {
+fn warnings(
+    t: &Tuning,
+    settings: &TuneSettings,
+    inputs: &[Input],
+    results: &Results,
+    transition: bool,
+) -> Warnings {
     let mut w = Warnings::new();
     for r in &t.uncorrectable {
         w.add(
@@ -322,6 +328,26 @@ fn warnings(t: &Tuning, inputs: &[Input], results: &Results, transition: bool) -
             format!(
                 "{:.0}–{:.0} Hz is left uncorrected: {}",
                 r.range_hz[0], r.range_hz[1], r.reason
+            ),
+        );
+    }
+    for (f, edge, past) in
+        tuning::boosts_past_edges(&t.filters, settings.range_hz, settings.sample_rate_hz)
+    {
+        let side = if edge <= f.frequency_hz {
+            "below"
+        } else {
+            "above"
+        };
+        w.add(
+            Code::TuningBoostPastEdge,
+            format!(
+                "the {} filter of {:+.1} dB at {:.0} Hz also boosts {side} the range's edge at {:.0} Hz, where nothing was measured ({:+.1} dB half an octave {side} it); if the loudspeaker does not play there, narrow --range to where it does, or add a high-pass in the processor",
+                f.kind.words(),
+                f.gain_db,
+                f.frequency_hz,
+                edge,
+                past
             ),
         );
     }

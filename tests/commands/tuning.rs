@@ -305,3 +305,103 @@ fn bad_tuning_options_get_one_clear_line() {
         "nothing is written for a refused run"
     );
 }
+
+#[test]
+fn a_loudspeakers_roll_off_is_left_alone_and_a_boost_past_the_range_is_said() {
+    // the device of the tests above (high-pass at 45 Hz), measured without
+    // a room and tuned over 20 Hz–10 kHz, wider than it plays
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    record_device(dir, &[], |x| through(&device(), x));
+    ok(
+        dir,
+        &[
+            "analyze",
+            "dut.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            "m",
+            "--no-plots",
+        ],
+    );
+    flat_target(dir);
+    ok(
+        dir,
+        &[
+            "tune", "m", "--target", "flat.csv", "--out", "t", "--range", "20,10000",
+        ],
+    );
+    let t = json(&dir.join("t/tuning.json"));
+    let roll = t["uncorrectable"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["kind"] == "roll_off")
+        .expect("the roll-off below 45 Hz is left alone");
+    // a second-order Butterworth high-pass is 3 dB down at its corner
+    // (closed form), so the region reaches from 20 Hz to about 45 Hz
+    let top = roll["range_hz"][1].as_f64().unwrap();
+    assert!((40.0..52.0).contains(&top), "{roll}");
+    // the filters as exported, by the tests' own closed form: no boost
+    // into the roll-off
+    let sections: Vec<Coeffs> = t["coefficients"][0]["sections"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| {
+            let v: Vec<f64> = s
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|x| x.as_f64().unwrap())
+                .collect();
+            [v[0], v[1], v[2], v[3], v[4]]
+        })
+        .collect();
+    for f in [20.0, 25.0, 30.0, 35.0, 40.0] {
+        let db: f64 = sections
+            .iter()
+            .map(|c| 20.0 * response(c, f).norm().log10())
+            .sum();
+        assert!(db <= 0.1, "{db:.2} dB of boost at {f} Hz");
+    }
+    let txt = std::fs::read_to_string(dir.join("t/filters.txt")).unwrap();
+    assert!(txt.contains("roll-off"), "{txt}");
+
+    // a boost the design places at the range's edge is said: the committed
+    // demo room tuned from 40 Hz, below where its monitors play (the
+    // room's gain hides their roll-off from the measurement)
+    let m = Path::new(env!("CARGO_MANIFEST_DIR")).join("measurements/rehearsal-room");
+    let arg = |k: u32| m.join(format!("after-{k}")).display().to_string();
+    let target = m.join("target.csv").display().to_string();
+    ok(
+        dir,
+        &[
+            "tune",
+            &arg(1),
+            &arg(2),
+            &arg(3),
+            "--target",
+            &target,
+            "--range",
+            "40,16000",
+            "--volume",
+            "45.448",
+            "--out",
+            "room",
+            "--no-plots",
+        ],
+    );
+    let r = json(&dir.join("room/tuning.json"));
+    let codes: Vec<&str> = r["warning_codes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|c| c.as_str())
+        .collect();
+    assert!(codes.contains(&"tuning-boost-past-edge"), "{codes:?}");
+    // and none when the range is where the monitors play (the demo's own)
+    let own = json(&m.join("tuning/tuning.json"));
+    assert!(!own["warning_codes"].to_string().contains("boost-past-edge"));
+}

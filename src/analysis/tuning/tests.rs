@@ -401,3 +401,139 @@ fn a_response_on_its_target_gets_no_filters_and_a_silent_one_is_refused() {
     let e = design(&f, &m, &flat_target(), &settings((100.0, 10_000.0))).unwrap_err();
     assert!(e.message().contains("no finite level"), "{e}");
 }
+
+#[test]
+fn a_loudspeakers_roll_off_at_the_range_edge_is_never_boosted() {
+    // a loudspeaker whose second-order high-pass at 60 Hz sits inside the
+    // range asked for (20 Hz–20 kHz, flat target): the design must not
+    // push up to 6 dB of boost into the falling bass below its −3 dB
+    // point, where a woofer's excursion grows fastest
+    let f = grid();
+    let q = std::f64::consts::FRAC_1_SQRT_2;
+    let chain = [
+        Biquad::highpass(FS, 60.0, q),
+        Biquad::peaking(FS, 1200.0, 2.0, 5.0),
+    ];
+    let measured = chain_db(&chain, &f);
+    let t = design(&f, &measured, &flat_target(), &settings((20.0, 20_000.0))).unwrap();
+    let roll = t
+        .uncorrectable
+        .iter()
+        .find(|r| r.kind == Uncorrectable::RollOff)
+        .expect("the roll-off is reported");
+    assert_eq!(roll.range_hz[0], 20.0);
+    // closed form: a second-order Butterworth high-pass is 3 dB down at
+    // its corner, so the region ends within a grid step of 60 Hz
+    assert!(
+        (roll.range_hz[1] / 60.0).log2().abs() < 2.0 / 48.0,
+        "{:?}",
+        roll.range_hz
+    );
+    // |H|² = x⁴/(1 + x⁴) with x = f/fc: 19.1 dB down at 20 Hz
+    let depth = roll.depth_db.unwrap();
+    let closed = -10.0 * ((20.0f64 / 60.0).powi(4) / (1.0 + (20.0f64 / 60.0).powi(4))).log10();
+    assert!((depth - closed).abs() < 0.2, "{depth} against {closed}");
+    assert!(roll.reason.contains("roll-off"));
+    let filters: Vec<Biquad> = t.filters.iter().map(|x| x.biquad(FS)).collect();
+    let below: Vec<f64> = f
+        .iter()
+        .copied()
+        .filter(|&x| x <= roll.range_hz[1])
+        .collect();
+    let most = chain_db(&filters, &below)
+        .into_iter()
+        .fold(f64::NEG_INFINITY, f64::max);
+    assert!(
+        most <= 0.1,
+        "{most:.2} dB of boost into the roll-off: {:?}",
+        t.filters
+    );
+    // the peak at 1.2 kHz is still corrected
+    let i = f.iter().position(|&x| x >= 1200.0).unwrap();
+    // (against the passband's 0 dB: the level-aligned deviation takes in
+    // the roll-off left alone too)
+    let after = measured[i] + chain_db(&filters, &[f[i]])[0];
+    assert!(after.abs() < 1.0, "{after} dB at 1.2 kHz after correction");
+}
+
+#[test]
+fn a_roll_off_must_fall_steadily_to_the_edge() {
+    let f: Vec<f64> = (0..=48 * 6)
+        .map(|k| 40.0 * 2f64.powf(k as f64 / 48.0))
+        .collect();
+    // a tweeter's roll-off at the top: falling 12 dB an octave above
+    // 1.28 kHz, steadily
+    let top: Vec<f64> = f
+        .iter()
+        .map(|&x| -12.0 * (x / 1280.0).log2().max(0.0))
+        .collect();
+    let r = find_roll_offs(&f, &top);
+    assert_eq!(r.len(), 1);
+    assert_eq!(r[0].range_hz[1], 2560.0);
+    assert!(
+        (r[0].range_hz[0] / 2f64.powf(1280f64.log2() + 0.25))
+            .log2()
+            .abs()
+            < 1.0 / 48.0
+    );
+    assert!((r[0].depth_db.unwrap() - 12.0).abs() < 1e-9);
+    // a dip beside the low edge that comes back up towards it (a room
+    // null at 60 Hz, the edge at 40 Hz 8 dB down but rising 5 dB from the
+    // null) is no roll-off: the dip rule judges it
+    let null: Vec<f64> = f
+        .iter()
+        .map(|&x| {
+            let d = (x / 60.0).log2();
+            if x < 60.0 {
+                -13.0 - 5.0 * d / 1.5f64.log2()
+            } else {
+                -13.0 * (1.0 - d / 0.5).max(0.0)
+            }
+        })
+        .collect();
+    assert!((null[0] + 8.0).abs() < 0.1);
+    assert!(find_roll_offs(&f, &null).is_empty());
+    // a response within 6 dB of its median at both edges has none
+    let gentle: Vec<f64> = f.iter().map(|&x| -2.0 * (x / 40.0).log2()).collect();
+    assert!(
+        find_roll_offs(&f, &gentle)
+            .iter()
+            .all(|r| r.range_hz[0] > 40.0)
+    );
+}
+
+#[test]
+fn a_boost_past_the_range_is_found_by_its_half_gain_band() {
+    let peak = |f: f64, q: f64, g: f64| Filter {
+        kind: FilterKind::Peaking,
+        frequency_hz: f,
+        gain_db: g,
+        q,
+    };
+    let range = (40.0, 16_000.0);
+    // 1/Q = 2·sinh(ln 2/2·BW): Q 8 is 0.18 octave wide at half gain, so
+    // centred at 40 Hz it reaches below; at 45 Hz it stays above 42.3 Hz
+    let found = boosts_past_edges(&[peak(40.0, 8.0, 5.0)], range, FS);
+    assert_eq!(found.len(), 1);
+    assert_eq!(found[0].1, 40.0);
+    assert!(found[0].2 > 0.0 && found[0].2 < 1.0, "{}", found[0].2);
+    assert!(boosts_past_edges(&[peak(45.0, 8.0, 5.0)], range, FS).is_empty());
+    // Q 1 is 1.39 octaves wide: at 60 Hz it reaches down to 37 Hz
+    assert_eq!(
+        boosts_past_edges(&[peak(60.0, 1.0, 3.0)], range, FS).len(),
+        1
+    );
+    // a cut may reach anywhere
+    assert!(boosts_past_edges(&[peak(40.0, 8.0, -5.0)], range, FS).is_empty());
+    // a high shelf that boosts lifts everything above the top edge too
+    let shelf = Filter {
+        kind: FilterKind::HighShelf,
+        frequency_hz: 8000.0,
+        gain_db: 2.0,
+        q: SHELF_Q,
+    };
+    let s = boosts_past_edges(&[shelf], range, FS);
+    assert_eq!(s.len(), 1);
+    assert_eq!(s[0].1, 16_000.0);
+    assert!((s[0].2 - 2.0).abs() < 0.3, "{}", s[0].2);
+}
