@@ -139,16 +139,26 @@ pub fn low_edge(f: f64, f1: f64) -> Complex<f64> {
     if f <= 0.0 {
         return Complex::new(0.0, 0.0);
     }
-    let n = LOW_EDGE_ORDER as f64;
     let s = Complex::new(0.0, f / f1); // normalised to ωc = 1
     let mut h = Complex::new(1.0, 0.0);
-    for k in 0..LOW_EDGE_ORDER {
-        let angle = std::f64::consts::PI * (2.0 * k as f64 + n + 1.0) / (2.0 * n);
-        let p = Complex::from_polar(1.0, angle);
+    for p in LOW_EDGE_POLES.iter() {
         h *= s / (1.0 - p * s);
     }
     h
 }
+
+/// The left-half-plane poles of the unit Butterworth low-pass of order
+/// [`LOW_EDGE_ORDER`], e^(iπ(2k + N + 1)/2N), computed once: [`low_edge`]
+/// is evaluated on every bin of every deconvolution, and the poles' sines
+/// and cosines were most of its cost.
+static LOW_EDGE_POLES: std::sync::LazyLock<[Complex<f64>; LOW_EDGE_ORDER]> =
+    std::sync::LazyLock::new(|| {
+        let n = LOW_EDGE_ORDER as f64;
+        std::array::from_fn(|k| {
+            let angle = std::f64::consts::PI * (2.0 * k as f64 + n + 1.0) / (2.0 * n);
+            Complex::from_polar(1.0, angle)
+        })
+    });
 
 /// Divides [`low_edge`] out of a spectrum on bins `df` apart, from a
 /// quarter octave below f1 up (below that the band limit is left in: it
