@@ -347,10 +347,39 @@ fn directivity(c: &mut Criterion) {
     g.finish();
 }
 
+/// What checking the sweep file against its description costs: generating
+/// the sweep again and comparing (a description without a binding), or
+/// hashing the WAV and the binding (`gliss sweep`'s files).
+fn sweep_check(c: &mut Criterion) {
+    use gliss::session::sweep_file::{self, SweepFile};
+    use gliss::signal::wav::{SampleEncoding, decode_wav, encode_wav};
+    let design = SweepParams {
+        requested_length_s: 5.0,
+        tail_s: 3.0,
+        ..SweepParams::default()
+    }
+    .design()
+    .expect("a valid sweep");
+    let enc = SampleEncoding::Float;
+    let bytes = encode_wav(&[&design.generate()], design.params.sample_rate_hz, enc);
+    let json = sweep_file::describe(&design, "sweep.wav", &enc.describe(), &bytes).unwrap();
+    let file: SweepFile = serde_json::from_slice(&json).unwrap();
+    let wav = decode_wav(&bytes).unwrap();
+    let mut g = c.benchmark_group("sweep_file_check_5s_48k_3s_tail");
+    g.sample_size(30);
+    g.bench_function("generated again and compared (no binding)", |b| {
+        b.iter(|| assert!(!sweep_file::differs(black_box(&design), black_box(&wav))))
+    });
+    g.bench_function("vouched for: SHA-256 of the WAV and the binding", |b| {
+        b.iter(|| assert!(black_box(&file).vouches(black_box(&bytes))))
+    });
+    g.finish();
+}
+
 criterion_group! {
     name = benches;
     // Criterion's own charts would need a system font; the numbers suffice.
     config = Criterion::default().without_plots();
-    targets = bench, png, align, directivity
+    targets = bench, png, align, directivity, sweep_check
 }
 criterion_main!(benches);

@@ -86,7 +86,11 @@ pub fn run(a: Args) -> Result<()> {
             "give the recording and --sweep SWEEP.wav, or --impulse IR.wav",
         ));
     };
-    let (design, recovered_sweep) = sweep_file::load_or_recover(sweep_path)?;
+    let sweep_file::LoadedSweep {
+        design,
+        recovered: recovered_sweep,
+        binding: sweep_binding,
+    } = sweep_file::load_or_recover(sweep_path)?;
     let target = a
         .output
         .target((design.params.start_hz, design.params.end_hz))?;
@@ -135,6 +139,7 @@ pub fn run(a: Args) -> Result<()> {
         target,
         impulse: false,
         recovered_sweep,
+        sweep_binding,
         impedance: None,
         position: a.orbit.position()?,
     };
@@ -200,6 +205,7 @@ fn run_impulse(
         target,
         impulse: true,
         recovered_sweep: None,
+        sweep_binding: None,
         impedance: None,
         position: a.orbit.position()?,
     };

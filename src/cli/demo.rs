@@ -229,6 +229,7 @@ fn measure_with(
         target,
         impulse: false,
         recovered_sweep: None,
+        sweep_binding: None,
         impedance: None,
         position: system.position,
     };

@@ -202,7 +202,11 @@ pub fn run(a: Args) -> Result<()> {
         ));
     }
     let imp = a.job()?;
-    let (design, recovered_sweep) = sweep_file::load_or_recover(&a.sweep)?;
+    let sweep_file::LoadedSweep {
+        design,
+        recovered: recovered_sweep,
+        binding: sweep_binding,
+    } = sweep_file::load_or_recover(&a.sweep)?;
     let (stimulus_bytes, stimulus) = read(&a.sweep, "the sweep")?;
     let (recording_bytes, recording) = read(&a.recording, "the recording")?;
     let title = a
@@ -243,6 +247,7 @@ pub fn run(a: Args) -> Result<()> {
         target: None,
         impulse: false,
         recovered_sweep,
+        sweep_binding,
         impedance: Some(imp),
         position: None,
     };

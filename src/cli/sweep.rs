@@ -6,9 +6,8 @@ use clap::Args as ClapArgs;
 
 use crate::cli::common::SweepArgs;
 use gliss::error::{Error, ErrorKind, Result};
-use gliss::folder::sha256_hex;
 use gliss::folder::write::{write_new, write_replacing};
-use gliss::session::sweep_file::{self, SweepFile, WavInfo};
+use gliss::session::sweep_file;
 use gliss::signal::wav::{self, SampleEncoding};
 
 /// Options of `gliss sweep`.
@@ -61,25 +60,17 @@ pub fn run(a: Args) -> Result<()> {
     }
     let x = design.generate();
     let bytes = wav::encode_wav(&[&x], design.params.sample_rate_hz, encoding);
-    let record = SweepFile {
-        format: sweep_file::FORMAT.into(),
-        schema_version: 1,
-        sweep: design.clone(),
-        wav: WavInfo {
-            file: a
-                .out
-                .file_name()
-                .map(|n| n.to_string_lossy().into_owned())
-                .unwrap_or_default(),
-            encoding: encoding.describe(),
-            sha256: sha256_hex(&bytes),
-        },
-    };
-    let json = gliss::session::to_json(&record)?;
+    let file = a
+        .out
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let json = sweep_file::describe(&design, &file, &encoding.describe(), &bytes)?;
     if a.overwrite {
         // each file whole or not at all; if the second fails, the pair
-        // disagrees, and the analysis refuses it (it makes the sweep again
-        // from the .json and compares it with the WAV)
+        // disagrees: the old WAV does not have the hash the new .json
+        // records, so the analysis makes the sweep again from the .json,
+        // compares it with the WAV and warns that they differ
         write_replacing(&side, &json, true)?;
         write_replacing(&a.out, &bytes, true)?;
     } else {

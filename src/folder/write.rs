@@ -600,8 +600,20 @@ impl MeasurementFolder {
     /// is kept as it is; otherwise it is created, never replaced. Returns
     /// its SHA-256.
     pub fn write_raw(&self, name: &str, bytes: &[u8]) -> Result<String> {
+        self.write_raw_hashed(name, bytes, sha256_hex(bytes))
+    }
+
+    /// [`MeasurementFolder::write_raw`] of bytes whose SHA-256 (lowercase
+    /// hex) the caller has already taken, so that they are not hashed
+    /// twice: `hash` must be [`sha256_hex`] of exactly `bytes`, as it is
+    /// recorded in the manifest.
+    pub fn write_raw_hashed(&self, name: &str, bytes: &[u8], hash: String) -> Result<String> {
+        debug_assert_eq!(
+            hash,
+            sha256_hex(bytes),
+            "the hash given is not that of the bytes"
+        );
         let path = self.dir.join(name);
-        let hash = sha256_hex(bytes);
         if path.exists() {
             let old = fs::read(&path).map_err(|e| Error::io("read", &path, &e))?;
             if sha256_hex(&old) == hash {

@@ -815,6 +815,7 @@ fn analysis_job(
         target: m.target.clone(),
         impulse: false,
         recovered_sweep: None,
+        sweep_binding: None,
         impedance: m.impedance.clone(),
         position: m.position,
     })

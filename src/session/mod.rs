@@ -83,6 +83,13 @@ pub struct Job {
     /// The sweep file had no description and its design was recovered
     /// from its samples: what was found, said as a note.
     pub recovered_sweep: Option<String>,
+    /// The binding the sweep file's description records
+    /// ([`sweep_file::SweepBinding`]): when it vouches for
+    /// `stimulus_bytes` and `design`, the sweep is not generated again to
+    /// be compared with the file. `None` (a sweep generated in memory, a
+    /// measurement folder's stimulus.wav, a description without one): the
+    /// file is compared with the sweep generated again.
+    pub sweep_binding: Option<sweep_file::SweepBinding>,
     /// A loudspeaker driver's impedance through a sense resistor: the
     /// folder is an impedance measurement ([`impedance`]).
     pub impedance: Option<impedance::ImpedanceJob>,
@@ -179,10 +186,28 @@ pub struct Outcome {
 }
 
 /// Checks the inputs of a job before any file is written: sample rates,
-/// the channel, the sweep file against its description.
+/// the channel, the sweep file against its description (vouched for by
+/// the description's binding, [`Job::sweep_binding`], or else compared
+/// with the sweep generated again, [`sweep_file::differs`]).
 pub fn check_inputs(job: &Job) -> Result<Warnings> {
+    checked_inputs(job).map(|c| c.warnings)
+}
+
+/// What [`checked_inputs`] found: the warnings, and the SHA-256 of the
+/// stimulus's bytes when it took it (to vouch for the sweep file), so
+/// that writing stimulus.wav does not hash them again.
+struct Checked {
+    warnings: Warnings,
+    stimulus_sha256: Option<String>,
+}
+
+/// [`check_inputs`], keeping the stimulus's hash it took.
+fn checked_inputs(job: &Job) -> Result<Checked> {
     if job.impulse {
-        return check_impulse_inputs(job);
+        return check_impulse_inputs(job).map(|warnings| Checked {
+            warnings,
+            stimulus_sha256: None,
+        });
     }
     let mut warnings = Warnings::new();
     let rec = &job.recording;
@@ -244,29 +269,32 @@ pub fn check_inputs(job: &Job) -> Result<Warnings> {
     if let Some(note) = &job.recovered_sweep {
         // the design came from the file itself: nothing to compare it with
         warnings.add(Code::SweepRecovered, note.clone());
-        return Ok(warnings);
+        return Ok(Checked {
+            warnings,
+            stimulus_sha256: None,
+        });
     }
-    // the file must hold the sweep its parameters describe (within its
-    // quantisation step)
-    let want = job.design.generate();
-    let step = match stim.encoding {
-        SampleEncoding::Int(b) => 1.0 / f64::from(1u32 << (b - 1)),
-        SampleEncoding::Float => 1e-6,
+    // the file must hold the sweep its parameters describe: vouched for
+    // by its description's binding, or compared with the sweep generated
+    // again (within its quantisation step)
+    let stimulus_sha256 = job
+        .sweep_binding
+        .as_ref()
+        .map(|_| crate::folder::sha256_hex(&job.stimulus_bytes));
+    let vouched = match (&job.sweep_binding, &stimulus_sha256) {
+        (Some(b), Some(h)) => b.vouches(&job.design.params, h),
+        _ => false,
     };
-    let got = &stim.channels[0];
-    let n = want.len().min(got.len());
-    let worst = want[..n]
-        .iter()
-        .zip(&got[..n])
-        .map(|(a, b)| (a - b).abs())
-        .fold(0.0, f64::max);
-    if worst > 1.5 * step || got.len() < job.design.sweep_samples {
+    if !vouched && sweep_file::differs(&job.design, stim) {
         warnings.add(
             Code::SweepFileDiffers,
             "the sweep file differs from the sweep its .json describes; the analysis divides by the file as it is, but check that it is the file that was played",
         );
     }
-    Ok(warnings)
+    Ok(Checked {
+        warnings,
+        stimulus_sha256,
+    })
 }
 
 /// The checks of an impulse-response job: the channel exists, and nothing
@@ -398,24 +426,24 @@ fn check_channel(job: &Job, warnings: &mut Warnings) -> Result<()> {
 /// Runs a job: checks, analyses, then writes the folder. Nothing is
 /// written when the inputs or the folder are refused.
 pub fn run(job: Job) -> Result<Outcome> {
-    let warnings = check_inputs(&job)?;
+    let checked = checked_inputs(&job)?;
     let folder = MeasurementFolder::check(&job.out, job.overwrite, &raw_files(&job))?;
-    analyse_checked(job, &folder, warnings)
+    analyse_checked(job, &folder, checked)
 }
 
 /// Analyses a job into `folder`, whose raw files may already be there
 /// (a measurement writes them while it records).
 pub fn analyse_into(job: Job, folder: &MeasurementFolder) -> Result<Outcome> {
-    let warnings = check_inputs(&job)?;
-    analyse_checked(job, folder, warnings)
+    let checked = checked_inputs(&job)?;
+    analyse_checked(job, folder, checked)
 }
 
-/// [`analyse_into`] once [`check_inputs`] has passed and said `extra`.
-fn analyse_checked(
-    mut job: Job,
-    folder: &MeasurementFolder,
-    mut extra: Warnings,
-) -> Result<Outcome> {
+/// [`analyse_into`] once [`check_inputs`] has passed and said `checked`.
+fn analyse_checked(mut job: Job, folder: &MeasurementFolder, checked: Checked) -> Result<Outcome> {
+    let Checked {
+        warnings: mut extra,
+        stimulus_sha256,
+    } = checked;
     // an impedance is refused (swapped channels, clipping, an open
     // circuit) before anything is written
     let imp = match &job.impedance {
@@ -427,7 +455,7 @@ fn analyse_checked(
     // recorded sample for a 32-bit recording and its sweep). A run that
     // fails from here on takes the files it created away again when the
     // folder is dropped; raw files already there are only compared.
-    let raw = write_raw_files(&job, folder)?;
+    let raw = write_raw_files(&job, folder, stimulus_sha256.as_deref())?;
     job.recording_bytes = Vec::new();
     job.stimulus_bytes = Vec::new();
     let job = &job;
@@ -594,14 +622,22 @@ fn write_folder(
 
 /// Writes the raw files first (they are the measurement), once, and
 /// returns their manifest entries.
-fn write_raw_files(job: &Job, folder: &MeasurementFolder) -> Result<Vec<FileEntry>> {
+fn write_raw_files(
+    job: &Job,
+    folder: &MeasurementFolder,
+    stimulus_sha256: Option<&str>,
+) -> Result<Vec<FileEntry>> {
     raw_files(job)
         .into_iter()
         .map(|(name, bytes)| {
+            let sha256 = match stimulus_sha256.filter(|_| name == "stimulus.wav") {
+                Some(h) => folder.write_raw_hashed(name, bytes, h.to_string())?,
+                None => folder.write_raw(name, bytes)?,
+            };
             Ok(FileEntry {
                 name: name.into(),
                 role: crate::folder::schema::FileRole::Raw,
-                sha256: folder.write_raw(name, bytes)?,
+                sha256,
             })
         })
         .collect()

@@ -174,6 +174,7 @@ pub fn job(dir: &Path, s: &Settings) -> Result<Job> {
         target: s.target.clone(),
         impulse,
         recovered_sweep: None,
+        sweep_binding: None,
         impedance: None,
         position: manifest.settings.position,
     })

@@ -44,6 +44,14 @@ pub const MAX_LENGTH_S: f64 = 600.0;
 /// Longest silent tail accepted, in seconds.
 pub const MAX_TAIL_S: f64 = 60.0;
 
+/// Version of the samples [`SweepDesign::generate`] makes from a set of
+/// parameters. Raise it with any change to the generation that changes a
+/// sample beyond a WAV's quantisation step: it is part of
+/// [`SweepParams::canonical_text`], so the sweep files an earlier gliss
+/// wrote are then compared with the new generation again instead of
+/// being vouched for by their hash.
+pub const SAMPLES_VERSION: u32 = 1;
+
 /// What the user asks for. [`SweepParams::design`] checks it and derives the
 /// exact sweep.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -110,6 +118,37 @@ fn finite(name: &str, v: f64) -> Result<()> {
 }
 
 impl SweepParams {
+    /// A fixed text of everything that defines the sweep's samples: every
+    /// parameter, one `name: value` line each in a fixed order, floats in
+    /// their shortest exact form (`{:?}`, which reads back to the same
+    /// bits), after a line naming [`SAMPLES_VERSION`]. Two sets of
+    /// parameters have the same text only if they are equal, whatever the
+    /// field order or spacing of the JSON they were read from.
+    pub fn canonical_text(&self) -> String {
+        // no `..`: a new parameter must be added here before it compiles
+        let SweepParams {
+            start_hz,
+            end_hz,
+            requested_length_s,
+            sample_rate_hz,
+            level_dbfs,
+            tail_s,
+            fade_in_octaves,
+            fade_out_octaves,
+        } = self;
+        format!(
+            "gliss sweep samples version: {SAMPLES_VERSION}\n\
+             start_hz: {start_hz:?}\n\
+             end_hz: {end_hz:?}\n\
+             requested_length_s: {requested_length_s:?}\n\
+             sample_rate_hz: {sample_rate_hz}\n\
+             level_dbfs: {level_dbfs:?}\n\
+             tail_s: {tail_s:?}\n\
+             fade_in_octaves: {fade_in_octaves:?}\n\
+             fade_out_octaves: {fade_out_octaves:?}\n"
+        )
+    }
+
     /// Peak amplitude (full scale = 1.0) of `level_dbfs`.
     pub fn amplitude(&self) -> f64 {
         10f64.powf(self.level_dbfs / 20.0)
@@ -258,6 +297,30 @@ impl SweepDesign {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn canonical_text_names_every_parameter_exactly() {
+        let p = SweepParams::default();
+        let t = p.canonical_text();
+        assert_eq!(
+            t,
+            "gliss sweep samples version: 1\nstart_hz: 20.0\nend_hz: 20000.0\n\
+             requested_length_s: 5.0\nsample_rate_hz: 48000\nlevel_dbfs: -20.0\n\
+             tail_s: 2.0\nfade_in_octaves: 0.16666666666666666\n\
+             fade_out_octaves: 0.041666666666666664\n"
+        );
+        // the shortest form reads back to the same bits
+        let fade: f64 = "0.16666666666666666".parse().unwrap();
+        assert_eq!(fade.to_bits(), (1.0f64 / 6.0).to_bits());
+        // one ulp of one parameter changes the text
+        let q = SweepParams {
+            level_dbfs: f64::from_bits((-20.0f64).to_bits() + 1),
+            ..p.clone()
+        };
+        assert_ne!(q.canonical_text(), t);
+        let q = SweepParams { tail_s: 2.5, ..p };
+        assert_ne!(q.canonical_text(), t);
+    }
 
     fn design(start: f64, end: f64, len: f64) -> SweepDesign {
         SweepParams {

@@ -180,3 +180,148 @@ fn every_help_page_explains_its_options() {
         }
     }
 }
+
+/// A 1 s sweep in `dir` (sweep.wav, sweep.json) and dut.wav, the sweep
+/// recorded as it is.
+fn sweep_and_recording(dir: &std::path::Path) {
+    record_device(dir, &["--length", "1", "--tail", "0.5"], |x| x.to_vec());
+}
+
+/// Analyses dut.wav against sweep.wav into `out`; whether results.json
+/// says the sweep file differs from its description.
+fn warns_sweep_differs(dir: &std::path::Path, out: &str) -> bool {
+    ok(
+        dir,
+        &[
+            "analyze",
+            "dut.wav",
+            "--sweep",
+            "sweep.wav",
+            "--out",
+            out,
+            "--no-plots",
+        ],
+    );
+    let r = json(&dir.join(out).join("results.json"));
+    r["warning_codes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .any(|c| c == "sweep-file-differs")
+}
+
+/// sweep.wav with sample `n` set to 0.5 (a 32-bit float WAV, mono).
+fn change_one_sample(dir: &std::path::Path, n: usize) {
+    let path = dir.join("sweep.wav");
+    let mut bytes = std::fs::read(&path).unwrap();
+    let data = bytes.windows(4).position(|w| w == b"data").unwrap() + 8;
+    bytes[data + 4 * n..data + 4 * n + 4].copy_from_slice(&0.5f32.to_le_bytes());
+    std::fs::write(&path, bytes).unwrap();
+}
+
+/// sweep.json changed by `edit`, written back.
+fn edit_description(dir: &std::path::Path, edit: impl Fn(&mut serde_json::Value)) {
+    let path = dir.join("sweep.json");
+    let mut j = json(&path);
+    edit(&mut j);
+    std::fs::write(&path, serde_json::to_vec_pretty(&j).unwrap()).unwrap();
+}
+
+#[test]
+fn a_sweep_gliss_made_is_vouched_for_by_its_description() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    sweep_and_recording(d);
+    let j = json(&d.join("sweep.json"));
+    let binding = j["binding_sha256"].as_str().expect("a binding");
+    let file: gliss::session::sweep_file::SweepFile = serde_json::from_value(j.clone()).unwrap();
+    assert_eq!(
+        binding,
+        gliss::session::sweep_file::binding_sha256(
+            &file.sweep.params,
+            j["wav"]["sha256"].as_str().unwrap()
+        )
+    );
+    assert!(file.vouches(&std::fs::read(d.join("sweep.wav")).unwrap()));
+    assert!(!warns_sweep_differs(d, "m"));
+    // the manifest records the stimulus's hash as before: the one taken
+    // to vouch for it
+    let m = json(&d.join("m/manifest.json"));
+    let stim = m["files"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|f| f["name"] == "stimulus.wav")
+        .unwrap();
+    assert_eq!(stim["sha256"], j["wav"]["sha256"]);
+}
+
+#[test]
+fn a_hand_edited_design_fails_its_binding_and_the_sweep_is_compared_again() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    sweep_and_recording(d);
+    // the WAV is untouched and its hash still right; the level is not
+    edit_description(d, |j| j["sweep"]["params"]["level_dbfs"] = (-14.0).into());
+    assert!(warns_sweep_differs(d, "m"));
+}
+
+#[test]
+fn a_wav_changed_after_it_was_written_fails_its_hash_and_is_compared_again() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    sweep_and_recording(d);
+    change_one_sample(d, 20_000);
+    assert!(warns_sweep_differs(d, "m"));
+}
+
+#[test]
+fn a_binding_that_vouches_for_a_wav_is_believed_without_generating_the_sweep() {
+    // what proves the comparison is skipped: a WAV the comparison would
+    // flag, with its hash and binding made again to vouch for it, passes.
+    // (The binding guards against a description and a WAV that were not
+    // written together, not against whoever makes both hashes again.)
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    sweep_and_recording(d);
+    change_one_sample(d, 20_000);
+    let sha = gliss::folder::sha256_hex(&std::fs::read(d.join("sweep.wav")).unwrap());
+    edit_description(d, |j| {
+        let file: gliss::session::sweep_file::SweepFile =
+            serde_json::from_value(j.clone()).unwrap();
+        j["wav"]["sha256"] = sha.clone().into();
+        j["binding_sha256"] =
+            gliss::session::sweep_file::binding_sha256(&file.sweep.params, &sha).into();
+    });
+    assert!(!warns_sweep_differs(d, "m"));
+}
+
+#[test]
+fn a_description_without_a_binding_is_compared_as_before_to_the_same_numbers() {
+    let t = tempfile::tempdir().unwrap();
+    let d = t.path();
+    sweep_and_recording(d);
+    assert!(!warns_sweep_differs(d, "bound"));
+    // as an earlier gliss wrote it
+    edit_description(d, |j| {
+        j.as_object_mut().unwrap().remove("binding_sha256");
+    });
+    assert!(!warns_sweep_differs(d, "old"));
+    // the analysis is the same whichever check ran
+    for f in [
+        "results.json",
+        "response.csv",
+        "bands.csv",
+        "distortion.csv",
+        "impulse.wav",
+    ] {
+        assert!(
+            std::fs::read(d.join("bound").join(f)).unwrap()
+                == std::fs::read(d.join("old").join(f)).unwrap(),
+            "{f} differs"
+        );
+    }
+    // and a changed sample is still found by the comparison
+    change_one_sample(d, 20_000);
+    assert!(warns_sweep_differs(d, "changed"));
+}
