@@ -32,6 +32,16 @@ fn flat_target(dir: &Path) {
 
 /// Measures the device into `m` and tunes it into `t` over 100 Hz–10 kHz.
 fn measured_and_tuned(dir: &Path) -> serde_json::Value {
+    tuned_over(
+        dir,
+        "100,10000",
+        &["--rate", "48000", "--rate", "96000", "--fir", "8192"],
+    )
+}
+
+/// Measures the device into `m` and tunes it into `t` over `range` to a
+/// flat target, with `extra` options.
+fn tuned_over(dir: &Path, range: &str, extra: &[&str]) -> serde_json::Value {
     record_device(dir, &[], |x| through(&device(), x));
     ok(
         dir,
@@ -46,26 +56,30 @@ fn measured_and_tuned(dir: &Path) -> serde_json::Value {
         ],
     );
     flat_target(dir);
-    ok(
-        dir,
-        &[
-            "tune",
-            "m",
-            "--target",
-            "flat.csv",
-            "--out",
-            "t",
-            "--range",
-            "100,10000",
-            "--rate",
-            "48000",
-            "--rate",
-            "96000",
-            "--fir",
-            "8192",
-        ],
-    );
+    let mut args = vec![
+        "tune", "m", "--target", "flat.csv", "--out", "t", "--range", range,
+    ];
+    args.extend_from_slice(extra);
+    ok(dir, &args);
     json(&dir.join("t/tuning.json"))
+}
+
+/// The sections exported at the first rate of a tuning.json.
+fn sections(t: &serde_json::Value) -> Vec<Coeffs> {
+    t["coefficients"][0]["sections"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| {
+            let v: Vec<f64> = s
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|x| x.as_f64().unwrap())
+                .collect();
+            [v[0], v[1], v[2], v[3], v[4]]
+        })
+        .collect()
 }
 
 #[test]
@@ -88,20 +102,7 @@ fn the_exported_filters_bring_a_known_device_within_a_flat_targets_tolerance() {
     // response by the tests' closed form (not gliss's)
     let set = &t["coefficients"][0];
     assert_eq!(set["sample_rate_hz"], 48_000.0);
-    let sections: Vec<Coeffs> = set["sections"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|s| {
-            let v: Vec<f64> = s
-                .as_array()
-                .unwrap()
-                .iter()
-                .map(|x| x.as_f64().unwrap())
-                .collect();
-            [v[0], v[1], v[2], v[3], v[4]]
-        })
-        .collect();
+    let sections = sections(&t);
     assert_eq!(sections.len(), filters.len());
     assert_eq!(t["coefficients"][1]["sample_rate_hz"], 96_000.0);
     let grid: Vec<f64> = (0..=(48.0 * (10_000f64 / 100.0).log2()) as usize)
@@ -312,27 +313,7 @@ fn a_loudspeakers_roll_off_is_left_alone_and_a_boost_past_the_range_is_said() {
     // a room and tuned over 20 Hz–10 kHz, wider than it plays
     let d = tempfile::tempdir().unwrap();
     let dir = d.path();
-    record_device(dir, &[], |x| through(&device(), x));
-    ok(
-        dir,
-        &[
-            "analyze",
-            "dut.wav",
-            "--sweep",
-            "sweep.wav",
-            "--out",
-            "m",
-            "--no-plots",
-        ],
-    );
-    flat_target(dir);
-    ok(
-        dir,
-        &[
-            "tune", "m", "--target", "flat.csv", "--out", "t", "--range", "20,10000",
-        ],
-    );
-    let t = json(&dir.join("t/tuning.json"));
+    let t = tuned_over(dir, "20,10000", &[]);
     let roll = t["uncorrectable"]
         .as_array()
         .unwrap()
@@ -345,20 +326,7 @@ fn a_loudspeakers_roll_off_is_left_alone_and_a_boost_past_the_range_is_said() {
     assert!((40.0..52.0).contains(&top), "{roll}");
     // the filters as exported, by the tests' own closed form: no boost
     // into the roll-off
-    let sections: Vec<Coeffs> = t["coefficients"][0]["sections"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|s| {
-            let v: Vec<f64> = s
-                .as_array()
-                .unwrap()
-                .iter()
-                .map(|x| x.as_f64().unwrap())
-                .collect();
-            [v[0], v[1], v[2], v[3], v[4]]
-        })
-        .collect();
+    let sections = sections(&t);
     for f in [20.0, 25.0, 30.0, 35.0, 40.0] {
         let db: f64 = sections
             .iter()
