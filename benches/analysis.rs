@@ -13,14 +13,20 @@ use gliss::audio::virtual_system::{VirtualDriver, VirtualSystem};
 use gliss::deconv;
 use gliss::signal::sweep::SweepParams;
 
-fn bench(c: &mut Criterion) {
-    let design = SweepParams {
+/// The case of docs/performance.md: a 5 s, 48 kHz sweep (20 Hz–20 kHz)
+/// with a 3 s tail.
+fn case_design() -> gliss::signal::sweep::SweepDesign {
+    SweepParams {
         requested_length_s: 5.0,
         tail_s: 3.0,
         ..SweepParams::default()
     }
     .design()
-    .expect("a valid sweep");
+    .expect("a valid sweep")
+}
+
+fn bench(c: &mut Criterion) {
+    let design = case_design();
     let stimulus = design.generate();
     let recording = VirtualSystem::default().render(&stimulus, design.fs());
     let config = AnalysisConfig::default();
@@ -266,13 +272,7 @@ fn png(_: &mut Criterion) {}
 /// tweeter's (1–4 kHz, the search's finest coarse pass).
 fn align(c: &mut Criterion) {
     use gliss::analysis::align::{self, Impulse};
-    let design = SweepParams {
-        requested_length_s: 5.0,
-        tail_s: 3.0,
-        ..SweepParams::default()
-    }
-    .design()
-    .expect("a valid sweep");
+    let design = case_design();
     let stimulus = design.generate();
     let recording = VirtualSystem::default().render(&stimulus, design.fs());
     let a = analyze(&recording, &stimulus, &design, &AnalysisConfig::default()).unwrap();
@@ -353,13 +353,7 @@ fn directivity(c: &mut Criterion) {
 fn sweep_check(c: &mut Criterion) {
     use gliss::session::sweep_file::{self, SweepFile};
     use gliss::signal::wav::{SampleEncoding, decode_wav, encode_wav};
-    let design = SweepParams {
-        requested_length_s: 5.0,
-        tail_s: 3.0,
-        ..SweepParams::default()
-    }
-    .design()
-    .expect("a valid sweep");
+    let design = case_design();
     let enc = SampleEncoding::Float;
     let bytes = encode_wav(&[&design.generate()], design.params.sample_rate_hz, enc);
     let json = sweep_file::describe(&design, "sweep.wav", &enc.describe(), &bytes).unwrap();
