@@ -54,6 +54,21 @@ impl Gate {
     }
 }
 
+impl Gate {
+    /// The gate that was asked for when `info` was applied: the same
+    /// fixed times (recorded as given), or auto.
+    pub fn of(info: &GateInfo) -> Gate {
+        if info.auto {
+            Gate::Auto
+        } else {
+            Gate::Fixed {
+                start_s: info.start_s,
+                end_s: info.end_s,
+            }
+        }
+    }
+}
+
 /// The gate as applied, for results.json.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct GateInfo {

@@ -21,8 +21,9 @@ files are checked against their SHA-256 first and never changed; the derived fil
 leaves each folder either as it was or refused until it is run again. The folders run in \
 parallel, one per core; one that fails is named and the others go on.
 
-The analysis options work as for analyze, except --profile: without it each folder keeps \
-the profile it was analysed with. A calibration, microphone correction or target is used \
+The analysis options work as for analyze, except that each folder keeps the profile, the \
+smoothing and the gate it was analysed with unless --profile, --smooth or --gate is given \
+(--gate none takes a gate away; a new --profile brings its own smoothing and gate). A calibration, microphone correction or target is used \
 only when given again here. Averages and comparisons made from these folders are not \
 updated: run gliss average and gliss compare again."
 )]
@@ -72,6 +73,8 @@ pub fn run(a: Args) -> Result<()> {
     let settings = Settings {
         configs,
         profile: a.output.profile,
+        smoothing_given: a.output.smooth.is_some(),
+        gate_given: a.output.gate.is_some(),
         mic_correction: mic.map(|m| m.1),
         calibration: a.output.calibration()?,
         drive: a.output.drive()?,

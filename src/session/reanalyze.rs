@@ -6,16 +6,18 @@
 //! sweep, its channel, its loopback reference and, for a measurement made
 //! through a device, the synchronous average of its takes are taken from
 //! what the folder holds, exactly as the command that made it took them.
-//! Only the analysis settings are new. The raw files are never touched:
-//! the folder's derived files are replaced as `--overwrite` replaces
-//! them (the manifest marked as being replaced first, the new manifest
-//! last). Folders are independent, so they run in parallel on every core.
+//! Only the analysis settings given are new: a folder keeps its own
+//! smoothing and gate unless `--smooth`, `--gate` or `--profile` is
+//! given. The raw files are never touched: the folder's derived files are
+//! replaced as `--overwrite` replaces them (the manifest marked as being
+//! replaced first, the new manifest last). Folders are independent, so they run in parallel on every core.
 
 use std::path::{Path, PathBuf};
 
 use rayon::prelude::*;
 
 use crate::analysis::AnalysisConfig;
+use crate::analysis::gate::Gate;
 use crate::error::{Error, Result};
 use crate::folder::schema::{FileEntry, FolderKind, Manifest};
 use crate::folder::{self, Content};
@@ -32,6 +34,12 @@ pub struct Settings {
     pub configs: Vec<AnalysisConfig>,
     /// The profile asked for; `None`: each folder keeps its own.
     pub profile: Option<Profile>,
+    /// `--smooth` was given; otherwise each folder keeps its own smoothing
+    /// (unless `profile` is given: then the profile's default).
+    pub smoothing_given: bool,
+    /// `--gate` was given; otherwise each folder keeps its own gate, as
+    /// its results.json records it (unless `profile` is given).
+    pub gate_given: bool,
     /// The microphone correction file, when given again.
     pub mic_correction: Option<FileEntry>,
     /// The calibration, when given again.
@@ -51,8 +59,8 @@ pub struct Settings {
 /// The analysis job that makes `dir` again from its raw files with `s`.
 pub fn job(dir: &Path, s: &Settings) -> Result<Job> {
     let opened = folder::open(dir)?;
-    let manifest: Manifest = match opened.content {
-        Content::Measurement { manifest, .. } => *manifest,
+    let (manifest, results): (Manifest, crate::folder::schema::Results) = match opened.content {
+        Content::Measurement { manifest, results } => (*manifest, *results),
         Content::Comparison { .. } => {
             return Err(Error::input(format!(
                 "{} is a comparison, not a measurement; run gliss compare again to make it with new settings",
@@ -140,13 +148,24 @@ pub fn job(dir: &Path, s: &Settings) -> Result<Job> {
         .profile
         .or(manifest.settings.profile)
         .unwrap_or(Profile::Room);
-    let Some(config) = s.configs.iter().find(|c| c.profile == profile).cloned() else {
+    let Some(mut config) = s.configs.iter().find(|c| c.profile == profile).cloned() else {
         return Err(Error::parameter(format!(
             "no analysis settings for the profile {} of {}",
             profile.code(),
             dir.display()
         )));
     };
+    // what the folder was analysed with is kept where nothing new was
+    // asked for: new smoothing must not drop a gate (a directivity series
+    // analysed again would take in the room's reflections unannounced)
+    if s.profile.is_none() {
+        if !s.smoothing_given {
+            config.smoothing = manifest.settings.smoothing;
+        }
+        if !s.gate_given {
+            config.gate = results.response.gate.as_ref().map(Gate::of);
+        }
+    }
     let title = dir.file_name().map_or_else(
         || dir.display().to_string(),
         |n| n.to_string_lossy().into_owned(),

@@ -192,3 +192,41 @@ fn reanalyze_refuses_what_it_cannot_make_again_and_goes_on_with_the_rest() {
         "{e}"
     );
 }
+
+#[test]
+fn each_folder_keeps_its_own_gate_and_smoothing_unless_given() {
+    // a fixed gate and 1/12-octave smoothing, then new distortion orders
+    // only: the gate and the smoothing stay (new smoothing used to take
+    // the gate away, and a directivity series in a room with it)
+    let t = tempfile::tempdir().unwrap();
+    let dir = t.path();
+    let short = ["--length", "1", "--tail", "0.6", "--no-plots"];
+    let mut args = vec![
+        "demo", "--single", "--out", "g", "--gate", "-1,4", "--smooth", "1/12",
+    ];
+    args.extend(short);
+    ok(dir, &args);
+    let gate = |d: &str| json(&dir.join(d).join("results.json"))["response"]["gate"].clone();
+    let smoothing =
+        |d: &str| json(&dir.join(d).join("results.json"))["response"]["smoothing"].clone();
+    assert_eq!(gate("g")["end_s"], 0.004);
+    ok(dir, &["reanalyze", "g", "--harmonics", "3", "--no-plots"]);
+    assert_eq!(gate("g")["start_s"], -0.001);
+    assert_eq!(gate("g")["end_s"], 0.004);
+    assert_eq!(gate("g")["auto"], false);
+    assert_eq!(smoothing("g"), "1/12");
+    // new smoothing keeps the gate
+    ok(dir, &["reanalyze", "g", "--smooth", "1/3", "--no-plots"]);
+    assert_eq!(gate("g")["end_s"], 0.004);
+    assert_eq!(smoothing("g"), "1/3");
+    // --gate none takes it away; a new --profile brings its own defaults
+    ok(dir, &["reanalyze", "g", "--gate", "none", "--no-plots"]);
+    assert!(gate("g").is_null());
+    assert_eq!(smoothing("g"), "1/3");
+    ok(
+        dir,
+        &["reanalyze", "g", "--profile", "speaker", "--no-plots"],
+    );
+    assert_eq!(gate("g")["auto"], true);
+    assert_eq!(smoothing("g"), "1/12");
+}
