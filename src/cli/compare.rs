@@ -113,6 +113,9 @@ pub fn run(a: Args) -> Result<()> {
     for k in 1..cmp.inputs.len() {
         println!("{} against {}:", cmp.inputs[k].label, cmp.inputs[0].label);
         common::print_octave_verdicts(&cmp, k);
+        if let Some(s) = gliss::report::answer::sti_sentence(&cmp, k) {
+            println!("  {s}");
+        }
     }
     if let Some(t) = &cmp.target {
         for (i, r) in cmp.inputs.iter().zip(&t.per_input) {

@@ -499,9 +499,32 @@ pub struct Comparison {
     /// What was measured, when every input records the same profile.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub profile: Option<crate::model::Profile>,
+    /// The speech transmission index of each input and its change from
+    /// the first, judged once (absent when no input has one).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub speech: Option<CompareSti>,
     /// Warnings: `warnings` (the sentences) and `warning_codes` beside them.
     #[serde(flatten)]
     pub warnings: Warnings,
+}
+
+/// The STI across the inputs of a comparison. Arrays hold one entry per
+/// input; for the first (the reference) the change fields are null.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CompareSti {
+    /// Each input's STI: its own, or for an average of positions their
+    /// spatial mean (`null` when it has none; its warnings say why).
+    pub values: Vec<Option<f64>>,
+    /// The qualification band of each value (IEC 60268-16 annex F).
+    pub qualification: Vec<Option<String>>,
+    /// Each value's standard uncertainty: for an average, the spread of its
+    /// positions over √n (the standard uncertainty of their mean); unknown
+    /// (`null`) for one measurement.
+    pub uncertainty: Vec<Option<f64>>,
+    /// The just-noticeable difference the changes were judged against.
+    pub jnd: f64,
+    /// The changes from the first and their judgement.
+    pub changes: Changes,
 }
 
 /// The responses of a comparison on one grid.

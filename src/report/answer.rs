@@ -329,6 +329,7 @@ pub fn verdict_sentences(c: &Comparison, i: usize) -> Vec<String> {
             }
         ));
     }
+    out.extend(sti_sentence(c, i));
     for &p in c.profile.unwrap_or_default().clarity_parameters() {
         let (unit, dec) = if p == Parameter::C80 {
             (" dB", 1)
@@ -397,6 +398,46 @@ pub fn verdict_sentences(c: &Comparison, i: usize) -> Vec<String> {
         out.push(s);
     }
     out
+}
+
+/// The STI of input `i` against the reference in one sentence, with the
+/// judgement stored in the comparison, or `None` when either has none.
+pub fn sti_sentence(c: &Comparison, i: usize) -> Option<String> {
+    let sp = c.speech.as_ref()?;
+    let name = |k: usize| c.inputs.get(k).map_or("?", InputRecord::name).to_string();
+    let value = |k: usize| -> Option<String> {
+        let v = sp.values.get(k).copied().flatten()?;
+        let band = sp
+            .qualification
+            .get(k)
+            .cloned()
+            .flatten()
+            .unwrap_or_default();
+        let who = name(k);
+        Some(match sp.uncertainty.get(k).copied().flatten() {
+            // one significant figure of a small uncertainty
+            Some(u) => format!(
+                "{} ± {} ({band}, {who})",
+                num(v, 2),
+                num(u, if u < 0.01 { 3 } else { 2 })
+            ),
+            None => format!("{} ({band}, {who})", num(v, 2)),
+        })
+    };
+    let (v0, v1) = (value(0)?, value(i)?);
+    let d = sp.changes.change.get(i).copied().flatten()?;
+    let verdict = sp
+        .changes
+        .verdict
+        .get(i)
+        .copied()
+        .flatten()
+        .map_or("not judged", Verdict::words);
+    Some(format!(
+        "Speech transmission index (STI) went from {v0} to {v1}, {}: {verdict} (just-noticeable difference {}).",
+        signed(d, 2),
+        num(sp.jnd, 2)
+    ))
 }
 
 /// The reverberation time (T30) per octave of every input as an inline
@@ -678,8 +719,42 @@ mod tests {
             target: None,
             criteria: Vec::new(),
             profile: None,
+            speech: None,
             warnings: Default::default(),
         }
+    }
+
+    #[test]
+    fn the_sti_sentence_says_the_stored_judgement() {
+        use crate::analysis::compare::{STI_JND, judge_sti};
+        use crate::folder::schema::CompareSti;
+        let mut c = comparison(Vec::new());
+        assert_eq!(sti_sentence(&c, 1), None);
+        // averages of positions: 0.55 ± 0.01 → 0.63 ± 0.01 is 0.08, beyond
+        // the JND (0.03) and twice the combined uncertainty (0.028)
+        let values = vec![Some(0.55), Some(0.63)];
+        let uncertainty = vec![Some(0.01), Some(0.01)];
+        c.speech = Some(CompareSti {
+            qualification: vec![Some("F".into()), Some("D".into())],
+            changes: judge_sti(&values, &uncertainty),
+            values,
+            uncertainty,
+            jnd: STI_JND,
+        });
+        let s = sti_sentence(&c, 1).unwrap();
+        assert!(
+            s.contains(
+                "from 0.55 ± 0.01 (F, before) to 0.63 ± 0.01 (D, after), +0.08: audible change"
+            ),
+            "{s}"
+        );
+        assert!(s.contains("audible change"), "{s}");
+        // one measurement each: no uncertainty, so not called audible
+        let values = vec![Some(0.55), Some(0.57)];
+        let c2 = judge_sti(&values, &[None, None]);
+        assert_eq!(c2.verdict[1], Some(Verdict::BelowJnd));
+        let c3 = judge_sti(&[Some(0.55), Some(0.60)], &[None, None]);
+        assert_eq!(c3.verdict[1], Some(Verdict::BeyondJndUncertaintyUnknown));
     }
 
     #[test]

@@ -276,6 +276,7 @@ mod tests {
             target: None,
             criteria: Vec::new(),
             profile: None,
+            speech: None,
             warnings: Default::default(),
         };
         let mut s = String::new();

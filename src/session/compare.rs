@@ -12,9 +12,9 @@ use crate::analysis::room::{BandResult, Spread};
 use crate::analysis::smoothing::smooth_on_log_grid;
 use crate::error::{Error, ErrorKind, Result};
 use crate::folder::schema::{
-    AbsorptionRow, Alignment, AverageRecord, BandRow, CompareResponse, CompareTarget, Comparison,
-    ComparisonManifest, FileEntry, FolderKind, InputRecord, Manifest, ResponseRecord, Results,
-    SCHEMA_VERSION, Settings, SmoothingMethod, Source,
+    AbsorptionRow, Alignment, AverageRecord, BandRow, CompareResponse, CompareSti, CompareTarget,
+    Comparison, ComparisonManifest, FileEntry, FolderKind, InputRecord, Manifest, ResponseRecord,
+    Results, SCHEMA_VERSION, Settings, SmoothingMethod, Source,
 };
 use crate::folder::{self, MeasurementFolder};
 use crate::model::plot_kind::PLOTS_BUILT;
@@ -726,10 +726,42 @@ pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
         }))
         .collect(),
         profile: Profile::common(inputs.iter().map(|i| i.manifest.settings.profile)),
+        speech: compare_sti(&inputs),
         warnings: warnings.clone(),
     };
     write_comparison(job, &folder, &inputs, &comparison)
         .map(|files| (comparison, Written { files, warnings }))
+}
+
+/// The STI of each input (an average's spatial mean, with the standard
+/// uncertainty of that mean) and its change from the first, judged once;
+/// `None` when no input has one.
+fn compare_sti(inputs: &[Input]) -> Option<CompareSti> {
+    let per: Vec<(Option<f64>, Option<f64>)> = inputs
+        .iter()
+        .map(|i| match i.results.average.as_ref() {
+            Some(a) => a.sti.as_ref().map_or((None, None), |m| {
+                let n = m.positions.len().max(1) as f64;
+                (Some(m.mean), m.std.map(|s| s / n.sqrt()))
+            }),
+            None => (i.results.speech.as_ref().and_then(|s| s.sti), None),
+        })
+        .collect();
+    if per.iter().all(|p| p.0.is_none()) {
+        return None;
+    }
+    let values: Vec<Option<f64>> = per.iter().map(|p| p.0).collect();
+    let uncertainty: Vec<Option<f64>> = per.iter().map(|p| p.1).collect();
+    Some(CompareSti {
+        qualification: values
+            .iter()
+            .map(|v| v.map(|v| crate::analysis::speech::qualification(v).to_string()))
+            .collect(),
+        changes: calc::judge_sti(&values, &uncertainty),
+        values,
+        uncertainty,
+        jnd: calc::STI_JND,
+    })
 }
 
 /// The volume and temperature `gliss compare` needs, checked.
