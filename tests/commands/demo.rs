@@ -450,6 +450,27 @@ fn the_demo_story_measures_averages_compares_and_finds_the_treatment() {
         means.push(m);
     }
     assert!(means[1] > means[0], "treatment raises the STI: {means:?}");
+    // the comparison carries the same means, with the spread of the three
+    // positions over √3 as their uncertainty, and judges the change once
+    let sti = &c["speech"];
+    for (k, cond) in ["before", "after"].iter().enumerate() {
+        assert_eq!(sti["values"][k].as_f64(), Some(means[k]), "{cond}");
+        let avg = json(&d.join(cond).join("results.json"));
+        let std = avg["average"]["sti"]["std"].as_f64().unwrap();
+        let u = sti["uncertainty"][k].as_f64().unwrap();
+        assert!(
+            (u - std / 3f64.sqrt()).abs() < 1e-15,
+            "{cond}: {u} vs {std}"
+        );
+    }
+    let change = sti["changes"]["change"][1].as_f64().unwrap();
+    assert!((change - (means[1] - means[0])).abs() < 1e-15);
+    assert_eq!(sti["jnd"], 0.03);
+    let u = |k: usize| sti["uncertainty"][k].as_f64().unwrap();
+    let beyond = change.abs() > 0.03 && change.abs() > 2.0 * (u(0).powi(2) + u(1).powi(2)).sqrt();
+    assert_eq!(sti["changes"]["verdict"][1] == "audible", beyond, "{sti}");
+    let page = std::fs::read_to_string(d.join("report.html")).unwrap();
+    assert!(page.contains("Speech transmission index (STI) went from"));
 }
 
 /// The bands of `results` that warn of curvature, as "1/3 80 Hz".
