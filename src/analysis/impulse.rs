@@ -142,7 +142,7 @@ pub fn analyze(ir: &[f64], fs_hz: u32, config: &AnalysisConfig) -> Result<Analys
         |cut, start| response::delay_free_spectrum(cut, start, delay_samples, fs, fft_len).0,
     );
     let room = config.bands.then(|| {
-        let r = room::analyze(decay, fs, f1, f2);
+        let r = room::analyze_from(decay, fs, f1, f2, direct.map(|_| pre));
         band_warnings(&r, &mut warnings);
         r
     });

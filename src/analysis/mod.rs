@@ -421,7 +421,9 @@ pub fn analyze(
     // the room analysis sees the response without its final fade-out
     let room = config.bands.then(|| {
         let fade = (len / 20).max(8).min(len);
-        let mut r = room::analyze(&ir[..len - fade], fs, f1, f2);
+        // the direct sound, when it was taken ahead of a stronger
+        // build-up, sits `pre` samples into the window
+        let mut r = room::analyze_from(&ir[..len - fade], fs, f1, f2, direct.map(|_| pre));
         if tail_cut {
             room::withhold_all(
                 &mut r,

@@ -393,12 +393,21 @@ fn the_virtual_subwoofer_is_windowed_from_its_direct_sound_not_its_room_build_up
             "--out",
             "sub",
             "--no-plots",
-            "--no-bands",
         ],
     );
     let r = json(&t.path().join("sub/output-3/results.json"));
     let codes = r["warning_codes"].as_array().unwrap();
     assert!(codes.iter().any(|c| c == "direct-sound-ahead"), "{codes:?}");
+    // the bands start at the direct sound too, not at a zero crossing of
+    // the build-up with the build-up read as the noise ahead
+    assert!(
+        !codes.iter().any(|c| c == "band-start-in-noise"),
+        "{codes:?}"
+    );
+    for b in r["bands"].as_array().unwrap() {
+        let codes = b["warning_codes"].as_array().unwrap();
+        assert!(!codes.iter().any(|c| c == "band-start-in-noise"), "{b}");
+    }
     // the delay is the direct sound's peak (its arrival and the
     // low-pass's few milliseconds), not the build-up's
     let delay = r["delay_s"].as_f64().unwrap();
