@@ -575,12 +575,18 @@ pub fn overlap_band(
     ((band.1 / band.0).log2() >= 1.0 / 3.0 - 1e-9).then_some(band)
 }
 
-/// The level of the first 5 % of an impulse response relative to its
-/// peak, dB, when it is above [`CUT_WITHIN_DB`]: the file begins inside
-/// the response (a measured response's file begins with its pre-roll,
-/// tens of dB down).
-pub fn starts_inside(h: &[f64]) -> Option<f64> {
-    let head = (h.len() / 20).max(1);
+/// The level of the head of an impulse response relative to its peak, dB,
+/// when it is above [`CUT_WITHIN_DB`]: the file begins inside the response
+/// (a measured response's file begins with its pre-roll, tens of dB down).
+/// The head is the first 5 % of the file, but no more than the first half
+/// of the `pre_roll` samples ahead of the analysis's reference peak (the
+/// window's fade-in): when the analysis takes the direct sound ahead of a
+/// stronger build-up as its reference, that direct sound lies a little
+/// before the peak and may fall within the first 5 % of a long file,
+/// while a file cut after the direct sound holds the build-up all through
+/// its fade-in.
+pub fn starts_inside(h: &[f64], pre_roll: usize) -> Option<f64> {
+    let head = (h.len() / 20).min(pre_roll / 2).max(1);
     let peak = h.iter().fold(0.0f64, |m, v| m.max(v.abs()));
     if peak <= 0.0 || h.len() < 40 {
         return None;
@@ -626,6 +632,10 @@ pub struct Input<'a> {
     pub impulse: Impulse<'a>,
     /// Whether its time axis rests on a loopback reference.
     pub has_reference: bool,
+    /// The analysis's reference peak (results.json's `delay_s`) on the
+    /// time axis of `impulse`, s: the file's pre-roll runs from
+    /// `impulse.start_s` to it.
+    pub delay_s: f64,
 }
 
 /// What [`align`] is asked.
@@ -930,7 +940,16 @@ pub fn align(inputs: &[Input<'_>], fs: f64, o: &Options) -> crate::Result<Alignm
     let cut: Vec<(usize, f64)> = inputs
         .iter()
         .enumerate()
-        .filter_map(|(i, x)| Some((i, starts_inside(x.impulse.samples)?)))
+        .filter_map(|(i, x)| {
+            let pre_roll = ((x.delay_s - x.impulse.start_s) * fs).round();
+            // a pre-roll that cannot be read leaves the head at 5 %
+            let pre_roll = if pre_roll.is_finite() && pre_roll > 0.0 {
+                pre_roll as usize
+            } else {
+                x.impulse.samples.len()
+            };
+            Some((i, starts_inside(x.impulse.samples, pre_roll)?))
+        })
         .collect();
     for &(i, db) in &cut {
         warnings.add(
@@ -1383,11 +1402,15 @@ mod tests {
     fn a_file_that_begins_inside_its_response_is_told_from_one_with_a_pre_roll() {
         let len = 8192;
         let h = speaker(&delayed_impulse(len, 1000.0));
-        assert_eq!(starts_inside(&h), None);
+        assert_eq!(starts_inside(&h, 1000), None);
         // the same response with its first 1000 samples and 200 more cut:
         // the file begins in its decay
         let decay: Vec<f64> = lr4(&delayed_impulse(len, 300.0), 80.0, false)[400..].to_vec();
-        let db = starts_inside(&decay).expect("begins inside");
+        // (its pre-roll unknown: the head is the first 5 %)
+        let db = starts_inside(&decay, decay.len()).expect("begins inside");
+        assert!(db > CUT_WITHIN_DB, "{db}");
+        // its pre-roll read as 200 samples: the head is the first 100
+        let db = starts_inside(&decay, 200).expect("begins inside");
         assert!(db > CUT_WITHIN_DB, "{db}");
     }
 

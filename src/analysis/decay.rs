@@ -87,6 +87,15 @@ pub struct Onset {
 /// half may be faded in), and the search repeated with the raised
 /// threshold until the threshold stands above the noise so found.
 pub fn onset(p2: &[f64], fs: f64) -> Onset {
+    onset_from(p2, fs, None)
+}
+
+/// [`onset`], with the search run back from sample `from` (the direct
+/// sound's peak, within 20 dB of the maximum, ahead of a stronger
+/// build-up) rather than from the maximum; the threshold stays 20 dB below
+/// the maximum. `None`, or a `from` past the maximum or the end: as
+/// [`onset`].
+pub fn onset_from(p2: &[f64], fs: f64, from: Option<usize>) -> Onset {
     let Some((ipk, max)) = p2
         .iter()
         .copied()
@@ -102,6 +111,7 @@ pub fn onset(p2: &[f64], fs: f64) -> Onset {
             rise_db: f64::INFINITY,
         };
     };
+    let ipk = from.filter(|&f| f < ipk).unwrap_or(ipk);
     let w = ((ONSET_SMOOTHING_S * fs).round() as usize).max(1);
     let margin = 10f64.powf(ONSET_ABOVE_NOISE_DB / 10.0);
     let mut threshold = 0.01 * max;
@@ -528,5 +538,47 @@ mod tests {
         let o = onset(&x, 8000.0);
         assert_eq!(o.index, 41);
         assert!(o.rise_db.is_infinite());
+    }
+
+    #[test]
+    fn a_search_from_the_direct_sound_starts_at_it_not_in_the_build_up() {
+        // silence with a little noise, a direct sound at 100 ms (a 60 Hz
+        // half-cycle, 8 dB under the maximum), then from 120 ms a 45 Hz
+        // oscillation rising to the maximum: averaged over 0.5 ms it falls
+        // 20 dB below the maximum at each zero crossing
+        let fs = 48_000.0;
+        let mut x: Vec<f64> = (0..(0.4 * fs) as usize)
+            .map(|i| 1e-4 * ((i * 7919 % 1000) as f64 / 500.0 - 1.0))
+            .collect();
+        let half = (fs / 120.0) as usize;
+        for k in 0..half {
+            x[(0.1 * fs) as usize + k] +=
+                0.4 * (std::f64::consts::PI * k as f64 / half as f64).sin();
+        }
+        for (i, v) in x.iter_mut().enumerate().skip((0.12 * fs) as usize) {
+            let t = i as f64 / fs - 0.12;
+            *v += (5.0 * t).min(1.0) * (std::f64::consts::TAU * 45.0 * t).sin();
+        }
+        let p2: Vec<f64> = x.iter().map(|v| v * v).collect();
+        // from the maximum: stopped in the build-up, the build-up read as
+        // the noise ahead
+        let from_max = onset(&p2, fs);
+        assert!(from_max.index > (0.13 * fs) as usize, "{}", from_max.index);
+        assert!(
+            from_max.rise_db < crate::analysis::room::MIN_ONSET_RISE_DB,
+            "{}",
+            from_max.rise_db
+        );
+        // from the direct sound's peak: its leading edge (where 0.4·sin
+        // first reaches 0.1, 0.67 ms in), with the silence ahead as the
+        // noise
+        let direct = (0.1 * fs) as usize + half / 2;
+        let o = onset_from(&p2, fs, Some(direct));
+        let at = o.index as f64 / fs - 0.1;
+        assert!((0.6e-3..0.75e-3).contains(&at), "{} ms", at * 1e3);
+        assert!(o.rise_db > 60.0, "{}", o.rise_db);
+        // no direct sound given, or one past the maximum: as onset
+        assert_eq!(onset_from(&p2, fs, None), from_max);
+        assert_eq!(onset_from(&p2, fs, Some(p2.len() + 5)), from_max);
     }
 }

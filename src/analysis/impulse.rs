@@ -6,7 +6,9 @@
 //! - no deconvolution, so no band limit of it to divide out: the response
 //!   is the file's own over [`band`];
 //! - the delay is the position of the response's peak (|h|, to a fraction
-//!   of a sample), from the file's first sample;
+//!   of a sample), from the file's first sample, or of its direct sound
+//!   when that comes well ahead of a stronger build-up
+//!   ([`delay::direct_sound`], searched back to the file's first sample);
 //! - no harmonic distortion: the harmonic orders are separated from the
 //!   recording of a sweep, and an impulse response holds the linear
 //!   response alone (a typed warning says so);
@@ -57,23 +59,52 @@ pub fn analyze(ir: &[f64], fs_hz: u32, config: &AnalysisConfig) -> Result<Analys
     let pad = (PRE_S * fs).round() as usize;
     let mut h = vec![0.0; pad];
     h.extend_from_slice(ir);
-    let ipeak = delay::peak_index(&h, pad..h.len()).unwrap_or(pad);
-    let delay_samples = delay::refine_peak(&h, ipeak);
+    let strongest = delay::peak_index(&h, pad..h.len()).unwrap_or(pad);
     let pre = pad;
-    let start = ipeak - pre;
-    let len = h.len() - start;
-    let fade = (len / 20).max(8).min(len);
-    let cut = deconv::cut(&h, start as isize, len, pre / 2, fade);
-    let decay = &cut[..len - fade];
-
-    // peak over the last tenth of the response before its fade-out
-    let tail = &decay[decay.len() * 9 / 10..];
+    let window = |ipeak: usize| {
+        let start = ipeak - pre;
+        let len = h.len() - start;
+        let fade = (len / 20).max(8).min(len);
+        (start, len, fade)
+    };
+    let (start, len, fade) = window(strongest);
+    // peak over the last tenth of the response before its fade-out (the
+    // end of the response, whatever the window's start)
+    let kept = len - fade;
+    let tail = &h[h.len() - len + kept * 9 / 10..h.len() - fade];
     let noise = tail.iter().map(|v| v * v).sum::<f64>() / tail.len().max(1) as f64;
     let peak_to_noise_db = if noise > 0.0 {
-        10.0 * (h[ipeak] * h[ipeak] / noise).log10()
+        10.0 * (h[strongest] * h[strongest] / noise).log10()
     } else {
         300.0
     };
+    // the direct sound ahead of a stronger build-up, as for a sweep
+    // (super::analyze): searched back to the file's first sample
+    let direct = delay::direct_sound(
+        &h,
+        strongest,
+        strongest - pad,
+        pre / 2 + pre / 16,
+        (fs, f1),
+        peak_to_noise_db,
+    );
+    let ipeak = direct.map_or(strongest, |d| d.peak);
+    let delay_samples = delay::refine_peak(&h, ipeak);
+    if let Some(d) = direct {
+        warnings.push(super::direct_sound_warning(
+            &h,
+            (strongest, d),
+            delay::refine_peak(&h, strongest) - delay_samples,
+            fs,
+        ));
+    }
+    let (start, len, fade) = if direct.is_some() {
+        window(ipeak)
+    } else {
+        (start, len, fade)
+    };
+    let cut = deconv::cut(&h, start as isize, len, pre / 2, fade);
+    let decay = &cut[..len - fade];
     if peak_to_noise_db < super::MIN_PEAK_TO_NOISE_DB {
         warnings.add(
             Code::LowPeakToNoise,
@@ -111,7 +142,7 @@ pub fn analyze(ir: &[f64], fs_hz: u32, config: &AnalysisConfig) -> Result<Analys
         |cut, start| response::delay_free_spectrum(cut, start, delay_samples, fs, fft_len).0,
     );
     let room = config.bands.then(|| {
-        let r = room::analyze(decay, fs, f1, f2);
+        let r = room::analyze_from(decay, fs, f1, f2, direct.map(|_| pre));
         band_warnings(&r, &mut warnings);
         r
     });

@@ -3,7 +3,9 @@
 //!
 //! Conventions (also in docs/method.md):
 //! - time zero is the first sample of the recording; `delay_s` is the peak
-//!   of |h| after it, to a fraction of a sample;
+//!   of |h| after it, to a fraction of a sample: of the strongest sample,
+//!   or of the direct sound when that comes well ahead of a stronger
+//!   build-up (see [`delay::direct_sound`]);
 //! - 0 dB means the recording equals the sweep as written (a wire);
 //! - phase is given with the delay `delay_s` removed.
 
@@ -108,7 +110,13 @@ pub struct ImpulseResponse {
 pub struct Analysis {
     /// Sample rate in Hz.
     pub sample_rate_hz: u32,
-    /// Arrival of the impulse response peak, seconds after the recording's start.
+    /// Arrival of the impulse response peak, seconds after the recording's
+    /// start: the strongest sample of |h|, or, when an arrival within 20 dB
+    /// of it comes ahead of the part of the window held at full gain (a
+    /// room's low-frequency build-up outweighing a subwoofer's direct
+    /// sound), the peak of that direct sound ([`delay::direct_sound`], with
+    /// the warning code `direct-sound-ahead`). The linear window starts
+    /// [`linear_pre`] before it.
     pub delay_s: f64,
     /// The linear impulse response.
     pub impulse: ImpulseResponse,
@@ -271,20 +279,64 @@ pub fn analyze(
     // the gap to the 2nd harmonic, at most 100 ms) to the end of the
     // recorded tail, never reaching round to the harmonics.
     let pre = linear_pre(design);
-    let start = ipeak as isize - pre as isize;
-    let min_end = ipeak + (0.05 * fs) as usize;
-    let mut end = tail_end.max(min_end) as isize;
-    let max_len = n.saturating_sub(h2_gap) as isize;
-    if end - start > max_len {
-        end = start + max_len;
-    }
-    let len = (end - start).max(1) as usize;
-    let ir = deconv::cut(&h, start, len, pre / 2, (len / 20).max(8).min(len));
+    let window = |ipeak: usize| {
+        let start = ipeak as isize - pre as isize;
+        let min_end = ipeak + (0.05 * fs) as usize;
+        let mut end = tail_end.max(min_end) as isize;
+        let max_len = n.saturating_sub(h2_gap) as isize;
+        if end - start > max_len {
+            end = start + max_len;
+        }
+        (start, end)
+    };
+    let (mut start, mut end) = window(ipeak);
 
     // harmonic responses up to the 10th order sit in the last L·ln 10
     let harmonics_len = (design.harmonic_offset_s(10) * fs).round() as usize;
     let harmonics_start = n.saturating_sub(harmonics_len);
     let (peak_to_noise_db, from_noise) = peak_to_noise(&h, ipeak, end, harmonics_start);
+
+    // The strongest sample need not be the direct sound: in a room, the
+    // low-frequency build-up of the modes can outweigh a subwoofer's
+    // direct sound 100 ms and more after it, and a window from `pre` before
+    // it would begin after the sound did. An arrival within 20 dB of the
+    // strongest sample, ahead of the part of the window held at full gain
+    // (all of it but the fade-in of `pre / 2`, less a sixteenth of `pre`:
+    // an onset in that last stretch of the fade loses under 0.4 dB), takes
+    // its place as the reference: the window then starts `pre` before the
+    // direct sound, its peak stays `pre` samples into impulse.wav (as
+    // `response_from_impulse`, the gate and averaging read it), the
+    // harmonic windows follow it, and `delay_s` is the direct sound's
+    // arrival. The search goes back no further than half the gap to the 2nd
+    // harmonic: the harmonic responses there belong to the response half a
+    // gap and more after the peak, decayed far below the threshold. Where
+    // no such arrival lies ahead of the flat part (every ordinary response)
+    // nothing changes.
+    let strongest = ipeak;
+    let direct = delay::direct_sound(
+        &h,
+        strongest,
+        h2_gap / 2,
+        pre / 2 + pre / 16,
+        (fs, f1),
+        peak_to_noise_db,
+    );
+    let (ipeak, delay_samples) = match direct {
+        Some(d) => {
+            let at = delay::refine_peak(&h, d.peak);
+            warnings.push(direct_sound_warning(
+                &h,
+                (strongest, d),
+                delay_samples - at,
+                fs,
+            ));
+            (start, end) = window(d.peak);
+            (d.peak, at)
+        }
+        None => (ipeak, delay_samples),
+    };
+    let len = (end - start).max(1) as usize;
+    let ir = deconv::cut(&h, start, len, pre / 2, (len / 20).max(8).min(len));
     if peak_to_noise_db < MIN_PEAK_TO_NOISE_DB {
         warnings.push(if from_noise {
             Warning::new(Code::LowPeakToNoise, format!(
@@ -369,7 +421,9 @@ pub fn analyze(
     // the room analysis sees the response without its final fade-out
     let room = config.bands.then(|| {
         let fade = (len / 20).max(8).min(len);
-        let mut r = room::analyze(&ir[..len - fade], fs, f1, f2);
+        // the direct sound, when it was taken ahead of a stronger
+        // build-up, sits `pre` samples into the window
+        let mut r = room::analyze_from(&ir[..len - fade], fs, f1, f2, direct.map(|_| pre));
         if tail_cut {
             room::withhold_all(
                 &mut r,
@@ -405,6 +459,31 @@ pub fn analyze(
         peak_to_noise_db,
         warnings,
     })
+}
+
+/// The warning that the direct sound `direct` of `h` (sample rate `fs`)
+/// was taken as the reference ahead of the strongest sample `strongest`,
+/// which arrives `lag` samples after it.
+pub(crate) fn direct_sound_warning(
+    h: &[f64],
+    (strongest, direct): (usize, delay::DirectSound),
+    lag: f64,
+    fs: f64,
+) -> Warning {
+    let ms = lag / fs * 1e3;
+    let db = db20(h[strongest].abs() / h[direct.peak].abs());
+    Warning::new(
+        Code::DirectSoundAhead,
+        if direct.out_of_reach {
+            format!(
+                "the response stands within 20 dB of its strongest sample as far ahead of it as the search for the direct sound may look (half the gap to the 2nd harmonic): the response is windowed from the earliest arrival in reach, {ms:.0} ms ahead of the strongest sample and {db:.0} dB weaker, and the delay is that arrival's, which may come after the direct sound; a longer sweep lets the search reach further"
+            )
+        } else {
+            format!(
+                "the strongest part of the response arrives {ms:.0} ms after the direct sound, which is {db:.0} dB weaker (a room's low-frequency build-up, as a subwoofer's often is): the response is windowed from the direct sound, and the delay is its arrival"
+            )
+        },
+    )
 }
 
 /// A response this far (s) ahead of the sweep is still taken as arriving
@@ -783,6 +862,130 @@ mod tests {
     use rand_distr::{Distribution, Normal};
 
     const FS: f64 = 48_000.0;
+
+    /// A 5 s sweep (as `gliss measure` plays by default): the search for
+    /// the direct sound reaches 250 ms back (half the gap to the 2nd
+    /// harmonic).
+    fn long_design() -> SweepDesign {
+        SweepParams {
+            requested_length_s: 5.0,
+            tail_s: 2.0,
+            ..SweepParams::default()
+        }
+        .design()
+        .unwrap()
+    }
+
+    /// A recording of the sweep of [`long_design`] through `room`, at 0.5
+    /// peak with a little white noise.
+    fn through(room: &[f64]) -> (Vec<f64>, Vec<f64>) {
+        let s = long_design().generate();
+        let mut rec = fft::convolve(&s, room);
+        rec.truncate(s.len());
+        let peak = rec.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        let mut rng = StdRng::seed_from_u64(7);
+        let normal = Normal::new(0.0, 1e-6).unwrap();
+        for v in rec.iter_mut() {
+            *v = 0.5 * *v / peak + normal.sample(&mut rng);
+        }
+        (rec, s)
+    }
+
+    /// A subwoofer's response in a room: a direct sound (a Ricker wavelet
+    /// of 200 Hz, which has no content at the deconvolution's 20 Hz edge to
+    /// bend it, peaking at `direct_s`) and, from 30 ms on, a 45 Hz mode
+    /// building up and decaying to a peak `strength` times the direct
+    /// sound's near 100 ms, its top flat within 0.2 dB from 80 to 120 ms.
+    fn subwoofer_room(direct_s: f64, strength: f64) -> Vec<f64> {
+        let mut room: Vec<f64> = (0..(1.5 * FS) as usize)
+            .map(|i| {
+                let a = std::f64::consts::PI * 200.0 * (i as f64 / FS - direct_s);
+                (1.0 - 2.0 * a * a) * (-a * a).exp()
+            })
+            .collect();
+        let mode: Vec<f64> = (0..room.len())
+            .map(|i| {
+                let t = i as f64 / FS - 0.03;
+                if t <= 0.0 {
+                    return 0.0;
+                }
+                (1.0 - (-t / 0.03).exp())
+                    * (-t / 0.25).exp()
+                    * (std::f64::consts::TAU * 45.0 * t).sin()
+            })
+            .collect();
+        let top = mode.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        for (r, m) in room.iter_mut().zip(&mode) {
+            *r += strength * m / top;
+        }
+        room
+    }
+
+    #[test]
+    fn a_build_up_stronger_than_the_direct_sound_is_windowed_from_the_direct_sound() {
+        let design = long_design();
+        let direct_s = 0.012;
+        let (rec, s) = through(&subwoofer_room(direct_s, 2.5));
+        // 2.5 times (8 dB, as the virtual room's subwoofer; 9 dB in h, the
+        // strongest sample falling on a 45 Hz crest 104 ms after the direct
+        // sound, the envelope's top 0.2 dB higher than the crest)
+        let a = analyze(&rec, &s, &design, &AnalysisConfig::default()).unwrap();
+        // the strongest sample is the build-up's, 80 ms and more later
+        let h = deconv::deconvolve(&rec, &s, FS, 20.0, 20_000.0);
+        let strongest = delay::peak_index(&h, 0..h.len() / 2).unwrap();
+        assert!(strongest as f64 / FS > direct_s + 0.08, "{strongest}");
+        let w = a.warnings.iter().find(|w| w.code == Code::DirectSoundAhead);
+        assert!(
+            w.is_some_and(|w| w
+                .message
+                .contains("104 ms after the direct sound, which is 9 dB")),
+            "{w:?}"
+        );
+        // the delay is the direct sound's peak in h, within a sample (the
+        // deconvolution's 20 Hz edge leads the wavelet's peak by 13
+        // samples, a quarter of a millisecond)
+        let direct = delay::peak_index(&h, 0..(direct_s * FS) as usize * 2).unwrap();
+        assert!(
+            (a.delay_s * FS - direct as f64).abs() < 1.0,
+            "{} {direct}",
+            a.delay_s * FS
+        );
+        assert!((a.delay_s - direct_s).abs() < 0.5e-3, "{}", a.delay_s);
+        // the window starts `pre` before it: the direct sound and the
+        // silence ahead of it are in the window's flat part
+        let pre = linear_pre(&design);
+        let start = (a.impulse.start_s * FS).round() as isize;
+        assert_eq!(start, (a.delay_s * FS).round() as isize - pre as isize);
+        assert!(((start + pre as isize / 2) as f64) < (direct_s - 0.002) * FS);
+        let k = (direct_s * FS).round() as isize - start;
+        assert_eq!(
+            a.impulse.samples[k as usize],
+            h[(direct_s * FS).round() as usize]
+        );
+    }
+
+    #[test]
+    fn a_response_whose_direct_sound_is_strongest_keeps_the_old_window_bit_for_bit() {
+        // the same direct sound, now the strongest: a weaker build-up
+        let design = long_design();
+        let (rec, s) = through(&subwoofer_room(0.012, 0.7));
+        let a = analyze(&rec, &s, &design, &AnalysisConfig::default()).unwrap();
+        assert!(!a.warnings.iter().any(|w| w.code == Code::DirectSoundAhead));
+        // the rule before the direct sound was looked for: the window from
+        // `pre` before the strongest sample
+        let fs = design.fs();
+        let h = deconv::deconvolve(&rec, &s, fs, 20.0, 20_000.0);
+        let n = h.len();
+        let h2_gap = (design.harmonic_offset_s(2) * fs).round() as usize;
+        let ipeak = delay::peak_index(&h, 0..n.saturating_sub(h2_gap / 2).max(1)).unwrap();
+        assert_eq!(a.delay_s, delay::refine_peak(&h, ipeak) / fs);
+        let pre = linear_pre(&design);
+        let start = ipeak as isize - pre as isize;
+        assert_eq!(a.impulse.start_s, start as f64 / fs);
+        let len = a.impulse.samples.len();
+        let old = deconv::cut(&h, start, len, pre / 2, (len / 20).max(8).min(len));
+        assert_eq!(a.impulse.samples, old);
+    }
 
     fn design() -> SweepDesign {
         SweepParams {

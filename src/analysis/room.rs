@@ -393,6 +393,18 @@ fn withhold_early(r: &mut BandResult, label: &str, rise_db: f64) {
 /// Runs the room analysis of `ir` (sample rate `fs`) for the sweep band
 /// [f1, f2].
 pub fn analyze(ir: &[f64], fs: f64, f1: f64, f2: f64) -> Room {
+    analyze_from(ir, fs, f1, f2, None)
+}
+
+/// [`analyze`], with the direct sound's peak at sample `direct` of `ir`
+/// when the analysis took it as the reference ahead of a stronger
+/// build-up ([`super::delay::direct_sound`]): the start of every band is
+/// then searched back from it ([`decay::onset_from`]). Averaged over
+/// half a millisecond, a low-frequency build-up falls 20 dB below its
+/// maximum at each zero crossing, and a search back from the build-up's
+/// maximum stops at the last of them: the start would lie inside the
+/// build-up, with the build-up itself read as the noise ahead.
+pub fn analyze_from(ir: &[f64], fs: f64, f1: f64, f2: f64, direct: Option<usize>) -> Room {
     let len = ir.len();
     let pad = (0.5 * fs) as usize;
     let m = fft::fast_len(len + pad);
@@ -406,7 +418,7 @@ pub fn analyze(ir: &[f64], fs: f64, f1: f64, f2: f64) -> Room {
     // band's own filtered onset is smeared by the filter (earlier by a few
     // milliseconds at low frequencies), which would bias C50, D50 and Ts.
     let p2_broad: Vec<f64> = ir.iter().map(|v| v * v).collect();
-    let start = decay::onset(&p2_broad, fs);
+    let start = decay::onset_from(&p2_broad, fs, direct);
     let onset_s = start.index as f64 / fs;
     let early_ok = start.rise_db >= MIN_ONSET_RISE_DB;
     for band in bands::bands_within(f1, f2, fs / 2.0) {

@@ -69,7 +69,9 @@ pub struct Results {
     pub schema_version: u32,
     /// Sample rate in Hz.
     pub sample_rate_hz: u32,
-    /// Arrival of the impulse response peak after the recording's start, s.
+    /// Arrival of the impulse response peak after the recording's start, s:
+    /// the strongest sample's, or the direct sound's when that comes well
+    /// ahead of a stronger build-up (warning code `direct-sound-ahead`).
     pub delay_s: f64,
     /// What `delay_s` is measured from, in words.
     pub delay_reference: String,

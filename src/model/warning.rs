@@ -99,6 +99,10 @@ codes! {
     /// The auto gate cannot tell a rise in the energy-time curve from the
     /// loudspeaker's own ringing, and ends before it.
     GateUncertain = "gate-uncertain", Caution, Gate;
+    /// The strongest part of the response comes well after a direct sound
+    /// within 20 dB of it (a room's low-frequency build-up): the response
+    /// is windowed from the direct sound, and the delay is its arrival.
+    DirectSoundAhead = "direct-sound-ahead", Note, Other;
     /// The recording stops with the sweep: the room's decay is cut off.
     TailCut = "tail-cut", Problem, NoiseFloor;
     /// A band: the recording ends before the decay.

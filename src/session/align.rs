@@ -45,6 +45,7 @@ struct Read {
     record: InputRecord,
     samples: Vec<f64>,
     start_s: f64,
+    delay_s: f64,
     rate: u32,
     band: (f64, f64),
     has_reference: bool,
@@ -97,6 +98,7 @@ fn read(dir: &Path) -> Result<Read> {
         record,
         samples,
         start_s: impulse.start_s,
+        delay_s: results.delay_s,
         rate: manifest.sample_rate_hz,
         band: (manifest.sweep.params.start_hz, manifest.sweep.params.end_hz),
         has_reference,
@@ -194,6 +196,7 @@ pub fn run(job: &AlignJob) -> Result<(Alignment, Vec<String>)> {
                 start_s: r.start_s,
             },
             has_reference: r.has_reference,
+            delay_s: r.delay_s,
         })
         .collect();
     let a = align::align(

@@ -374,3 +374,54 @@ fn a_device_that_goes_away_is_a_clear_error_and_keeps_the_recording() {
     assert!(!err.message().contains('\n'));
     assert_honest_leftovers(&out, 72_000, "went away after 1.50 s");
 }
+
+#[test]
+fn the_virtual_subwoofer_is_windowed_from_its_direct_sound_not_its_room_build_up() {
+    // output 3 of the virtual system: a subwoofer 2.17 m from the
+    // microphone (6.3 ms, plus 293 samples of latency: 12.4 ms), through an
+    // 80 Hz Linkwitz-Riley low-pass; the room's modes build up to the
+    // strongest sample some 120 ms later
+    let t = tempfile::tempdir().unwrap();
+    ok(
+        t.path(),
+        &[
+            "measure",
+            "--device",
+            "virtual",
+            "--each-output",
+            "1,3",
+            "--out",
+            "sub",
+            "--no-plots",
+        ],
+    );
+    let r = json(&t.path().join("sub/output-3/results.json"));
+    let codes = r["warning_codes"].as_array().unwrap();
+    assert!(codes.iter().any(|c| c == "direct-sound-ahead"), "{codes:?}");
+    // the bands start at the direct sound too, not at a zero crossing of
+    // the build-up with the build-up read as the noise ahead
+    assert!(
+        !codes.iter().any(|c| c == "band-start-in-noise"),
+        "{codes:?}"
+    );
+    for b in r["bands"].as_array().unwrap() {
+        let codes = b["warning_codes"].as_array().unwrap();
+        assert!(!codes.iter().any(|c| c == "band-start-in-noise"), "{b}");
+    }
+    // the delay is the direct sound's peak (its arrival and the
+    // low-pass's few milliseconds), not the build-up's
+    let delay = r["delay_s"].as_f64().unwrap();
+    assert!(delay > 0.0124 && delay < 0.02, "{delay}");
+    // the window starts 100 ms before it, well before the sound
+    let start = r["impulse"]["start_s"].as_f64().unwrap();
+    assert!((start - (delay - 0.1)).abs() < 1e-4, "{start} {delay}");
+    assert!(start < 0.0124 - 0.05, "{start}");
+    // the monitor on output 1 is as it was: its strongest sample is its
+    // direct sound
+    let r = json(&t.path().join("sub/output-1/results.json"));
+    let codes = r["warning_codes"].as_array().unwrap();
+    assert!(
+        !codes.iter().any(|c| c == "direct-sound-ahead"),
+        "{codes:?}"
+    );
+}
