@@ -472,15 +472,20 @@ pub(crate) fn direct_sound_warning(
 ) -> Warning {
     let ms = lag / fs * 1e3;
     let db = db20(h[strongest].abs() / h[direct.peak].abs());
+    let weaker = if db < 0.5 {
+        "about as strong".to_string()
+    } else {
+        format!("{db:.0} dB weaker")
+    };
     Warning::new(
         Code::DirectSoundAhead,
         if direct.out_of_reach {
             format!(
-                "the response stands within 20 dB of its strongest sample as far ahead of it as the search for the direct sound may look (half the gap to the 2nd harmonic): the response is windowed from the earliest arrival in reach, {ms:.0} ms ahead of the strongest sample and {db:.0} dB weaker, and the delay is that arrival's, which may come after the direct sound; a longer sweep lets the search reach further"
+                "the response stands within 20 dB of its strongest sample as far ahead of it as the search for the direct sound may look (half the gap to the 2nd harmonic): the response is windowed from the earliest arrival in reach, {ms:.0} ms ahead of the strongest sample and {weaker}, and the delay is that arrival's, which may come after the direct sound; a longer sweep lets the search reach further"
             )
         } else {
             format!(
-                "the strongest part of the response arrives {ms:.0} ms after the direct sound, which is {db:.0} dB weaker (a room's low-frequency build-up, as a subwoofer's often is): the response is windowed from the direct sound, and the delay is its arrival"
+                "the strongest part of the response arrives {ms:.0} ms after the direct sound, which is {weaker} (a room's low-frequency build-up, as a subwoofer's often is): the response is windowed from the direct sound, and the delay is its arrival"
             )
         },
     )
