@@ -15,7 +15,7 @@ use gliss::session::reanalyze::{self, Settings};
 #[command(
     after_help = "Each folder is analysed again in place from the raw files it holds \
 (recording.wav and stimulus.wav, or input-impulse.wav), with the channel, loopback \
-reference and takes it was measured with; only the analysis settings are new. The raw \
+reference and takes it was measured with; only the analysis settings given are new. The raw \
 files are checked against their SHA-256 first and never changed; the derived files \
 (results, tables, plots) are replaced as --overwrite replaces them, so a run cut off \
 leaves each folder either as it was or refused until it is run again. The folders run in \
