@@ -737,14 +737,22 @@ pub fn compare(job: &CompareJob) -> Result<(Comparison, Written)> {
 /// uncertainty of that mean) and its change from the first, judged once;
 /// `None` when no input has one.
 fn compare_sti(inputs: &[Input]) -> Option<CompareSti> {
-    let per: Vec<(Option<f64>, Option<f64>)> = inputs
+    // (value, its standard uncertainty, its qualification band as stored)
+    type Sti = (Option<f64>, Option<f64>, Option<String>);
+    let per: Vec<Sti> = inputs
         .iter()
         .map(|i| match i.results.average.as_ref() {
-            Some(a) => a.sti.as_ref().map_or((None, None), |m| {
+            Some(a) => a.sti.as_ref().map_or((None, None, None), |m| {
                 let n = m.positions.len().max(1) as f64;
-                (Some(m.mean), m.std.map(|s| s / n.sqrt()))
+                (
+                    Some(m.mean),
+                    m.std.map(|s| s / n.sqrt()),
+                    Some(m.qualification.clone()),
+                )
             }),
-            None => (i.results.speech.as_ref().and_then(|s| s.sti), None),
+            None => i.results.speech.as_ref().map_or((None, None, None), |s| {
+                (s.sti, None, s.qualification.clone())
+            }),
         })
         .collect();
     if per.iter().all(|p| p.0.is_none()) {
@@ -753,10 +761,7 @@ fn compare_sti(inputs: &[Input]) -> Option<CompareSti> {
     let values: Vec<Option<f64>> = per.iter().map(|p| p.0).collect();
     let uncertainty: Vec<Option<f64>> = per.iter().map(|p| p.1).collect();
     Some(CompareSti {
-        qualification: values
-            .iter()
-            .map(|v| v.map(|v| crate::analysis::speech::qualification(v).to_string()))
-            .collect(),
+        qualification: per.into_iter().map(|p| p.2).collect(),
         changes: calc::judge_sti(&values, &uncertainty),
         values,
         uncertainty,
