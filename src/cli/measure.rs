@@ -421,6 +421,11 @@ pub fn run(a: Args) -> Result<()> {
     if let Some(seconds) = a.noise {
         return record_noise(&a, device.as_mut(), seconds, channel, calibration, &design);
     }
+    let title = match (is_virtual, a.impedance) {
+        (true, true) => "Kestrel 5 woofer on the bench (simulated)".into(),
+        (true, false) => virtual_title(&outputs),
+        _ => format!("{}, input {channel_given}", common::show(&a.out)),
+    };
     let job = MeasureJob {
         out: a.out.clone(),
         plots: !a.output.no_plots,
@@ -431,11 +436,7 @@ pub fn run(a: Args) -> Result<()> {
         repeat: a.repeat,
         design: design.clone(),
         config,
-        title: match (is_virtual, a.impedance) {
-            (true, true) => "Kestrel 5 woofer on the bench (simulated)".into(),
-            (true, false) => "Kestrel 5 in the rehearsal room (simulated)".into(),
-            _ => format!("{}, input {channel_given}", common::show(&a.out)),
-        },
+        title,
         command_line: std::env::args().collect(),
         mic_correction: mic.map(|m| m.1),
         calibration,
@@ -540,6 +541,27 @@ fn each_output(a: &Args, always: &[usize]) -> Result<Vec<usize>> {
     Ok(each)
 }
 
+/// The plots' title for the built-in virtual system playing `outputs`
+/// (0-based): the microphone hears the Kestrel 5 on output 1 and the
+/// subwoofer on output 3 (output 2 is the loopback).
+fn virtual_title(outputs: &[usize]) -> String {
+    let heard: Vec<&str> = [(0, "Kestrel 5"), (2, "the subwoofer")]
+        .into_iter()
+        .filter(|(o, _)| outputs.contains(o))
+        .map(|(_, name)| name)
+        .collect();
+    let what = match heard.as_slice() {
+        [] => "Nothing (the loopback output only)".to_string(),
+        [one] => one.to_string(),
+        more => more.join(" and "),
+    };
+    let mut what = what;
+    if let Some(c) = what.get(..1) {
+        what = c.to_uppercase() + &what[1..];
+    }
+    format!("{what} in the rehearsal room (simulated)")
+}
+
 /// `gliss measure --each-output`: the sweep on each output in turn, one
 /// measurement folder per output in `--out`, with the same sweep, inputs
 /// and reference.
@@ -563,7 +585,13 @@ fn measure_each(
             ),
         ));
     }
-    let jobs = measure::each_output_jobs(base, each);
+    let mut jobs = measure::each_output_jobs(base, each);
+    if base.source_kind == "virtual" && !a.impedance {
+        // each folder names what its own output plays
+        for (j, o) in jobs.iter_mut().zip(each) {
+            j.title = format!("{}, output {}", virtual_title(&[*o]), o + 1);
+        }
+    }
     for j in &jobs {
         measure::check(j, device)?;
     }

@@ -265,7 +265,7 @@ impl PlotKind {
             PlotKind::DecaySpectrum => "Decay spectrum: the gated response as the window's start moves later, showing which frequencies ring on.".to_string(),
             PlotKind::Spectrogram => "Spectrogram of the decay: level in time and frequency after the direct sound, showing how each part of the spectrum dies away.".to_string(),
             PlotKind::Impulse => format!(
-                "Impulse response against time, peak at {delay} after the recording's start."
+                "Impulse response against time, arrival at {delay} after the recording's start (its peak, or a direct sound ahead of a stronger build-up)."
             ),
             PlotKind::AverageResponse => format!(
                 "Frequency response: the power average of the positions (blue) over each position's response (each in its own grey, named in the legend), with {smoothing}; {}.",
@@ -433,7 +433,11 @@ mod tests {
             PlotKind::Response.caption(&f),
             "Frequency response: level against frequency with 1/6-octave smoothing; 0 dB = the recording equals the sweep. The gate resolves the response from 200 Hz to 20 kHz; outside that range it is greyed out."
         );
-        assert!(PlotKind::Impulse.caption(&f).contains("peak at 2.500 ms"));
+        assert!(
+            PlotKind::Impulse
+                .caption(&f)
+                .contains("arrival at 2.500 ms")
+        );
         assert!(PlotKind::Distortion.caption(&f).contains("to the 5th"));
         assert!(
             PlotKind::CompareDifference

@@ -71,7 +71,9 @@ pub fn impulse_png(
             .collect();
         let mut drawn = Drawn::default();
         drawn.line(pts.iter().copied());
-        let label = format!("impulse response, peak at {d_ms:.3} ms");
+        // the arrival: the peak, or a direct sound ahead of a stronger
+        // build-up (analysis::delay::direct_sound)
+        let label = format!("impulse response, arrival at {d_ms:.3} ms");
         chart
             .draw_series(LineSeries::new(pts, BLUE.stroke_width(1)))?
             .label(label.clone())
