@@ -15,7 +15,7 @@ use serde::{Deserialize, Serialize};
 use crate::error::{Error, Result};
 use crate::folder::sha256_hex;
 use crate::signal::sweep::{SweepDesign, SweepParams};
-use crate::signal::wav::{SampleEncoding, WavData};
+use crate::signal::wav::WavData;
 
 /// What `gliss sweep` writes beside the WAV.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -135,10 +135,7 @@ pub fn differs(design: &SweepDesign, wav: &WavData) -> bool {
         return true;
     };
     let want = design.generate();
-    let step = match wav.encoding {
-        SampleEncoding::Int(b) => 1.0 / f64::from(1u32 << (b - 1)),
-        SampleEncoding::Float => 1e-6,
-    };
+    let step = wav.encoding.step();
     let n = want.len().min(got.len());
     let worst = want[..n]
         .iter()
@@ -257,10 +254,7 @@ pub fn load_or_recover(wav: &Path) -> Result<LoadedSweep> {
             sidecar_path(wav).display()
         )));
     }
-    let step = match data.encoding {
-        SampleEncoding::Int(b) => 1.0 / f64::from(1u32 << (b - 1)),
-        SampleEncoding::Float => 1e-6,
-    };
+    let step = data.encoding.step();
     let r = recovered_design(&data.channels[0], data.sample_rate_hz, step).map_err(|why| {
         Error::input(format!(
             "{} has no {} beside it, and its parameters cannot be recovered from the file: {why}",
@@ -294,7 +288,7 @@ pub fn load_or_recover(wav: &Path) -> Result<LoadedSweep> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::signal::wav::{decode_wav, encode_wav};
+    use crate::signal::wav::{SampleEncoding, decode_wav, encode_wav};
 
     /// A short sweep as `gliss sweep` writes it: the WAV's bytes and its
     /// description.

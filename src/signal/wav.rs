@@ -19,6 +19,17 @@ pub enum SampleEncoding {
 }
 
 impl SampleEncoding {
+    /// The step a sample of this encoding is known to: one quantisation
+    /// step of full scale for integers, 10⁻⁶ for 32-bit float (our
+    /// choice: well above float's rounding near full scale, far below
+    /// any difference between two sweeps).
+    pub fn step(self) -> f64 {
+        match self {
+            SampleEncoding::Int(b) => 1.0 / f64::from(1u32 << (b - 1)),
+            SampleEncoding::Float => 1e-6,
+        }
+    }
+
     /// From the `--bits` option: 16 or 24 integer, 32 float.
     pub fn from_bits(bits: u16) -> Result<Self> {
         match bits {
