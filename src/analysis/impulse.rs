@@ -67,7 +67,7 @@ pub fn analyze(ir: &[f64], fs_hz: u32, config: &AnalysisConfig) -> Result<Analys
         let fade = (len / 20).max(8).min(len);
         (start, len, fade)
     };
-    let (start, len, fade) = window(strongest);
+    let (_, len, fade) = window(strongest);
     // peak over the last tenth of the response before its fade-out (the
     // end of the response, whatever the window's start)
     let kept = len - fade;
@@ -80,29 +80,15 @@ pub fn analyze(ir: &[f64], fs_hz: u32, config: &AnalysisConfig) -> Result<Analys
     };
     // the direct sound ahead of a stronger build-up, as for a sweep
     // (super::analyze): searched back to the file's first sample
-    let direct = delay::direct_sound(
+    let (ipeak, delay_samples, direct) = super::reference_arrival(
         &h,
-        strongest,
-        strongest - pad,
-        pre / 2 + pre / 16,
+        (strongest, delay::refine_peak(&h, strongest)),
+        (strongest - pad, pre),
         (fs, f1),
         peak_to_noise_db,
+        &mut warnings,
     );
-    let ipeak = direct.map_or(strongest, |d| d.peak);
-    let delay_samples = delay::refine_peak(&h, ipeak);
-    if let Some(d) = direct {
-        warnings.push(super::direct_sound_warning(
-            &h,
-            (strongest, d),
-            delay::refine_peak(&h, strongest) - delay_samples,
-            fs,
-        ));
-    }
-    let (start, len, fade) = if direct.is_some() {
-        window(ipeak)
-    } else {
-        (start, len, fade)
-    };
+    let (start, len, fade) = window(ipeak);
     let cut = deconv::cut(&h, start as isize, len, pre / 2, fade);
     let decay = &cut[..len - fade];
     if peak_to_noise_db < super::MIN_PEAK_TO_NOISE_DB {
@@ -142,7 +128,7 @@ pub fn analyze(ir: &[f64], fs_hz: u32, config: &AnalysisConfig) -> Result<Analys
         |cut, start| response::delay_free_spectrum(cut, start, delay_samples, fs, fft_len).0,
     );
     let room = config.bands.then(|| {
-        let r = room::analyze_from(decay, fs, f1, f2, direct.map(|_| pre));
+        let r = room::analyze_from(decay, fs, f1, f2, direct.then_some(pre));
         band_warnings(&r, &mut warnings);
         r
     });

@@ -312,29 +312,17 @@ pub fn analyze(
     // gap and more after the peak, decayed far below the threshold. Where
     // no such arrival lies ahead of the flat part (every ordinary response)
     // nothing changes.
-    let strongest = ipeak;
-    let direct = delay::direct_sound(
+    let (ipeak, delay_samples, direct) = reference_arrival(
         &h,
-        strongest,
-        h2_gap / 2,
-        pre / 2 + pre / 16,
+        (ipeak, delay_samples),
+        (h2_gap / 2, pre),
         (fs, f1),
         peak_to_noise_db,
+        &mut warnings,
     );
-    let (ipeak, delay_samples) = match direct {
-        Some(d) => {
-            let at = delay::refine_peak(&h, d.peak);
-            warnings.push(direct_sound_warning(
-                &h,
-                (strongest, d),
-                delay_samples - at,
-                fs,
-            ));
-            (start, end) = window(d.peak);
-            (d.peak, at)
-        }
-        None => (ipeak, delay_samples),
-    };
+    if direct {
+        (start, end) = window(ipeak);
+    }
     let len = (end - start).max(1) as usize;
     let ir = deconv::cut(&h, start, len, pre / 2, (len / 20).max(8).min(len));
     if peak_to_noise_db < MIN_PEAK_TO_NOISE_DB {
@@ -423,7 +411,7 @@ pub fn analyze(
         let fade = (len / 20).max(8).min(len);
         // the direct sound, when it was taken ahead of a stronger
         // build-up, sits `pre` samples into the window
-        let mut r = room::analyze_from(&ir[..len - fade], fs, f1, f2, direct.map(|_| pre));
+        let mut r = room::analyze_from(&ir[..len - fade], fs, f1, f2, direct.then_some(pre));
         if tail_cut {
             room::withhold_all(
                 &mut r,
@@ -461,10 +449,42 @@ pub fn analyze(
     })
 }
 
+/// The reference arrival of `h` (sample rate `fs`, lowest frequency
+/// `lowest_hz`): the strongest sample `strongest` (`strongest_at`
+/// refined), or the direct sound ahead of it that
+/// [`delay::direct_sound`] finds no more than `back` samples ahead, ahead
+/// of the part of a window from `pre` before the reference held at full
+/// gain (all but the fade-in of `pre / 2`, less `pre / 16`), with the
+/// warning that says so pushed onto `warnings`. Returns the reference's
+/// index, its refined position and whether it is the direct sound.
+pub(crate) fn reference_arrival(
+    h: &[f64],
+    (strongest, strongest_at): (usize, f64),
+    (back, pre): (usize, usize),
+    (fs, lowest_hz): (f64, f64),
+    peak_to_noise_db: f64,
+    warnings: &mut Warnings,
+) -> (usize, f64, bool) {
+    let kept = pre / 2 + pre / 16;
+    match delay::direct_sound(h, strongest, back, kept, (fs, lowest_hz), peak_to_noise_db) {
+        Some(d) => {
+            let at = delay::refine_peak(h, d.peak);
+            warnings.push(direct_sound_warning(
+                h,
+                (strongest, d),
+                strongest_at - at,
+                fs,
+            ));
+            (d.peak, at, true)
+        }
+        None => (strongest, strongest_at, false),
+    }
+}
+
 /// The warning that the direct sound `direct` of `h` (sample rate `fs`)
 /// was taken as the reference ahead of the strongest sample `strongest`,
 /// which arrives `lag` samples after it.
-pub(crate) fn direct_sound_warning(
+fn direct_sound_warning(
     h: &[f64],
     (strongest, direct): (usize, delay::DirectSound),
     lag: f64,
